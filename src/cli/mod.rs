@@ -1,0 +1,102 @@
+//! The command line: flags, glue and user-facing messages. Each command lives in its own
+//! file; metric logic stays in the library.
+
+mod convert;
+mod replay;
+mod scenario;
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+use crate::config::Config;
+
+/// Exit code: no critical rule failed.
+pub const EXIT_OK: u8 = 0;
+/// Exit code: a critical rule failed or a gate regressed.
+pub const EXIT_FAIL: u8 = 1;
+/// Exit code: unreadable input or invalid config.
+pub const EXIT_INPUT: u8 = 2;
+
+/// plumbline: referees an autonomy stack against its reference.
+#[derive(Debug, Parser)]
+#[command(name = "plumbline", version, about, long_about = None)]
+pub struct Cli {
+    /// Config file (default: config/plumbline.toml if present, else built-in defaults).
+    #[arg(long, global = true, value_name = "FILE")]
+    pub config: Option<PathBuf>,
+    /// Override a config key after the file: section.key=value (repeatable).
+    #[arg(long = "set", global = true, value_name = "SECTION.KEY=VALUE")]
+    pub sets: Vec<String>,
+    /// Log as JSON lines on stderr instead of text.
+    #[arg(long, global = true)]
+    pub log_json: bool,
+    /// The command.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// Commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Replay a log through the engine: summary on stdout, optional report and series.
+    Replay(replay::Args),
+    /// Convert a log between JSON Lines (.jsonl) and binary (.plb).
+    Convert(convert::Args),
+    /// Generate a demo-scenario log (the Aldermoor campus shuttle).
+    Scenario(scenario::Args),
+}
+
+/// Runs the parsed command line and returns the process exit code.
+pub fn run(cli: Cli) -> ExitCode {
+    init_tracing(cli.log_json);
+    let cfg = match load_config(cli.config.as_ref(), &cli.sets) {
+        Ok(c) => c,
+        Err(e) => {
+            eprintln!("plumbline: invalid config: {e}");
+            return ExitCode::from(EXIT_INPUT);
+        }
+    };
+    let code = match &cli.command {
+        Command::Replay(a) => replay::run(&cfg, a),
+        Command::Convert(a) => convert::run(&cfg, a),
+        Command::Scenario(a) => scenario::run(&cfg, a),
+    };
+    ExitCode::from(code)
+}
+
+/// Loads the config: `--config`, else `config/plumbline.toml` if present, else defaults;
+/// then the `--set` overrides.
+pub fn load_config(path: Option<&PathBuf>, sets: &[String]) -> Result<Config, String> {
+    let default = PathBuf::from("config/plumbline.toml");
+    let chosen = match path {
+        Some(p) => Some(p.clone()),
+        None if default.exists() => Some(default),
+        None => None,
+    };
+    let text = match &chosen {
+        Some(p) => Some(std::fs::read_to_string(p).map_err(|e| format!("{}: {e}", p.display()))?),
+        None => None,
+    };
+    let name = chosen.as_ref().map(|p| p.display().to_string());
+    let file = match (&name, &text) {
+        (Some(n), Some(t)) => Some((n.as_str(), t.as_str())),
+        _ => None,
+    };
+    Config::load(file, sets).map_err(|e| e.to_string())
+}
+
+fn init_tracing(json: bool) {
+    use tracing_subscriber::EnvFilter;
+    let filter =
+        EnvFilter::try_from_env("PLUMBLINE_LOG").unwrap_or_else(|_| EnvFilter::new("warn"));
+    let b = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr);
+    let _ = if json {
+        b.json().try_init()
+    } else {
+        b.try_init()
+    };
+}

@@ -1,0 +1,205 @@
+//! `plumbline replay LOG [--report FILE] [--series FILE]`.
+
+use std::fmt::Write as _;
+use std::fs::File;
+use std::io::{BufWriter, Write};
+use std::path::PathBuf;
+
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+
+use crate::config::Config;
+use crate::metrics::Metric;
+use crate::msg::Role;
+use crate::replay::{replay, ReplayOptions};
+use crate::report::Report;
+
+/// Arguments.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// The log to replay (.jsonl or .plb).
+    pub log: PathBuf,
+    /// Write the JSON report here.
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+    /// Write the long-form series (t,metric,value) here.
+    #[arg(long, value_name = "FILE")]
+    pub series: Option<PathBuf>,
+    /// Print nothing on stdout.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// Runs the command.
+pub fn run(cfg: &Config, a: &Args) -> u8 {
+    let size = std::fs::metadata(&a.log).map(|m| m.len()).unwrap_or(0);
+    let bar = ProgressBar::with_draw_target(Some(size), ProgressDrawTarget::stderr());
+    if let Ok(style) =
+        ProgressStyle::with_template("{bar:40} {bytes}/{total_bytes} {bytes_per_sec} {eta}")
+    {
+        bar.set_style(style);
+    }
+    let progress = |b: u64| bar.set_position(b);
+    let mut series_file = match &a.series {
+        None => None,
+        Some(p) => match File::create(p) {
+            Ok(f) => Some(BufWriter::with_capacity(1 << 20, f)),
+            Err(e) => {
+                eprintln!("plumbline replay: {}: {e}", p.display());
+                return super::EXIT_INPUT;
+            }
+        },
+    };
+    let opts = ReplayOptions {
+        series: series_file.as_mut().map(|w| w as &mut dyn Write),
+        progress: &progress,
+        on_samples: None,
+    };
+    let out = match replay(cfg, &a.log, opts) {
+        Ok(o) => o,
+        Err(e) => {
+            bar.finish_and_clear();
+            eprintln!("plumbline replay: cannot read input: {e}");
+            return super::EXIT_INPUT;
+        }
+    };
+    bar.finish_and_clear();
+    if let Some(p) = &a.report {
+        if let Err(e) = std::fs::write(p, out.report.to_json()) {
+            eprintln!("plumbline replay: {}: {e}", p.display());
+            return super::EXIT_INPUT;
+        }
+    }
+    if !a.quiet {
+        print!("{}", summary(&out.report));
+    }
+    super::EXIT_OK
+}
+
+fn num(v: f64) -> String {
+    if v == 0.0 {
+        "0".into()
+    } else if v.abs() >= 1e4 || v.abs() < 1e-3 {
+        format!("{v:.3e}")
+    } else {
+        format!("{v:.4}")
+    }
+}
+
+fn counts(m: &std::collections::BTreeMap<&'static str, u64>) -> String {
+    m.iter()
+        .map(|(k, v)| format!("{k} {v}"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The readable summary printed on stdout.
+pub fn summary(r: &Report) -> String {
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        "plumbline replay of {} ({:.1} s of stamps)",
+        r.input, r.duration_s
+    );
+    let rec = &r.records;
+    let _ = write!(
+        s,
+        "records: {} accepted, {} rejected",
+        rec.accepted, rec.rejected
+    );
+    if rec.rejected > 0 {
+        let _ = write!(s, " ({})", counts(&rec.rejected_by_reason));
+    }
+    s.push('\n');
+    for b in rec.first_rejected.iter().take(5) {
+        let _ = writeln!(
+            s,
+            "  {}: {}{}",
+            b.at,
+            b.detail,
+            b.role.map(|r| format!(" [{r}]")).unwrap_or_default()
+        );
+    }
+    if rec.first_rejected.len() > 5 {
+        let _ = writeln!(s, "  ... {} more in the report", rec.rejected as usize - 5);
+    }
+    if let Some(t) = &rec.tail {
+        let _ = writeln!(
+            s,
+            "damaged tail at byte {}: {} (everything before it replayed)",
+            t.offset, t.reason
+        );
+    }
+    for (name, st) in [("tracking", &r.steps.tracking), ("ego", &r.steps.ego)] {
+        let _ = write!(
+            s,
+            "{name} steps: {} evaluated (exact {}, interpolated {}, fallback {}), {} skipped",
+            st.evaluated, st.exact, st.interpolated, st.fallback, st.skipped
+        );
+        if st.skipped > 0 {
+            let _ = write!(s, " ({})", counts(&st.skipped_by_reason));
+        }
+        s.push('\n');
+    }
+    let _ = writeln!(
+        s,
+        "\n{:<26} {:>8} {:>11} {:>11} {:>11}",
+        "metric", "count", "mean", "p95", "max"
+    );
+    for m in Metric::ALL {
+        if let Some(st) = r.metrics.get(m.name()) {
+            let _ = writeln!(
+                s,
+                "{:<26} {:>8} {:>11} {:>11} {:>11}",
+                m.name(),
+                st.count,
+                num(st.mean),
+                num(st.p95),
+                num(st.max)
+            );
+        }
+    }
+    if !r.totals.is_empty() {
+        let t: Vec<String> = r.totals.iter().map(|(k, v)| format!("{k} {v}")).collect();
+        let _ = writeln!(s, "totals: {}", t.join(", "));
+    }
+    if let Some(c) = &r.nees_consistency {
+        let _ = writeln!(
+            s,
+            "nees: mean {:.3} over {} pairs; 95% chi-square interval [{:.3}, {:.3}]: {}",
+            c.mean,
+            c.n,
+            c.lower,
+            c.upper,
+            if c.inside {
+                "consistent"
+            } else {
+                "inconsistent"
+            }
+        );
+    }
+    if !r.transport.is_empty() {
+        let _ = writeln!(
+            s,
+            "\n{:<20} {:>8} {:>10} {:>10} {:>10} {:>7} {:>7}",
+            "role", "messages", "lat p50 s", "lat p99 s", "gap p99 s", "errors", "regress"
+        );
+        for role in Role::ALL {
+            let Some(t) = r.transport.get(role.name()) else {
+                continue;
+            };
+            let f = |x: Option<f64>| x.map(num).unwrap_or_else(|| "-".into());
+            let _ = writeln!(
+                s,
+                "{:<20} {:>8} {:>10} {:>10} {:>10} {:>7} {:>7}",
+                role.name(),
+                t.messages,
+                f(t.latency_s.map(|x| x.p50)),
+                f(t.latency_s.map(|x| x.p99)),
+                f(t.interarrival_s.map(|x| x.p99)),
+                t.decode_errors,
+                t.stamp_regressions
+            );
+        }
+    }
+    s
+}

@@ -1,0 +1,571 @@
+//! Configuration in two stages.
+//!
+//! Stage one ([`RawConfig`]) is a serde struct that only checks what the user wrote: known
+//! keys, right types. Sources merge in order (built-in defaults, then the TOML file, then each
+//! `--set section.key=value`), and each source is checked as it is applied, so an error names
+//! the source (file or `--set`), the key path and what was expected. Stage two
+//! ([`Config`]) is built once everything has merged: durations become seconds and
+//! parameters pass the core's validating constructors.
+//!
+//! No I/O here: the caller reads the file and passes its text.
+
+use std::collections::BTreeMap;
+
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+use thiserror::Error;
+
+use crate::core::{AlignParams, EgoSource, TrackingParams};
+use crate::msg::{Limits, Role};
+
+/// A configuration error, naming where it came from.
+#[derive(Debug, Error)]
+#[error("{source_name}: key `{key}`: {expected}")]
+pub struct ConfigError {
+    /// The file name or the `--set` text.
+    pub source_name: String,
+    /// Dotted key path (empty for a whole-file syntax error).
+    pub key: String,
+    /// What was wrong and what was expected.
+    pub expected: String,
+}
+
+fn err(source: &str, key: &str, expected: impl Into<String>) -> ConfigError {
+    ConfigError {
+        source_name: source.to_string(),
+        key: key.to_string(),
+        expected: expected.into(),
+    }
+}
+
+/// Stage one: what the user may write. Every section and key is optional.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawConfig {
+    /// role name -> key expression
+    #[serde(default)]
+    pub roles: BTreeMap<String, String>,
+    /// `[tracking]`
+    #[serde(default)]
+    pub tracking: RawTracking,
+    /// `[time]`
+    #[serde(default)]
+    pub time: RawTime,
+    /// `[vehicle]`
+    #[serde(default)]
+    pub vehicle: RawVehicle,
+    /// `[http]`
+    #[serde(default)]
+    pub http: RawHttp,
+    /// `[limits]`
+    #[serde(default)]
+    pub limits: RawLimits,
+    /// `[report]`
+    #[serde(default)]
+    pub report: RawReport,
+    /// `[monitor]`
+    #[serde(default)]
+    pub monitor: RawMonitor,
+}
+
+/// `[tracking]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTracking {
+    /// cutoff c (m)
+    pub cutoff_m: Option<f64>,
+    /// order p
+    pub order: Option<f64>,
+    /// GOSPA alpha
+    pub alpha: Option<f64>,
+    /// evaluation radius (m), 0 = unlimited
+    pub region_m: Option<f64>,
+    /// which ego pose transforms ego-frame object sets
+    pub ego_frame_source: Option<String>,
+    /// forget a reference or estimate id unseen this long
+    pub forget_after: Option<toml::Value>,
+}
+
+/// `[time]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTime {
+    /// how long a step waits for a reference at or after its stamp
+    pub max_wait: Option<toml::Value>,
+    /// how old the last reference before a step may be on fallback
+    pub tolerance: Option<toml::Value>,
+    /// how much history the reference buffers keep behind the oldest open step
+    pub retain: Option<toml::Value>,
+}
+
+/// `[vehicle]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawVehicle {
+    /// footprint length (m)
+    pub length: Option<f64>,
+    /// footprint width (m)
+    pub width: Option<f64>,
+    /// distance from the pose origin back to the rear edge (m)
+    pub origin_to_rear: Option<f64>,
+}
+
+/// `[http]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawHttp {
+    /// listen address
+    pub listen: Option<String>,
+}
+
+/// `[limits]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawLimits {
+    /// largest object count in one message
+    pub max_objects: Option<i64>,
+    /// steps that may wait for their reference at once
+    pub pending_steps: Option<i64>,
+    /// messages kept per reference buffer
+    pub buffer_messages: Option<i64>,
+}
+
+/// `[report]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawReport {
+    /// values per metric kept for exact percentiles before switching to a histogram
+    pub exact_values: Option<i64>,
+    /// significant digits of the fallback histogram
+    pub histogram_digits: Option<i64>,
+}
+
+/// `[monitor]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawMonitor {
+    /// key prefix for the monitor's own publications
+    pub prefix: Option<String>,
+}
+
+/// Stage two: the resolved configuration.
+#[derive(Debug, Clone, Serialize)]
+pub struct Config {
+    /// key expression per role, indexed by [`Role::index`]
+    pub roles: Vec<(Role, String)>,
+    /// tracking parameters
+    pub tracking: TrackingParams,
+    /// alignment parameters
+    pub align: AlignParams,
+    /// ego footprint
+    pub vehicle: Vehicle,
+    /// HTTP listen address
+    pub http_listen: String,
+    /// message size limit
+    pub max_objects: usize,
+    /// report percentile settings
+    pub report: ReportParams,
+    /// key prefix for the monitor's publications
+    pub prefix: String,
+}
+
+/// The ego footprint rectangle relative to the pose origin.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct Vehicle {
+    /// length (m)
+    pub length: f64,
+    /// width (m)
+    pub width: f64,
+    /// origin to rear edge (m)
+    pub origin_to_rear: f64,
+}
+
+/// How the report computes percentiles.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct ReportParams {
+    /// values per metric kept for exact percentiles
+    pub exact_values: usize,
+    /// significant digits of the fallback histogram
+    pub histogram_digits: u8,
+}
+
+impl Config {
+    /// Built-in defaults (SPEC §7).
+    pub fn defaults() -> Config {
+        Config::build(&RawConfig::default(), "built-in defaults")
+            .expect("built-in defaults are valid")
+    }
+
+    /// Merges the sources and resolves. `file` is (name, text).
+    pub fn load(file: Option<(&str, &str)>, sets: &[String]) -> Result<Config, ConfigError> {
+        let mut table = toml::Table::new();
+        let mut last_source = "built-in defaults".to_string();
+        if let Some((name, text)) = file {
+            table = text
+                .parse::<toml::Table>()
+                .map_err(|e| err(name, "", format!("not valid TOML: {}", e.message().trim())))?;
+            check_raw(&table, name)?;
+            last_source = name.to_string();
+        }
+        for s in sets {
+            let label = format!("--set {s}");
+            apply_set(&mut table, s).map_err(|e| err(&label, &e.0, e.1))?;
+            check_raw(&table, &label)?;
+            last_source = label;
+        }
+        let raw = check_raw(&table, &last_source)?;
+        Config::build(&raw, &last_source)
+    }
+
+    /// Stage two: resolves a checked raw config.
+    pub fn build(raw: &RawConfig, source: &str) -> Result<Config, ConfigError> {
+        let mut roles = Vec::new();
+        for (name, key) in &raw.roles {
+            let role = Role::from_name(name).ok_or_else(|| {
+                let names: Vec<_> = Role::ALL.iter().map(|r| r.name()).collect();
+                err(
+                    source,
+                    &format!("roles.{name}"),
+                    format!("a role, one of {}", names.join(", ")),
+                )
+            })?;
+            if key.is_empty() {
+                return Err(err(
+                    source,
+                    &format!("roles.{name}"),
+                    "a non-empty key expression",
+                ));
+            }
+            roles.push((role, key.clone()));
+        }
+        for r in Role::ALL {
+            if !roles.iter().any(|(q, _)| *q == r) {
+                roles.push((r, format!("rig/{}", r.name())));
+            }
+        }
+        roles.sort();
+
+        let t = &raw.tracking;
+        let ego_source = match t.ego_frame_source.as_deref().unwrap_or("reference") {
+            "reference" => EgoSource::Reference,
+            "estimate" => EgoSource::Estimate,
+            other => {
+                return Err(err(
+                    source,
+                    "tracking.ego_frame_source",
+                    format!("\"reference\" or \"estimate\", found \"{other}\""),
+                ))
+            }
+        };
+        let forget_after = duration(source, "tracking.forget_after", &t.forget_after, 300.0)?;
+        let tracking = TrackingParams::try_new(
+            t.cutoff_m.unwrap_or(2.0),
+            t.order.unwrap_or(1.0),
+            t.alpha.unwrap_or(2.0),
+            t.region_m.unwrap_or(0.0),
+            ego_source,
+            forget_after,
+        )
+        .map_err(|e| err(source, &format!("tracking.{}", e.key), e.expected))?;
+
+        let tm = &raw.time;
+        let max_objects = count(source, "limits.max_objects", raw.limits.max_objects, 10_000)?;
+        let align = AlignParams::try_new(
+            duration(source, "time.max_wait", &tm.max_wait, 0.5)?,
+            duration(source, "time.tolerance", &tm.tolerance, 0.1)?,
+            duration(source, "time.retain", &tm.retain, 2.0)?,
+            count(
+                source,
+                "limits.pending_steps",
+                raw.limits.pending_steps,
+                4096,
+            )?,
+            count(
+                source,
+                "limits.buffer_messages",
+                raw.limits.buffer_messages,
+                4096,
+            )?,
+        )
+        .map_err(|e| err(source, &e.key, e.expected))?;
+
+        let v = &raw.vehicle;
+        let vehicle = Vehicle {
+            length: positive(source, "vehicle.length", v.length, 4.0)?,
+            width: positive(source, "vehicle.width", v.width, 1.8)?,
+            origin_to_rear: v.origin_to_rear.unwrap_or(1.0),
+        };
+        if !vehicle.origin_to_rear.is_finite() {
+            return Err(err(
+                source,
+                "vehicle.origin_to_rear",
+                "a finite number of metres",
+            ));
+        }
+        let http_listen = raw
+            .http
+            .listen
+            .clone()
+            .unwrap_or_else(|| "127.0.0.1:9464".into());
+        if http_listen.parse::<std::net::SocketAddr>().is_err() {
+            return Err(err(
+                source,
+                "http.listen",
+                "an address such as \"127.0.0.1:9464\"",
+            ));
+        }
+        let digits = count(
+            source,
+            "report.histogram_digits",
+            raw.report.histogram_digits,
+            3,
+        )?;
+        if !(1..=5).contains(&digits) {
+            return Err(err(
+                source,
+                "report.histogram_digits",
+                "a whole number from 1 to 5",
+            ));
+        }
+        let report = ReportParams {
+            exact_values: count(
+                source,
+                "report.exact_values",
+                raw.report.exact_values,
+                200_000,
+            )?,
+            histogram_digits: digits as u8,
+        };
+        let prefix = raw.monitor.prefix.clone().unwrap_or_else(|| "rig".into());
+        Ok(Config {
+            roles,
+            tracking,
+            align,
+            vehicle,
+            http_listen,
+            max_objects,
+            report,
+            prefix,
+        })
+    }
+
+    /// Message validation limits.
+    pub fn limits(&self) -> Limits {
+        Limits {
+            max_objects: self.max_objects,
+        }
+    }
+
+    /// The key expression bound to a role.
+    pub fn key_of(&self, role: Role) -> &str {
+        self.roles
+            .iter()
+            .find(|(r, _)| *r == role)
+            .map(|(_, k)| k.as_str())
+            .unwrap_or("")
+    }
+
+    /// The role bound to an exact key, if any.
+    pub fn role_of(&self, key: &str) -> Option<Role> {
+        self.roles.iter().find(|(_, k)| k == key).map(|(r, _)| *r)
+    }
+
+    /// SHA-256 of the resolved config's canonical JSON form.
+    pub fn digest(&self) -> String {
+        let json = serde_json::to_string(self).unwrap_or_default();
+        let mut h = Sha256::new();
+        h.update(json.as_bytes());
+        format!("sha256:{:x}", h.finalize())
+    }
+}
+
+fn check_raw(table: &toml::Table, source: &str) -> Result<RawConfig, ConfigError> {
+    let value = toml::Value::Table(table.clone());
+    serde_path_to_error::deserialize::<_, RawConfig>(value).map_err(|e| {
+        let key = e.path().to_string();
+        let inner = e.into_inner().to_string();
+        err(source, &key, inner.trim().to_string())
+    })
+}
+
+/// Applies `section.key=value`; the value is read as a TOML value, else as a string.
+fn apply_set(table: &mut toml::Table, s: &str) -> Result<(), (String, String)> {
+    let (path, value) = s
+        .split_once('=')
+        .ok_or_else(|| (s.to_string(), "the form section.key=value".to_string()))?;
+    let path = path.trim();
+    let parts: Vec<&str> = if let Some(rest) = path.strip_prefix("roles.") {
+        // Role names contain a slash and may be quoted: roles."estimate/objects"
+        vec!["roles", rest.trim_matches('"')]
+    } else {
+        path.split('.').collect()
+    };
+    if parts.len() != 2 || parts.iter().any(|p| p.is_empty()) {
+        return Err((path.to_string(), "the form section.key=value".to_string()));
+    }
+    let text = value.trim();
+    let parsed = format!("v = {text}")
+        .parse::<toml::Table>()
+        .ok()
+        .and_then(|mut t| t.remove("v"))
+        .unwrap_or_else(|| toml::Value::String(text.to_string()));
+    let section = table
+        .entry(parts[0].to_string())
+        .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+    match section {
+        toml::Value::Table(t) => {
+            t.insert(parts[1].to_string(), parsed);
+            Ok(())
+        }
+        _ => Err((parts[0].to_string(), "a table".to_string())),
+    }
+}
+
+/// Parses a duration string with a unit: `250us`, `500ms`, `10s`, `2m`, `1h`.
+pub fn parse_duration(s: &str) -> Option<f64> {
+    let s = s.trim();
+    let split = s.find(|c: char| c.is_ascii_alphabetic())?;
+    let (num, unit) = s.split_at(split);
+    let v: f64 = num.trim().parse().ok()?;
+    let scale = match unit.trim() {
+        "us" => 1e-6,
+        "ms" => 1e-3,
+        "s" => 1.0,
+        "m" | "min" => 60.0,
+        "h" => 3600.0,
+        _ => return None,
+    };
+    let out = v * scale;
+    (out.is_finite() && out >= 0.0).then_some(out)
+}
+
+/// Reads a duration key: a string with a unit.
+pub fn duration(
+    source: &str,
+    key: &str,
+    v: &Option<toml::Value>,
+    default: f64,
+) -> Result<f64, ConfigError> {
+    let bad = |found: String| {
+        err(
+            source,
+            key,
+            format!("a duration with a unit such as \"500ms\", \"10s\", \"2m\"; found {found}"),
+        )
+    };
+    match v {
+        None => Ok(default),
+        Some(toml::Value::String(s)) => parse_duration(s).ok_or_else(|| bad(format!("\"{s}\""))),
+        Some(other) => Err(bad(other.to_string())),
+    }
+}
+
+fn count(source: &str, key: &str, v: Option<i64>, default: usize) -> Result<usize, ConfigError> {
+    match v {
+        None => Ok(default),
+        Some(n) if n > 0 => Ok(n as usize),
+        Some(n) => Err(err(
+            source,
+            key,
+            format!("a positive whole number, found {n}"),
+        )),
+    }
+}
+
+fn positive(source: &str, key: &str, v: Option<f64>, default: f64) -> Result<f64, ConfigError> {
+    match v {
+        None => Ok(default),
+        Some(x) if x.is_finite() && x > 0.0 => Ok(x),
+        Some(x) => Err(err(
+            source,
+            key,
+            format!("a positive number of metres, found {x}"),
+        )),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn defaults_follow_the_spec() {
+        let c = Config::defaults();
+        assert_eq!(c.tracking.cutoff, 2.0);
+        assert_eq!(c.tracking.order, 1.0);
+        assert_eq!(c.tracking.alpha, 2.0);
+        assert_eq!(c.tracking.region, 0.0);
+        assert_eq!(c.align.max_wait, 0.5);
+        assert_eq!(c.align.tolerance, 0.1);
+        assert_eq!(c.key_of(Role::EstimateObjects), "rig/estimate/objects");
+        assert_eq!(c.http_listen, "127.0.0.1:9464");
+    }
+
+    #[test]
+    fn unknown_key_names_file_and_key() {
+        let e =
+            Config::load(Some(("site.toml", "[tracking]\ncutoff_mm = 3.0\n")), &[]).unwrap_err();
+        assert_eq!(e.source_name, "site.toml");
+        assert_eq!(e.key, "tracking.cutoff_mm");
+        assert!(e.expected.contains("cutoff_m"), "{e}");
+    }
+
+    #[test]
+    fn wrong_type_names_key() {
+        let e = Config::load(Some(("a.toml", "[tracking]\norder = \"two\"\n")), &[]).unwrap_err();
+        assert_eq!(e.key, "tracking.order");
+        assert!(
+            e.expected.contains("f64") || e.expected.contains("float"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn set_overrides_after_file_and_is_validated() {
+        let c = Config::load(
+            Some(("a.toml", "[tracking]\ncutoff_m = 3.0\n")),
+            &["tracking.cutoff_m=5".into(), "time.max_wait=250ms".into()],
+        )
+        .unwrap();
+        assert_eq!(c.tracking.cutoff, 5.0);
+        assert_eq!(c.align.max_wait, 0.25);
+        let e = Config::load(None, &["tracking.order=0.5".into()]).unwrap_err();
+        assert_eq!(e.source_name, "--set tracking.order=0.5");
+        assert_eq!(e.key, "tracking.order");
+        let e = Config::load(None, &["tracking.alpha=3".into()]).unwrap_err();
+        assert_eq!(e.key, "tracking.alpha");
+        let e = Config::load(None, &["time.tolerance=10".into()]).unwrap_err();
+        assert_eq!(e.key, "time.tolerance");
+        assert!(e.expected.contains("unit"));
+    }
+
+    #[test]
+    fn roles_rebind_and_reject_unknown() {
+        let c = Config::load(None, &["roles.\"estimate/objects\"=car7/tracks".into()]).unwrap();
+        assert_eq!(c.role_of("car7/tracks"), Some(Role::EstimateObjects));
+        let e = Config::load(
+            Some(("r.toml", "[roles]\n\"estimate/blobs\" = \"x\"\n")),
+            &[],
+        )
+        .unwrap_err();
+        assert_eq!(e.key, "roles.estimate/blobs");
+    }
+
+    #[test]
+    fn durations_parse_with_units() {
+        assert_eq!(parse_duration("500ms"), Some(0.5));
+        assert_eq!(parse_duration("2m"), Some(120.0));
+        assert_eq!(parse_duration("10 s"), Some(10.0));
+        assert_eq!(parse_duration("250us"), Some(0.00025));
+        assert_eq!(parse_duration("5"), None);
+        assert_eq!(parse_duration("-1s"), None);
+        assert_eq!(parse_duration("1 fortnight"), None);
+    }
+
+    #[test]
+    fn shipped_config_loads_and_equals_defaults() {
+        let text = include_str!("../config/plumbline.toml");
+        let c = Config::load(Some(("config/plumbline.toml", text)), &[]).unwrap();
+        assert_eq!(c.digest(), Config::defaults().digest());
+    }
+}

@@ -1,0 +1,379 @@
+//! Event-time alignment (SPEC §4): stamp-ordered buffers, the exact-match shortcut,
+//! per-id linear interpolation, and the fallback to the last message before a step.
+//!
+//! Pure data structures; the engine decides when a step has waited long enough.
+
+use std::collections::VecDeque;
+
+use crate::metrics::ego::lerp_angle;
+use crate::msg::{Frame, Object, ObjectSet, Pose};
+
+/// Two stamps closer than this are the same instant (1 µs).
+pub const EXACT_S: f64 = 1e-6;
+
+/// A bounded buffer of stamped items kept sorted by stamp.
+#[derive(Debug, Clone)]
+pub struct Timeline<T> {
+    items: VecDeque<(f64, T)>,
+    cap: usize,
+    /// Items dropped because the buffer was full.
+    pub evicted: u64,
+}
+
+/// Where a stamp falls in a timeline.
+#[derive(Debug)]
+pub enum Lookup<'a, T> {
+    /// An item within [`EXACT_S`] of the stamp.
+    Exact(&'a T),
+    /// The items just before and just after.
+    Between(&'a (f64, T), &'a (f64, T)),
+    /// Only items before the stamp; the latest of them.
+    OnlyBefore(&'a (f64, T)),
+    /// Only items after the stamp.
+    OnlyAfter,
+    /// Nothing buffered.
+    Empty,
+}
+
+/// Why a step could not be aligned.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Miss {
+    /// Nothing in the buffer.
+    NoReference,
+    /// The wait ended and the last message before the step is older than `tolerance`.
+    TooOld,
+    /// Messages exist only after the step.
+    NoneBefore,
+}
+
+/// How a value at a stamp was obtained.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum How {
+    /// Exact stamp match.
+    Exact,
+    /// Interpolated between two messages.
+    Interpolated,
+    /// The last message before, within tolerance.
+    Fallback,
+}
+
+impl<T> Timeline<T> {
+    /// An empty buffer holding at most `cap` items.
+    pub fn new(cap: usize) -> Timeline<T> {
+        Timeline {
+            items: VecDeque::new(),
+            cap: cap.max(2),
+            evicted: 0,
+        }
+    }
+
+    /// Inserts in stamp order (appends in the common case).
+    pub fn insert(&mut self, stamp: f64, item: T) {
+        if self.items.len() >= self.cap {
+            self.items.pop_front();
+            self.evicted += 1;
+        }
+        match self.items.back() {
+            Some((s, _)) if *s > stamp => {
+                let idx = self.items.partition_point(|(s, _)| *s <= stamp);
+                self.items.insert(idx, (stamp, item));
+            }
+            _ => self.items.push_back((stamp, item)),
+        }
+    }
+
+    /// Whether an item at or after `t` is buffered.
+    pub fn has_at_or_after(&self, t: f64) -> bool {
+        self.items.back().is_some_and(|(s, _)| *s >= t - EXACT_S)
+    }
+
+    /// Buffered items.
+    pub fn len(&self) -> usize {
+        self.items.len()
+    }
+
+    /// Whether nothing is buffered.
+    pub fn is_empty(&self) -> bool {
+        self.items.is_empty()
+    }
+
+    /// The latest item stamped at or before `t`.
+    pub fn latest_at_or_before(&self, t: f64) -> Option<&(f64, T)> {
+        let idx = self.items.partition_point(|(s, _)| *s <= t + EXACT_S);
+        idx.checked_sub(1).and_then(|i| self.items.get(i))
+    }
+
+    /// Where `t` falls.
+    pub fn lookup(&self, t: f64) -> Lookup<'_, T> {
+        if self.items.is_empty() {
+            return Lookup::Empty;
+        }
+        let idx = self.items.partition_point(|(s, _)| *s < t);
+        let before = idx.checked_sub(1).and_then(|i| self.items.get(i));
+        let after = self.items.get(idx);
+        let near_b = before.filter(|(s, _)| (s - t).abs() <= EXACT_S);
+        let near_a = after.filter(|(s, _)| (s - t).abs() <= EXACT_S);
+        match (near_b, near_a) {
+            (Some(b), Some(a)) => {
+                let pick = if (a.0 - t).abs() <= (t - b.0).abs() {
+                    a
+                } else {
+                    b
+                };
+                return Lookup::Exact(&pick.1);
+            }
+            (Some(x), None) | (None, Some(x)) => return Lookup::Exact(&x.1),
+            (None, None) => {}
+        }
+        match (before, after) {
+            (Some(b), Some(a)) => Lookup::Between(b, a),
+            (Some(b), None) => Lookup::OnlyBefore(b),
+            (None, Some(_)) => Lookup::OnlyAfter,
+            (None, None) => Lookup::Empty,
+        }
+    }
+
+    /// Drops items older than `t_min`, keeping the latest one at or before it.
+    pub fn prune(&mut self, t_min: f64) {
+        while self.items.len() >= 2 && self.items[1].0 <= t_min {
+            self.items.pop_front();
+        }
+    }
+}
+
+/// Resolves the value at `t`: exact, interpolated, or (once the wait is over) the last
+/// message before within `tolerance`.
+///
+/// Call it once the step is ready (a message at or after `t` is buffered) or its wait is
+/// over; the fallback applies only in the second case, when nothing after `t` exists.
+pub fn resolve<T>(tl: &Timeline<T>, t: f64, tolerance: f64) -> Result<Resolved<'_, T>, Miss> {
+    match tl.lookup(t) {
+        Lookup::Exact(x) => Ok(Resolved::One(x, How::Exact)),
+        Lookup::Between(b, a) => Ok(Resolved::Two(b, a)),
+        Lookup::OnlyBefore(b) if t - b.0 <= tolerance + EXACT_S => {
+            Ok(Resolved::One(&b.1, How::Fallback))
+        }
+        Lookup::OnlyBefore(_) => Err(Miss::TooOld),
+        Lookup::OnlyAfter => Err(Miss::NoneBefore),
+        Lookup::Empty => Err(Miss::NoReference),
+    }
+}
+
+/// The outcome of [`resolve`].
+#[derive(Debug)]
+pub enum Resolved<'a, T> {
+    /// One message used as is.
+    One(&'a T, How),
+    /// Two messages to interpolate between.
+    Two(&'a (f64, T), &'a (f64, T)),
+}
+
+/// Linear interpolation weight of `t` between `t0` and `t1`.
+pub fn weight(t0: f64, t1: f64, t: f64) -> f64 {
+    if t1 > t0 {
+        ((t - t0) / (t1 - t0)).clamp(0.0, 1.0)
+    } else {
+        0.0
+    }
+}
+
+/// Pose at `t` between two poses: x, y linear, yaw along the shorter arc.
+pub fn interpolate_pose(a: &Pose, b: &Pose, t: f64) -> Pose {
+    let w = weight(a.stamp, b.stamp, t);
+    Pose {
+        stamp: t,
+        x: a.x + (b.x - a.x) * w,
+        y: a.y + (b.y - a.y) * w,
+        yaw: lerp_angle(a.yaw, b.yaw, w),
+        v: match (a.v, b.v) {
+            (Some(va), Some(vb)) => Some(va + (vb - va) * w),
+            _ => a.v,
+        },
+        cov: a.cov,
+    }
+}
+
+/// A pose from a resolution.
+pub fn pose_at(r: Resolved<'_, Pose>, t: f64) -> (Pose, How) {
+    match r {
+        Resolved::One(p, how) => (p.clone(), how),
+        Resolved::Two(a, b) => (interpolate_pose(&a.1, &b.1, t), How::Interpolated),
+    }
+}
+
+fn lerp_opt(a: Option<f64>, b: Option<f64>, w: f64) -> Option<f64> {
+    match (a, b) {
+        (Some(x), Some(y)) => Some(x + (y - x) * w),
+        _ => a,
+    }
+}
+
+/// Per-id interpolation of two object sets at `t`: ids present in both, positions and
+/// velocities linear, yaw along the shorter arc; other fields from the earlier set.
+/// `index` is scratch space.
+pub fn interpolate_objects(
+    a: &[Object],
+    ta: f64,
+    b: &[Object],
+    tb: f64,
+    t: f64,
+    index: &mut Vec<(u64, usize)>,
+    out: &mut Vec<Object>,
+) {
+    let w = weight(ta, tb, t);
+    index.clear();
+    index.extend(b.iter().enumerate().map(|(i, o)| (o.id, i)));
+    index.sort_unstable();
+    for oa in a {
+        let Ok(k) = index.binary_search_by_key(&oa.id, |&(id, _)| id) else {
+            continue;
+        };
+        let ob = &b[index[k].1];
+        out.push(Object {
+            id: oa.id,
+            x: oa.x + (ob.x - oa.x) * w,
+            y: oa.y + (ob.y - oa.y) * w,
+            vx: lerp_opt(oa.vx, ob.vx, w),
+            vy: lerp_opt(oa.vy, ob.vy, w),
+            yaw: match (oa.yaw, ob.yaw) {
+                (Some(x), Some(y)) => Some(lerp_angle(x, y, w)),
+                _ => oa.yaw,
+            },
+            length: oa.length,
+            width: oa.width,
+            cov: oa.cov,
+            class: oa.class.clone(),
+        });
+    }
+}
+
+/// Moves an ego-frame object into the world frame of `ego`.
+pub fn to_world(o: &mut Object, ego: &Pose) {
+    let (s, c) = ego.yaw.sin_cos();
+    let (x, y) = (o.x, o.y);
+    o.x = ego.x + c * x - s * y;
+    o.y = ego.y + s * x + c * y;
+    if let (Some(vx), Some(vy)) = (o.vx, o.vy) {
+        o.vx = Some(c * vx - s * vy);
+        o.vy = Some(s * vx + c * vy);
+    }
+    if let Some(yaw) = o.yaw {
+        o.yaw = Some(crate::metrics::ego::wrap_angle(yaw + ego.yaw));
+    }
+    if let Some(p) = o.cov {
+        // R P R^T
+        let (a, b, cc, d) = (p[0], p[1], p[2], p[3]);
+        let r00 = c * a - s * cc;
+        let r01 = c * b - s * d;
+        let r10 = s * a + c * cc;
+        let r11 = s * b + c * d;
+        o.cov = Some([
+            r00 * c - r01 * s,
+            r00 * s + r01 * c,
+            r10 * c - r11 * s,
+            r10 * s + r11 * c,
+        ]);
+    }
+}
+
+/// Whether a set needs an ego pose to reach the world frame.
+pub fn is_ego_frame(set: &ObjectSet) -> bool {
+    set.frame == Some(Frame::Ego)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn constant_velocity_interpolation_is_exact() {
+        // Analytic case: x(t) = 1 + 2t, y(t) = -3 + 0.5t. Samples at 0.0 and 0.1; any t
+        // between must reproduce the line exactly (up to rounding).
+        let at = |t: f64| Object {
+            vx: Some(2.0),
+            vy: Some(0.5),
+            ..Object::at(7, 1.0 + 2.0 * t, -3.0 + 0.5 * t)
+        };
+        let (mut idx, mut out) = (Vec::new(), Vec::new());
+        for k in 1..10 {
+            let t = k as f64 * 0.01;
+            out.clear();
+            interpolate_objects(&[at(0.0)], 0.0, &[at(0.1)], 0.1, t, &mut idx, &mut out);
+            assert_eq!(out.len(), 1);
+            assert!((out[0].x - (1.0 + 2.0 * t)).abs() < 1e-12);
+            assert!((out[0].y - (-3.0 + 0.5 * t)).abs() < 1e-12);
+        }
+    }
+
+    #[test]
+    fn only_ids_in_both_are_interpolated() {
+        let (mut idx, mut out) = (Vec::new(), Vec::new());
+        let a = [Object::at(1, 0.0, 0.0), Object::at(2, 5.0, 5.0)];
+        let b = [Object::at(2, 6.0, 5.0), Object::at(3, 9.0, 9.0)];
+        interpolate_objects(&a, 0.0, &b, 1.0, 0.25, &mut idx, &mut out);
+        assert_eq!(out.len(), 1);
+        assert_eq!(out[0].id, 2);
+        assert_eq!(out[0].x, 5.25);
+    }
+
+    #[test]
+    fn lookup_exact_between_and_fallback() {
+        let mut tl = Timeline::new(16);
+        for (i, s) in [0.0, 0.1, 0.2].iter().enumerate() {
+            tl.insert(*s, i);
+        }
+        assert!(matches!(tl.lookup(0.1 + 5e-7), Lookup::Exact(1)));
+        assert!(matches!(tl.lookup(0.15), Lookup::Between((_, 1), (_, 2))));
+        assert!(matches!(tl.lookup(0.25), Lookup::OnlyBefore((_, 2))));
+        assert!(matches!(tl.lookup(-1.0), Lookup::OnlyAfter));
+        assert!(matches!(
+            resolve(&tl, 0.25, 0.1),
+            Ok(Resolved::One(2, How::Fallback))
+        ));
+        assert!(matches!(resolve(&tl, 0.35, 0.1), Err(Miss::TooOld)));
+        // Out-of-order insert keeps stamp order.
+        tl.insert(0.05, 9);
+        assert!(matches!(tl.lookup(0.07), Lookup::Between((_, 9), (_, 1))));
+        tl.prune(0.15);
+        assert_eq!(tl.len(), 2);
+    }
+
+    #[test]
+    fn pose_yaw_takes_shorter_arc_and_frames_rotate() {
+        let a = Pose {
+            stamp: 0.0,
+            x: 0.0,
+            y: 0.0,
+            yaw: 3.0,
+            v: None,
+            cov: None,
+        };
+        let b = Pose {
+            stamp: 1.0,
+            x: 2.0,
+            y: 0.0,
+            yaw: -3.0,
+            v: None,
+            cov: None,
+        };
+        let p = interpolate_pose(&a, &b, 0.5);
+        assert!((p.yaw.abs() - std::f64::consts::PI).abs() < 1e-12);
+        assert_eq!(p.x, 1.0);
+        let ego = Pose {
+            stamp: 0.0,
+            x: 10.0,
+            y: 5.0,
+            yaw: std::f64::consts::FRAC_PI_2,
+            v: None,
+            cov: None,
+        };
+        let mut o = Object {
+            cov: Some([4.0, 0.0, 0.0, 1.0]),
+            ..Object::at(1, 2.0, 0.0)
+        };
+        to_world(&mut o, &ego);
+        assert!((o.x - 10.0).abs() < 1e-12 && (o.y - 7.0).abs() < 1e-12);
+        let c = o.cov.unwrap();
+        assert!((c[0] - 1.0).abs() < 1e-12 && (c[3] - 4.0).abs() < 1e-12);
+    }
+}

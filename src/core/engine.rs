@@ -1,0 +1,550 @@
+//! The evaluation engine: messages in, metric samples out.
+//!
+//! [`Engine::push`] takes one accepted or rejected message with its arrival time;
+//! [`Engine::advance`] tells it the clock moved (a live timer); [`Engine::finish`] ends the
+//! stream. Each call appends [`Sample`]s to the caller's buffer. Steps wait for their
+//! reference by the rule of SPEC §4, with the wait measured on arrival times (`recv`, or the
+//! stamp when a record has none), so replay and live produce the same samples.
+
+use std::collections::{BTreeMap, VecDeque};
+
+use serde::Serialize;
+
+use super::align::{self, How, Miss, Resolved, Timeline};
+use super::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+use super::{AlignParams, EgoSource, TrackingParams};
+use crate::metrics::nees::{nees, NeesPool};
+use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
+use crate::metrics::transport::Transport;
+use crate::metrics::{ego, gospa, ospa, Metric};
+use crate::msg::{Msg, Object, ObjectSet, Pose, Role};
+
+/// One input to the engine.
+#[derive(Debug, Clone)]
+pub enum Input {
+    /// An accepted message on a role.
+    Message {
+        /// The role it arrived on.
+        role: Role,
+        /// Arrival time on the monitor's clock, if known.
+        recv: Option<f64>,
+        /// The message.
+        msg: Msg,
+    },
+    /// A message rejected while decoding or validating.
+    Rejected {
+        /// The role, when the key was bound.
+        role: Option<Role>,
+        /// Reason code.
+        reason: &'static str,
+    },
+    /// A message lost before decoding (full queue).
+    Dropped {
+        /// The role.
+        role: Role,
+    },
+}
+
+/// One metric value at one time.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Sample {
+    /// Step stamp (s).
+    pub t: f64,
+    /// Which metric.
+    pub metric: Metric,
+    /// The role, for transport metrics.
+    pub role: Option<Role>,
+    /// The value.
+    pub value: f64,
+}
+
+/// Evaluated and skipped steps of one kind.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct StepCounts {
+    /// Steps evaluated.
+    pub evaluated: u64,
+    /// Of those, with an exact reference stamp.
+    pub exact: u64,
+    /// Of those, interpolated.
+    pub interpolated: u64,
+    /// Of those, using the last reference before within tolerance.
+    pub fallback: u64,
+    /// Steps skipped.
+    pub skipped: u64,
+    /// Skipped steps by reason.
+    pub skipped_by_reason: BTreeMap<&'static str, u64>,
+}
+
+impl StepCounts {
+    fn skip(&mut self, reason: &'static str) {
+        self.skipped += 1;
+        *self.skipped_by_reason.entry(reason).or_insert(0) += 1;
+    }
+
+    fn hit(&mut self, how: How) {
+        self.evaluated += 1;
+        match how {
+            How::Exact => self.exact += 1,
+            How::Interpolated => self.interpolated += 1,
+            How::Fallback => self.fallback += 1,
+        }
+    }
+}
+
+/// Everything the engine counted.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct Counters {
+    /// Tracking steps.
+    pub tracking: StepCounts,
+    /// Ego steps.
+    pub ego: StepCounts,
+    /// Records accepted.
+    pub accepted: u64,
+    /// Records rejected.
+    pub rejected: u64,
+    /// Rejections by reason.
+    pub rejected_by_reason: BTreeMap<&'static str, u64>,
+    /// Steps resolved early because the pending queue was full.
+    pub pending_overflow: u64,
+    /// Earliest and latest message stamps.
+    pub first_stamp: Option<f64>,
+    /// Latest message stamp.
+    pub last_stamp: Option<f64>,
+    /// Object states accepted (estimate and reference).
+    pub object_states: u64,
+}
+
+fn miss_reason(m: Miss, what: &'static str) -> &'static str {
+    match (what, m) {
+        ("objects", Miss::NoReference) => "no_reference",
+        ("objects", Miss::TooOld) => "reference_too_old",
+        ("objects", Miss::NoneBefore) => "no_reference_before",
+        ("ego", Miss::NoReference) => "no_reference_ego",
+        ("ego", Miss::TooOld) => "reference_ego_too_old",
+        ("ego", Miss::NoneBefore) => "no_reference_ego_before",
+        (_, Miss::NoReference) => "no_frame_pose",
+        (_, Miss::TooOld) => "frame_pose_too_old",
+        (_, Miss::NoneBefore) => "no_frame_pose_before",
+    }
+}
+
+#[derive(Debug)]
+struct Pending<T> {
+    t: f64,
+    deadline: f64,
+    item: T,
+}
+
+/// The engine. See the module note.
+#[derive(Debug)]
+pub struct Engine {
+    tp: TrackingParams,
+    ap: AlignParams,
+    ref_objects: Timeline<ObjectSet>,
+    ref_ego: Timeline<Pose>,
+    est_ego: Timeline<Pose>,
+    tracks: VecDeque<Pending<ObjectSet>>,
+    egos: VecDeque<Pending<Pose>>,
+    now: f64,
+    last_track_t: Option<f64>,
+    last_ego_t: Option<f64>,
+    transport: [Transport; 6],
+    counters: Counters,
+    tracklife: TrackLife,
+    tl_step: TrackLifeStep,
+    nees_pool: NeesPool,
+    solver: ShortestPath,
+    scratch: MatchScratch,
+    xs: Vec<Object>,
+    ys: Vec<Object>,
+    xp: Vec<[f64; 2]>,
+    yp: Vec<[f64; 2]>,
+    index: Vec<(u64, usize)>,
+    ids: (Vec<u64>, Vec<u64>, Vec<(u64, u64)>),
+}
+
+impl Engine {
+    /// A new engine.
+    pub fn new(tp: TrackingParams, ap: AlignParams) -> Engine {
+        Engine {
+            tp,
+            ap,
+            ref_objects: Timeline::new(ap.buffer_messages),
+            ref_ego: Timeline::new(ap.buffer_messages),
+            est_ego: Timeline::new(ap.buffer_messages),
+            tracks: VecDeque::new(),
+            egos: VecDeque::new(),
+            now: f64::NEG_INFINITY,
+            last_track_t: None,
+            last_ego_t: None,
+            transport: Default::default(),
+            counters: Counters::default(),
+            tracklife: TrackLife::new(tp.forget_after),
+            tl_step: TrackLifeStep::default(),
+            nees_pool: NeesPool::default(),
+            solver: ShortestPath::default(),
+            scratch: MatchScratch::default(),
+            xs: Vec::new(),
+            ys: Vec::new(),
+            xp: Vec::new(),
+            yp: Vec::new(),
+            index: Vec::new(),
+            ids: Default::default(),
+        }
+    }
+
+    /// What has been counted so far.
+    pub fn counters(&self) -> &Counters {
+        &self.counters
+    }
+
+    /// Per-role transport state.
+    pub fn transport(&self, role: Role) -> &Transport {
+        &self.transport[role.index()]
+    }
+
+    /// Pooled NEES of the run so far.
+    pub fn nees_pool(&self) -> &NeesPool {
+        &self.nees_pool
+    }
+
+    /// The latest arrival time seen.
+    pub fn now(&self) -> f64 {
+        self.now
+    }
+
+    /// Steps waiting for their reference.
+    pub fn pending(&self) -> usize {
+        self.tracks.len() + self.egos.len()
+    }
+
+    /// Feeds one input.
+    pub fn push(&mut self, input: Input, out: &mut Vec<Sample>) {
+        match input {
+            Input::Rejected { role, reason } => {
+                self.counters.rejected += 1;
+                *self.counters.rejected_by_reason.entry(reason).or_insert(0) += 1;
+                if let Some(r) = role {
+                    self.transport[r.index()].decode_errors += 1;
+                }
+            }
+            Input::Dropped { role } => self.transport[role.index()].dropped += 1,
+            Input::Message { role, recv, msg } => self.message(role, recv, msg, out),
+        }
+    }
+
+    fn message(&mut self, role: Role, recv: Option<f64>, msg: Msg, out: &mut Vec<Sample>) {
+        let stamp = msg.stamp();
+        let arrival = recv.unwrap_or(stamp);
+        self.advance(arrival, out);
+        let c = &mut self.counters;
+        c.accepted += 1;
+        c.object_states += msg.object_count() as u64;
+        c.first_stamp = Some(c.first_stamp.map_or(stamp, |s| s.min(stamp)));
+        c.last_stamp = Some(c.last_stamp.map_or(stamp, |s| s.max(stamp)));
+        let ts = self.transport[role.index()].accept(stamp, recv);
+        if let Some(v) = ts.latency {
+            out.push(Sample {
+                t: stamp,
+                metric: Metric::Latency,
+                role: Some(role),
+                value: v,
+            });
+        }
+        if let Some(v) = ts.interarrival {
+            out.push(Sample {
+                t: stamp,
+                metric: Metric::Interarrival,
+                role: Some(role),
+                value: v,
+            });
+        }
+        let deadline = arrival + self.ap.max_wait;
+        match (role, msg) {
+            (Role::ReferenceObjects, Msg::Objects(set)) => self.ref_objects.insert(stamp, set),
+            (Role::EstimateObjects, Msg::Objects(set)) => {
+                if self.tracks.len() >= self.ap.pending_steps {
+                    self.counters.pending_overflow += 1;
+                    if let Some(p) = self.tracks.pop_front() {
+                        self.eval_tracking(p.t, &p.item, out);
+                    }
+                }
+                self.tracks.push_back(Pending {
+                    t: stamp,
+                    deadline,
+                    item: set,
+                });
+            }
+            (Role::ReferenceEgo, Msg::Pose(p)) => self.ref_ego.insert(stamp, p),
+            (Role::EstimateEgo, Msg::Pose(p)) => {
+                self.est_ego.insert(stamp, p.clone());
+                if self.egos.len() >= self.ap.pending_steps {
+                    self.counters.pending_overflow += 1;
+                    if let Some(q) = self.egos.pop_front() {
+                        self.eval_ego(q.t, &q.item, out);
+                    }
+                }
+                self.egos.push_back(Pending {
+                    t: stamp,
+                    deadline,
+                    item: p,
+                });
+            }
+            // Paths and obstacle maps are accepted and counted; their metrics live elsewhere.
+            _ => {}
+        }
+        self.drain(false, out);
+    }
+
+    /// The clock reached `now`: steps whose wait is over are resolved.
+    pub fn advance(&mut self, now: f64, out: &mut Vec<Sample>) {
+        if now > self.now {
+            self.now = now;
+        }
+        self.drain(false, out);
+    }
+
+    /// End of input: every waiting step is resolved as if its wait ran out.
+    pub fn finish(&mut self, out: &mut Vec<Sample>) {
+        self.drain(true, out);
+        let t = self.tracklife.last_t();
+        for d in self.tracklife.finish() {
+            out.push(Sample {
+                t,
+                metric: Metric::DeletionDelay,
+                role: None,
+                value: d,
+            });
+        }
+    }
+
+    fn tracking_ready(&self, p: &Pending<ObjectSet>) -> bool {
+        let t = p.t;
+        if !self.ref_objects.has_at_or_after(t) {
+            return false;
+        }
+        if self.tp.region > 0.0 && !self.ref_ego.has_at_or_after(t) {
+            return false;
+        }
+        if align::is_ego_frame(&p.item) && !self.frame_source().has_at_or_after(t) {
+            return false;
+        }
+        true
+    }
+
+    fn frame_source(&self) -> &Timeline<Pose> {
+        match self.tp.ego_source {
+            EgoSource::Reference => &self.ref_ego,
+            EgoSource::Estimate => &self.est_ego,
+        }
+    }
+
+    fn drain(&mut self, all: bool, out: &mut Vec<Sample>) {
+        while let Some(p) = self.tracks.front() {
+            if !(all || p.deadline < self.now || self.tracking_ready(p)) {
+                break;
+            }
+            let p = self.tracks.pop_front().expect("front exists");
+            self.eval_tracking(p.t, &p.item, out);
+        }
+        while let Some(p) = self.egos.front() {
+            if !(all || p.deadline < self.now || self.ref_ego.has_at_or_after(p.t)) {
+                break;
+            }
+            let p = self.egos.pop_front().expect("front exists");
+            self.eval_ego(p.t, &p.item, out);
+        }
+        self.prune();
+    }
+
+    fn prune(&mut self) {
+        let mut low = f64::INFINITY;
+        for t in [
+            self.tracks.front().map(|p| p.t),
+            self.egos.front().map(|p| p.t),
+        ]
+        .into_iter()
+        .flatten()
+        .chain(self.last_track_t)
+        .chain(self.last_ego_t)
+        {
+            low = low.min(t);
+        }
+        if low.is_finite() {
+            let h = low - self.ap.retain;
+            self.ref_objects.prune(h);
+            self.ref_ego.prune(h - self.ap.tolerance);
+            self.est_ego.prune(h - self.ap.tolerance);
+        }
+    }
+
+    /// Pose of the frame source at `t`, by the alignment rule.
+    fn frame_pose(&self, t: f64) -> Result<Pose, &'static str> {
+        align::resolve(self.frame_source(), t, self.ap.tolerance)
+            .map(|r| align::pose_at(r, t).0)
+            .map_err(|m| miss_reason(m, "frame"))
+    }
+
+    fn world_objects(
+        &self,
+        set: &ObjectSet,
+        at: f64,
+        out: &mut Vec<Object>,
+    ) -> Result<(), &'static str> {
+        let start = out.len();
+        out.extend(set.objects.iter().cloned());
+        if align::is_ego_frame(set) {
+            let pose = self.frame_pose(at)?;
+            for o in &mut out[start..] {
+                align::to_world(o, &pose);
+            }
+        }
+        Ok(())
+    }
+
+    fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
+        let mut xs = std::mem::take(&mut self.xs);
+        xs.clear();
+        let res = match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
+            Err(m) => Err(miss_reason(m, "objects")),
+            Ok(Resolved::One(set, how)) => self.world_objects(set, set.stamp, &mut xs).map(|_| how),
+            Ok(Resolved::Two(a, b)) => {
+                let (mut wa, mut wb) = (Vec::new(), Vec::new());
+                let r = self
+                    .world_objects(&a.1, a.0, &mut wa)
+                    .and_then(|_| self.world_objects(&b.1, b.0, &mut wb));
+                r.map(|_| {
+                    align::interpolate_objects(&wa, a.0, &wb, b.0, t, &mut self.index, &mut xs);
+                    How::Interpolated
+                })
+            }
+        };
+        self.xs = xs;
+        res
+    }
+
+    fn eval_tracking(&mut self, t: f64, est: &ObjectSet, out: &mut Vec<Sample>) {
+        self.last_track_t = Some(t);
+        let how = match self.reference_at(t) {
+            Ok(h) => h,
+            Err(reason) => return self.counters.tracking.skip(reason),
+        };
+        let mut ys = std::mem::take(&mut self.ys);
+        ys.clear();
+        let frame = self.world_objects(est, t, &mut ys);
+        self.ys = ys;
+        if let Err(reason) = frame {
+            return self.counters.tracking.skip(reason);
+        }
+        if self.tp.region > 0.0 {
+            let ego = match align::resolve(&self.ref_ego, t, self.ap.tolerance) {
+                Ok(r) => align::pose_at(r, t).0,
+                Err(m) => return self.counters.tracking.skip(miss_reason(m, "ego")),
+            };
+            let (r, r_est) = (self.tp.region, self.tp.region + self.tp.cutoff);
+            let near = |o: &Object, lim: f64| (o.x - ego.x).hypot(o.y - ego.y) <= lim;
+            self.xs.retain(|o| near(o, r));
+            self.ys.retain(|o| near(o, r_est));
+        }
+        self.counters.tracking.hit(how);
+        self.score(t, out);
+    }
+
+    fn score(&mut self, t: f64, out: &mut Vec<Sample>) {
+        let (c, p, alpha) = (self.tp.cutoff, self.tp.order, self.tp.alpha);
+        self.xp.clear();
+        self.xp.extend(self.xs.iter().map(|o| [o.x, o.y]));
+        self.yp.clear();
+        self.yp.extend(self.ys.iter().map(|o| [o.x, o.y]));
+        let m = match_with_cutoff(
+            &self.xp,
+            &self.yp,
+            c,
+            p,
+            true,
+            &mut self.solver,
+            &mut self.scratch,
+        );
+        let (nx, ny) = (self.xp.len(), self.yp.len());
+        let g = gospa::from_matching(nx, ny, &m, c, p, alpha);
+        let mut push = |metric, value| {
+            out.push(Sample {
+                t,
+                metric,
+                role: None,
+                value,
+            })
+        };
+        push(Metric::Gospa, g.total);
+        if alpha == 2.0 {
+            push(Metric::GospaLocalization, g.localization);
+            push(Metric::GospaMissed, g.missed);
+            push(Metric::GospaFalse, g.false_);
+            push(Metric::AssignedCount, g.assigned as f64);
+            push(Metric::MissedCount, g.missed_count as f64);
+            push(Metric::FalseCount, g.false_count as f64);
+        }
+        push(Metric::Ospa, ospa::from_matching(nx, ny, &m, c, p));
+
+        let (mut sum, mut n) = (0.0, 0u32);
+        for &(i, j, _) in &m.pairs {
+            if let Some(cov) = &self.ys[j].cov {
+                if let Some(v) = nees(self.yp[j], self.xp[i], cov) {
+                    self.nees_pool.add(v);
+                    sum += v;
+                    n += 1;
+                }
+            }
+        }
+        if n > 0 {
+            push(Metric::Nees, sum / n as f64);
+        }
+
+        let (refs, ests, pairs) = &mut self.ids;
+        refs.clear();
+        refs.extend(self.xs.iter().map(|o| o.id));
+        ests.clear();
+        ests.extend(self.ys.iter().map(|o| o.id));
+        pairs.clear();
+        pairs.extend(
+            m.pairs
+                .iter()
+                .map(|&(i, j, _)| (self.xs[i].id, self.ys[j].id)),
+        );
+        self.tracklife.step(t, refs, ests, pairs, &mut self.tl_step);
+        push(Metric::TrackSwitches, self.tl_step.switches as f64);
+        push(Metric::Fragmentations, self.tl_step.fragmentations as f64);
+        for &d in &self.tl_step.establishment {
+            push(Metric::EstablishmentDelay, d);
+        }
+        for &d in &self.tl_step.deletion {
+            push(Metric::DeletionDelay, d);
+        }
+    }
+
+    fn eval_ego(&mut self, t: f64, est: &Pose, out: &mut Vec<Sample>) {
+        self.last_ego_t = Some(t);
+        let (reference, how) = match align::resolve(&self.ref_ego, t, self.ap.tolerance) {
+            Ok(r) => align::pose_at(r, t),
+            Err(m) => return self.counters.ego.skip(miss_reason(m, "ego")),
+        };
+        self.counters.ego.hit(how);
+        let e = ego::ego_error(
+            [est.x, est.y, est.yaw],
+            [reference.x, reference.y, reference.yaw],
+        );
+        for (metric, value) in [
+            (Metric::EgoPositionError, e.position),
+            (Metric::EgoHeadingError, e.heading),
+            (Metric::EgoLongitudinalError, e.longitudinal),
+            (Metric::EgoLateralError, e.lateral),
+        ] {
+            out.push(Sample {
+                t,
+                metric,
+                role: None,
+                value,
+            });
+        }
+    }
+}

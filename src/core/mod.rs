@@ -1,0 +1,167 @@
+//! The pure core: time alignment, assignment and the evaluation engine.
+//!
+//! Nothing here does I/O, spawns, or reads a clock: every update carries its event time.
+//! Live (zenoh) and replay (files) sources feed the same [`engine::Engine`] calls, so
+//! they give the same numbers for the same input.
+
+pub mod align;
+pub mod assign;
+pub mod engine;
+
+use serde::Serialize;
+use thiserror::Error;
+
+pub use engine::{Engine, Input, Sample};
+
+/// A bad parameter, with the config key it came from.
+#[derive(Debug, Clone, Error, PartialEq)]
+#[error("{key}: {expected}")]
+pub struct ParamError {
+    /// Config key (relative to its section for tracking, full path otherwise).
+    pub key: String,
+    /// What was expected.
+    pub expected: String,
+}
+
+fn perr(key: &str, expected: &str) -> ParamError {
+    ParamError {
+        key: key.to_string(),
+        expected: expected.to_string(),
+    }
+}
+
+/// Which ego pose transforms ego-frame object sets.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum EgoSource {
+    /// `reference/ego`
+    Reference,
+    /// `estimate/ego`
+    Estimate,
+}
+
+/// Tracking evaluation parameters (SPEC §5, §7 `[tracking]`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct TrackingParams {
+    /// cutoff c (m), > 0
+    pub cutoff: f64,
+    /// order p, >= 1
+    pub order: f64,
+    /// alpha in (0, 2]
+    pub alpha: f64,
+    /// evaluation radius (m); 0 = unlimited
+    pub region: f64,
+    /// ego pose source for ego-frame sets
+    pub ego_source: EgoSource,
+    /// forget ids unseen this long (s)
+    pub forget_after: f64,
+}
+
+impl TrackingParams {
+    /// Validating constructor.
+    pub fn try_new(
+        cutoff: f64,
+        order: f64,
+        alpha: f64,
+        region: f64,
+        ego_source: EgoSource,
+        forget_after: f64,
+    ) -> Result<TrackingParams, ParamError> {
+        if !(cutoff.is_finite() && cutoff > 0.0) {
+            return Err(perr("cutoff_m", "a positive number of metres"));
+        }
+        if !(order.is_finite() && order >= 1.0) {
+            return Err(perr("order", "a number >= 1"));
+        }
+        if !(alpha > 0.0 && alpha <= 2.0) {
+            return Err(perr("alpha", "a number in (0, 2]"));
+        }
+        if !(region.is_finite() && region >= 0.0) {
+            return Err(perr("region_m", "a number of metres >= 0 (0 = unlimited)"));
+        }
+        if forget_after.is_nan() || forget_after <= 0.0 {
+            return Err(perr("forget_after", "a positive duration"));
+        }
+        Ok(TrackingParams {
+            cutoff,
+            order,
+            alpha,
+            region,
+            ego_source,
+            forget_after,
+        })
+    }
+}
+
+impl Default for TrackingParams {
+    fn default() -> Self {
+        TrackingParams {
+            cutoff: 2.0,
+            order: 1.0,
+            alpha: 2.0,
+            region: 0.0,
+            ego_source: EgoSource::Reference,
+            forget_after: 300.0,
+        }
+    }
+}
+
+/// Time alignment parameters (SPEC §4).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct AlignParams {
+    /// How long a step waits for a reference at or after its stamp (s).
+    pub max_wait: f64,
+    /// How old the last reference before a step may be on fallback (s).
+    pub tolerance: f64,
+    /// History kept behind the oldest open step (s).
+    pub retain: f64,
+    /// Steps that may wait at once; beyond, the oldest is resolved early and counted.
+    pub pending_steps: usize,
+    /// Messages kept per buffer; beyond, the oldest is dropped and counted.
+    pub buffer_messages: usize,
+}
+
+impl AlignParams {
+    /// Validating constructor.
+    pub fn try_new(
+        max_wait: f64,
+        tolerance: f64,
+        retain: f64,
+        pending_steps: usize,
+        buffer_messages: usize,
+    ) -> Result<AlignParams, ParamError> {
+        if !(max_wait.is_finite() && max_wait >= 0.0) {
+            return Err(perr("time.max_wait", "a duration >= 0"));
+        }
+        if !(tolerance.is_finite() && tolerance >= 0.0) {
+            return Err(perr("time.tolerance", "a duration >= 0"));
+        }
+        if !(retain.is_finite() && retain >= 0.0) {
+            return Err(perr("time.retain", "a duration >= 0"));
+        }
+        if pending_steps == 0 {
+            return Err(perr("limits.pending_steps", "at least 1"));
+        }
+        if buffer_messages < 2 {
+            return Err(perr("limits.buffer_messages", "at least 2"));
+        }
+        Ok(AlignParams {
+            max_wait,
+            tolerance,
+            retain,
+            pending_steps,
+            buffer_messages,
+        })
+    }
+}
+
+impl Default for AlignParams {
+    fn default() -> Self {
+        AlignParams {
+            max_wait: 0.5,
+            tolerance: 0.1,
+            retain: 2.0,
+            pending_steps: 4096,
+            buffer_messages: 4096,
+        }
+    }
+}

@@ -1,0 +1,25 @@
+//! plumbline: a referee that runs beside an autonomy stack.
+//!
+//! The crate is split into a pure core and thin edges:
+//! - [`msg`]: the messages of the interchange contract and their validation (no I/O);
+//! - [`config`]: two-stage configuration (no I/O; the caller passes file text);
+//! - [`core`]: time alignment, assignment and the evaluation engine (no I/O, no clock);
+//! - [`metrics`]: one module per metric family (pure);
+//! - [`stats`]: run statistics with bounded memory (pure);
+//! - [`report`]: the JSON report and the series rows (pure formatting);
+//! - [`scenario`]: the demo-scenario generator (pure, seeded);
+//! - [`logio`]: log readers and writers (file I/O edge);
+//! - [`replay`]: drives the engine from a log (file I/O edge, two threads);
+//! - [`cli`]: the command line (edge).
+#![deny(missing_docs)]
+
+pub mod cli;
+pub mod config;
+pub mod core;
+pub mod logio;
+pub mod metrics;
+pub mod msg;
+pub mod replay;
+pub mod report;
+pub mod scenario;
+pub mod stats;

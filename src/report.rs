@@ -1,0 +1,336 @@
+//! The run report (SPEC §6) and the long-form series rows. Pure formatting: the caller
+//! writes the text where it wants.
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use crate::config::Config;
+use crate::core::engine::{Counters, Engine, Sample, StepCounts};
+use crate::logio::{Position, Tail};
+use crate::metrics::nees::Consistency;
+use crate::metrics::Metric;
+use crate::msg::Role;
+use crate::stats::{Stats, Summary};
+
+const SLOTS: usize = Role::ALL.len() + 1;
+
+/// Per-metric (and per-role) run statistics.
+#[derive(Debug, Clone)]
+pub struct RunStats {
+    slots: Vec<Option<Summary>>,
+    cap: usize,
+    digits: u8,
+}
+
+impl RunStats {
+    /// Empty statistics with the config's percentile settings.
+    pub fn new(cfg: &Config) -> RunStats {
+        RunStats {
+            slots: vec![None; Metric::ALL.len() * SLOTS],
+            cap: cfg.report.exact_values,
+            digits: cfg.report.histogram_digits,
+        }
+    }
+
+    fn slot(metric: Metric, role: Option<Role>) -> usize {
+        metric as usize * SLOTS + role.map_or(0, |r| r.index() + 1)
+    }
+
+    /// Adds samples.
+    pub fn add(&mut self, samples: &[Sample]) {
+        for s in samples {
+            let (cap, digits) = (self.cap, self.digits);
+            self.slots[Self::slot(s.metric, s.role)]
+                .get_or_insert_with(|| Summary::new(cap, digits))
+                .add(s.value);
+        }
+    }
+
+    /// Statistics of one metric, if it has values.
+    pub fn get(&self, metric: Metric, role: Option<Role>) -> Option<Stats> {
+        self.slots[Self::slot(metric, role)]
+            .as_ref()
+            .and_then(Summary::stats)
+    }
+
+    /// Whether every percentile so far is exact.
+    pub fn all_exact(&self) -> bool {
+        self.slots.iter().flatten().all(Summary::is_exact)
+    }
+}
+
+/// One rejected record, for the report and the summary.
+#[derive(Debug, Clone, Serialize)]
+pub struct BadRecord {
+    /// `line N` or `byte N`.
+    pub at: String,
+    /// Role, when known.
+    pub role: Option<&'static str>,
+    /// Reason code.
+    pub reason: &'static str,
+    /// Detail.
+    pub detail: String,
+}
+
+impl BadRecord {
+    /// Builds one from a reader's item.
+    pub fn new(pos: Position, role: Option<Role>, reason: &crate::msg::Reject) -> BadRecord {
+        BadRecord {
+            at: pos.to_string(),
+            role: role.map(Role::name),
+            reason: reason.code(),
+            detail: reason.to_string(),
+        }
+    }
+}
+
+/// Transport section of one role.
+#[derive(Debug, Clone, Serialize)]
+pub struct RoleTransport {
+    /// Messages accepted.
+    pub messages: u64,
+    /// Rejected while decoding.
+    pub decode_errors: u64,
+    /// Dropped by a full queue.
+    pub dropped: u64,
+    /// Stamps older than the previous one.
+    pub stamp_regressions: u64,
+    /// recv - stamp.
+    pub latency_s: Option<Stats>,
+    /// Time between arrivals.
+    pub interarrival_s: Option<Stats>,
+}
+
+/// Steps section.
+#[derive(Debug, Clone, Serialize)]
+pub struct Steps {
+    /// Tracking steps (one per `estimate/objects` message).
+    pub tracking: StepCounts,
+    /// Ego steps (one per `estimate/ego` message).
+    pub ego: StepCounts,
+    /// Steps resolved early because too many were waiting.
+    pub pending_overflow: u64,
+}
+
+/// Records section.
+#[derive(Debug, Clone, Serialize)]
+pub struct Records {
+    /// Accepted.
+    pub accepted: u64,
+    /// Rejected.
+    pub rejected: u64,
+    /// Rejections by reason.
+    pub rejected_by_reason: BTreeMap<&'static str, u64>,
+    /// The first rejected records, with where and why.
+    pub first_rejected: Vec<BadRecord>,
+    /// Object states accepted.
+    pub object_states: u64,
+    /// A damaged binary tail.
+    pub tail: Option<Tail>,
+}
+
+/// How percentiles were computed.
+#[derive(Debug, Clone, Serialize)]
+pub struct PercentileMethod {
+    /// `exact-linear` or `hdr`.
+    pub method: &'static str,
+    /// Exact values kept per metric before the histogram takes over.
+    pub exact_values: usize,
+    /// Histogram significant digits.
+    pub histogram_digits: u8,
+}
+
+/// An alert event (filled by the rules engine).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct AlertEvent {
+    /// Rule name.
+    pub rule: String,
+    /// `raised` or `cleared`.
+    pub kind: &'static str,
+    /// Event time (s).
+    pub t: f64,
+    /// The value.
+    pub value: f64,
+    /// The threshold.
+    pub threshold: f64,
+    /// Severity.
+    pub severity: String,
+}
+
+/// A rule's verdict.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Verdict {
+    /// Rule name.
+    pub rule: String,
+    /// `pass` or `fail`.
+    pub verdict: &'static str,
+    /// Worst value seen.
+    pub worst: Option<f64>,
+    /// Threshold.
+    pub threshold: f64,
+    /// Severity.
+    pub severity: String,
+}
+
+/// The report of one run.
+#[derive(Debug, Clone, Serialize)]
+pub struct Report {
+    /// `plumbline`.
+    pub tool: &'static str,
+    /// Crate version.
+    pub version: &'static str,
+    /// Digest of the resolved config.
+    pub config_digest: String,
+    /// Digest of the input bytes.
+    pub input_digest: String,
+    /// Input file.
+    pub input: String,
+    /// Latest minus earliest message stamp (s).
+    pub duration_s: f64,
+    /// Steps.
+    pub steps: Steps,
+    /// Records.
+    pub records: Records,
+    /// Per metric statistics.
+    pub metrics: BTreeMap<&'static str, Stats>,
+    /// Run totals of count metrics.
+    pub totals: BTreeMap<&'static str, f64>,
+    /// Pooled NEES consistency test.
+    pub nees_consistency: Option<Consistency>,
+    /// Per role transport.
+    pub transport: BTreeMap<&'static str, RoleTransport>,
+    /// Percentile method.
+    pub percentiles: PercentileMethod,
+    /// Alert events.
+    pub alerts: Vec<AlertEvent>,
+    /// Rule verdicts.
+    pub verdicts: Vec<Verdict>,
+}
+
+/// What the report is built from besides the engine.
+#[derive(Debug, Clone, Default)]
+pub struct RunInputs {
+    /// Input path.
+    pub input: String,
+    /// Input digest.
+    pub input_digest: String,
+    /// First rejected records.
+    pub first_rejected: Vec<BadRecord>,
+    /// Damaged tail.
+    pub tail: Option<Tail>,
+}
+
+impl Report {
+    /// Builds the report.
+    pub fn build(cfg: &Config, engine: &Engine, stats: &RunStats, inputs: RunInputs) -> Report {
+        let c: &Counters = engine.counters();
+        let mut metrics = BTreeMap::new();
+        let mut totals = BTreeMap::new();
+        // With alpha != 2 the engine emits only the gospa total (SPEC §6), so the parts
+        // and counts are absent here too.
+        for m in Metric::ALL {
+            if matches!(m, Metric::Latency | Metric::Interarrival) {
+                continue;
+            }
+            if let Some(s) = stats.get(m, None) {
+                metrics.insert(m.name(), s);
+                if m.is_count() {
+                    totals.insert(m.name(), s.sum);
+                }
+            }
+        }
+        let mut transport = BTreeMap::new();
+        for r in Role::ALL {
+            let t = engine.transport(r);
+            if t.messages == 0 && t.decode_errors == 0 && t.dropped == 0 {
+                continue;
+            }
+            transport.insert(
+                r.name(),
+                RoleTransport {
+                    messages: t.messages,
+                    decode_errors: t.decode_errors,
+                    dropped: t.dropped,
+                    stamp_regressions: t.stamp_regressions,
+                    latency_s: stats.get(Metric::Latency, Some(r)),
+                    interarrival_s: stats.get(Metric::Interarrival, Some(r)),
+                },
+            );
+        }
+        let duration_s = match (c.first_stamp, c.last_stamp) {
+            (Some(a), Some(b)) => b - a,
+            _ => 0.0,
+        };
+        Report {
+            tool: "plumbline",
+            version: env!("CARGO_PKG_VERSION"),
+            config_digest: cfg.digest(),
+            input_digest: inputs.input_digest,
+            input: inputs.input,
+            duration_s,
+            steps: Steps {
+                tracking: c.tracking.clone(),
+                ego: c.ego.clone(),
+                pending_overflow: c.pending_overflow,
+            },
+            records: Records {
+                accepted: c.accepted,
+                rejected: c.rejected,
+                rejected_by_reason: c.rejected_by_reason.clone(),
+                first_rejected: inputs.first_rejected,
+                object_states: c.object_states,
+                tail: inputs.tail,
+            },
+            metrics,
+            totals,
+            nees_consistency: engine.nees_pool().consistency(),
+            transport,
+            percentiles: PercentileMethod {
+                method: if stats.all_exact() {
+                    "exact-linear"
+                } else {
+                    "hdr"
+                },
+                exact_values: cfg.report.exact_values,
+                histogram_digits: cfg.report.histogram_digits,
+            },
+            alerts: Vec::new(),
+            verdicts: Vec::new(),
+        }
+    }
+
+    /// Pretty JSON.
+    pub fn to_json(&self) -> String {
+        serde_json::to_string_pretty(self).unwrap_or_default()
+    }
+}
+
+/// The series header line.
+pub const SERIES_HEADER: &str = "t,metric,value\n";
+
+/// The series name of a sample: the metric name, with `[role]` for transport metrics.
+pub fn series_name(metric: Metric, role: Option<Role>) -> String {
+    match role {
+        None => metric.name().to_string(),
+        Some(r) => format!("{}[{}]", metric.name(), r.name()),
+    }
+}
+
+/// Appends one series row (shortest round-trip numbers).
+pub fn series_row(buf: &mut String, s: &Sample, ryu_buf: &mut ryu::Buffer) {
+    buf.push_str(ryu_buf.format(s.t));
+    buf.push(',');
+    match s.role {
+        None => buf.push_str(s.metric.name()),
+        Some(r) => {
+            buf.push_str(s.metric.name());
+            buf.push('[');
+            buf.push_str(r.name());
+            buf.push(']');
+        }
+    }
+    buf.push(',');
+    buf.push_str(ryu_buf.format(s.value));
+    buf.push('\n');
+}

@@ -1,0 +1,221 @@
+//! Run statistics with bounded memory: count, exact mean (compensated sum), min, max, and
+//! percentiles.
+//!
+//! Percentiles are exact (numpy's default "linear" definition: the value at rank
+//! q (n - 1) of the sorted values, interpolated between neighbours) while a metric has at
+//! most `exact_values` values. Past that, the values move into an hdrhistogram with
+//! `histogram_digits` significant decimal digits (3 by default: relative error below 0.1%)
+//! at a resolution of 1e-6 of the metric's unit, negative and positive halves kept apart,
+//! and the memory stays bounded whatever the run length.
+
+use hdrhistogram::Histogram;
+use serde::Serialize;
+
+/// Scale of the histogram: values are stored in units of 1e-6.
+const SCALE: f64 = 1e6;
+
+/// Summary statistics of one metric.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Stats {
+    /// Values.
+    pub count: u64,
+    /// Mean (exact).
+    pub mean: f64,
+    /// Minimum (exact).
+    pub min: f64,
+    /// Maximum (exact).
+    pub max: f64,
+    /// Median.
+    pub p50: f64,
+    /// 95th percentile.
+    pub p95: f64,
+    /// 99th percentile.
+    pub p99: f64,
+    /// Sum (exact).
+    pub sum: f64,
+}
+
+/// Accumulates one metric's values.
+#[derive(Debug, Clone)]
+pub struct Summary {
+    count: u64,
+    sum: f64,
+    comp: f64,
+    min: f64,
+    max: f64,
+    exact: Vec<f64>,
+    cap: usize,
+    digits: u8,
+    hist: Option<(Histogram<u64>, Histogram<u64>)>,
+}
+
+impl Summary {
+    /// New summary keeping up to `cap` exact values.
+    pub fn new(cap: usize, digits: u8) -> Summary {
+        Summary {
+            count: 0,
+            sum: 0.0,
+            comp: 0.0,
+            min: f64::INFINITY,
+            max: f64::NEG_INFINITY,
+            exact: Vec::new(),
+            cap,
+            digits,
+            hist: None,
+        }
+    }
+
+    /// Adds a value.
+    pub fn add(&mut self, v: f64) {
+        self.count += 1;
+        // Neumaier's compensated summation.
+        let t = self.sum + v;
+        if self.sum.abs() >= v.abs() {
+            self.comp += (self.sum - t) + v;
+        } else {
+            self.comp += (v - t) + self.sum;
+        }
+        self.sum = t;
+        self.min = self.min.min(v);
+        self.max = self.max.max(v);
+        match &mut self.hist {
+            Some((neg, pos)) => record(neg, pos, v),
+            None if self.exact.len() < self.cap => self.exact.push(v),
+            None => {
+                let mk = || Histogram::<u64>::new(self.digits).expect("1..=5 digits are valid");
+                let (mut neg, mut pos) = (mk(), mk());
+                for &x in self.exact.iter().chain(std::iter::once(&v)) {
+                    record(&mut neg, &mut pos, x);
+                }
+                self.exact = Vec::new();
+                self.hist = Some((neg, pos));
+            }
+        }
+    }
+
+    /// Values added.
+    pub fn count(&self) -> u64 {
+        self.count
+    }
+
+    /// Whether the percentiles are exact.
+    pub fn is_exact(&self) -> bool {
+        self.hist.is_none()
+    }
+
+    /// The statistics, or `None` when empty.
+    pub fn stats(&self) -> Option<Stats> {
+        if self.count == 0 {
+            return None;
+        }
+        let sum = self.sum + self.comp;
+        let (p50, p95, p99) = match &self.hist {
+            None => {
+                let mut v = self.exact.clone();
+                v.sort_unstable_by(f64::total_cmp);
+                (
+                    quantile_sorted(&v, 0.5),
+                    quantile_sorted(&v, 0.95),
+                    quantile_sorted(&v, 0.99),
+                )
+            }
+            Some((neg, pos)) => (
+                hist_quantile(neg, pos, 0.5),
+                hist_quantile(neg, pos, 0.95),
+                hist_quantile(neg, pos, 0.99),
+            ),
+        };
+        let clamp = |x: f64| x.clamp(self.min, self.max);
+        Some(Stats {
+            count: self.count,
+            mean: sum / self.count as f64,
+            min: self.min,
+            max: self.max,
+            p50: clamp(p50),
+            p95: clamp(p95),
+            p99: clamp(p99),
+            sum,
+        })
+    }
+}
+
+fn record(neg: &mut Histogram<u64>, pos: &mut Histogram<u64>, v: f64) {
+    let mag = (v.abs() * SCALE).round().min(u64::MAX as f64 / 4.0) as u64;
+    let h = if v < 0.0 { neg } else { pos };
+    // Auto-resizing histograms only fail on values beyond 2^63; the clamp above prevents it.
+    let _ = h.record(mag);
+}
+
+fn hist_quantile(neg: &Histogram<u64>, pos: &Histogram<u64>, q: f64) -> f64 {
+    let (nn, np) = (neg.len(), pos.len());
+    let n = nn + np;
+    if n == 0 {
+        return 0.0;
+    }
+    let rank = q * (n - 1) as f64;
+    if rank < nn as f64 {
+        // Negatives sorted ascending are magnitudes sorted descending.
+        let qq = 1.0 - (rank + 0.5) / nn as f64;
+        -(neg.value_at_quantile(qq.clamp(0.0, 1.0)) as f64) / SCALE
+    } else {
+        let qq = (rank - nn as f64 + 0.5) / np as f64;
+        pos.value_at_quantile(qq.clamp(0.0, 1.0)) as f64 / SCALE
+    }
+}
+
+/// The q-quantile of sorted values by linear interpolation (numpy's default).
+pub fn quantile_sorted(v: &[f64], q: f64) -> f64 {
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    let pos = q * (v.len() - 1) as f64;
+    let lo = pos.floor() as usize;
+    let hi = pos.ceil() as usize;
+    v[lo] + (v[hi] - v[lo]) * (pos - lo as f64)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn exact_stats_by_hand() {
+        let mut s = Summary::new(100, 3);
+        for v in [3.0, 1.0, 4.0, 1.0, 5.0] {
+            s.add(v);
+        }
+        let st = s.stats().unwrap();
+        assert_eq!((st.count, st.min, st.max, st.sum), (5, 1.0, 5.0, 14.0));
+        assert_eq!(st.mean, 2.8);
+        // numpy.percentile([3,1,4,1,5], 50) = 3.0; 95 -> 4.8; 99 -> 4.96.
+        assert_eq!(st.p50, 3.0);
+        assert!((st.p95 - 4.8).abs() < 1e-12);
+        assert!((st.p99 - 4.96).abs() < 1e-12);
+        assert!(Summary::new(4, 3).stats().is_none());
+    }
+
+    #[test]
+    fn histogram_mode_stays_within_stated_precision() {
+        let mut s = Summary::new(1000, 3);
+        let vals: Vec<f64> = (0..20_000)
+            .map(|i| ((i * 7919) % 20_000) as f64 * 0.001 - 5.0)
+            .collect();
+        for &v in &vals {
+            s.add(v);
+        }
+        assert!(!s.is_exact());
+        let mut sorted = vals.clone();
+        sorted.sort_by(f64::total_cmp);
+        let st = s.stats().unwrap();
+        for (q, got) in [(0.5, st.p50), (0.95, st.p95), (0.99, st.p99)] {
+            let want = quantile_sorted(&sorted, q);
+            // 3 significant digits plus one rank of the data's spacing.
+            assert!(
+                (got - want).abs() <= want.abs() * 2e-3 + 2e-3,
+                "q={q}: {got} vs {want}"
+            );
+        }
+        assert_eq!(st.min, -5.0);
+        assert!((st.mean - vals.iter().sum::<f64>() / vals.len() as f64).abs() < 1e-12);
+    }
+}
