@@ -141,3 +141,28 @@ pub fn root_p(x: f64, p: f64) -> f64 {
         x.powf(1.0 / p)
     }
 }
+
+/// GOSPA and OSPA of two point sets in one call (a fresh solver; for tests and tools —
+/// the engine keeps its solver and scratch between steps).
+pub fn gospa_ospa(
+    xs: &[[f64; 2]],
+    ys: &[[f64; 2]],
+    c: f64,
+    p: f64,
+    alpha: f64,
+) -> (gospa::Gospa, f64) {
+    use crate::core::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+    let m = match_with_cutoff(
+        xs,
+        ys,
+        c,
+        p,
+        true,
+        &mut ShortestPath::default(),
+        &mut MatchScratch::default(),
+    );
+    (
+        gospa::from_matching(xs.len(), ys.len(), &m, c, p, alpha),
+        ospa::from_matching(xs.len(), ys.len(), &m, c, p),
+    )
+}

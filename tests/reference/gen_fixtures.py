@@ -1,0 +1,109 @@
+#!/usr/bin/env python3
+"""Regenerates the reference fixtures in tests/fixtures/ from general-purpose libraries.
+
+Needs python3 with numpy and scipy. The Rust tests read the committed JSON files, so the
+suite runs without Python; run this script to refresh them:
+
+    python3 tests/reference/gen_fixtures.py
+
+Sources:
+- scipy.optimize.linear_sum_assignment (rectangular LSAP optimum);
+- GOSPA (alpha = 2) and OSPA computed here from their published definitions
+  (Rahmathullah, Garcia-Fernandez, Svensson, FUSION 2017; Schuhmacher, Vo, Vo, IEEE TSP
+  2008) on top of scipy's assignment: cost min(d, c)^p, pairs at d >= c unassigned;
+- scipy.stats.chi2.ppf for the NEES consistency interval;
+- numpy.percentile (default "linear" method).
+"""
+import json
+import os
+
+import numpy as np
+from scipy.optimize import linear_sum_assignment
+from scipy.stats import chi2
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+OUT = os.path.join(HERE, "..", "fixtures")
+rng = np.random.default_rng(20261202)
+
+
+def lsap_cases():
+    cases = []
+    for _ in range(60):
+        r = int(rng.integers(1, 12))
+        c = int(rng.integers(1, 12))
+        cost = rng.uniform(0, 10, size=(r, c))
+        rows, cols = linear_sum_assignment(cost)
+        cases.append({"rows": r, "cols": c, "cost": cost.ravel().tolist(),
+                      "optimum": float(cost[rows, cols].sum())})
+    return cases
+
+
+def gospa_ospa(X, Y, c, p):
+    m, n = len(X), len(Y)
+    if m == 0 and n == 0:
+        return dict(gospa=0.0, loc=0.0, missed=0.0, false=0.0, assigned=0, ospa=0.0)
+    if m == 0 or n == 0:
+        g = (c ** p / 2 * (m + n)) ** (1 / p)
+        return dict(gospa=g, loc=0.0, missed=c ** p / 2 * m, false=c ** p / 2 * n,
+                    assigned=0, ospa=c)
+    D = np.sqrt(((X[:, None, :] - Y[None, :, :]) ** 2).sum(-1))
+    C = np.minimum(D, c) ** p
+    rows, cols = linear_sum_assignment(C)
+    keep = D[rows, cols] < c
+    assigned = int(keep.sum())
+    loc = float((D[rows, cols][keep] ** p).sum())
+    missed = c ** p / 2 * (m - assigned)
+    false = c ** p / 2 * (n - assigned)
+    g = (loc + missed + false) ** (1 / p)
+    big, small = max(m, n), min(m, n)
+    o = ((C[rows, cols].sum() + c ** p * (big - small)) / big) ** (1 / p)
+    return dict(gospa=float(g), loc=loc, missed=float(missed), false=float(false),
+                assigned=assigned, ospa=float(o))
+
+
+def gospa_cases():
+    cases = []
+    for k in range(120):
+        m = int(rng.integers(0, 15))
+        n = int(rng.integers(0, 15))
+        side = float(rng.uniform(3, 40))
+        X = rng.uniform(0, side, size=(m, 2))
+        Y = rng.uniform(0, side, size=(n, 2))
+        c = float(rng.choice([1.0, 2.0, 5.0]))
+        p = float(rng.choice([1.0, 2.0, 3.0]))
+        r = gospa_ospa(X, Y, c, p)
+        cases.append({"x": X.tolist(), "y": Y.tolist(), "c": c, "p": p, **r})
+    return cases
+
+
+def chi2_cases():
+    out = []
+    for n in [1, 2, 3, 5, 10, 50, 100, 1000, 6341, 10000, 100000]:
+        out.append({"n": n, "lower": float(chi2.ppf(0.025, 2 * n) / n),
+                    "upper": float(chi2.ppf(0.975, 2 * n) / n)})
+    return out
+
+
+def percentile_cases():
+    out = []
+    for size in [1, 2, 5, 17, 100, 1001]:
+        v = rng.normal(0, 3, size=size)
+        out.append({"values": v.tolist(),
+                    "p50": float(np.percentile(v, 50)),
+                    "p95": float(np.percentile(v, 95)),
+                    "p99": float(np.percentile(v, 99))})
+    return out
+
+
+def main():
+    os.makedirs(OUT, exist_ok=True)
+    for name, data in [("lsap.json", lsap_cases()), ("gospa_ospa.json", gospa_cases()),
+                       ("chi2.json", chi2_cases()), ("percentiles.json", percentile_cases())]:
+        with open(os.path.join(OUT, name), "w") as f:
+            json.dump(data, f, indent=None, separators=(",", ":"))
+            f.write("\n")
+        print("wrote", name)
+
+
+if __name__ == "__main__":
+    main()
