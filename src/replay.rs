@@ -30,7 +30,7 @@ pub struct Replayed {
 }
 
 /// A callback fed every batch of samples.
-pub type SampleHook = dyn FnMut(&[Sample]);
+pub type SampleHook<'a> = dyn FnMut(&[Sample]) + 'a;
 
 /// Options for one replay.
 pub struct ReplayOptions<'a> {
@@ -39,7 +39,7 @@ pub struct ReplayOptions<'a> {
     /// Called with bytes read so far.
     pub progress: &'a (dyn Fn(u64) + Sync),
     /// Called with every batch of samples (for windows and rules).
-    pub on_samples: Option<&'a mut SampleHook>,
+    pub on_samples: Option<&'a mut SampleHook<'a>>,
 }
 
 /// Replays one log file.

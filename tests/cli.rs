@@ -1,0 +1,116 @@
+//! The command line from the outside: exit codes, messages, report and series files.
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+fn plumbline(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_plumbline"))
+        .args(args)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("binary runs")
+}
+
+fn text(b: &[u8]) -> String {
+    String::from_utf8_lossy(b).into_owned()
+}
+
+#[test]
+fn replay_of_the_shipped_log_prints_a_summary_and_writes_report_and_series() {
+    let dir = tempfile::tempdir().unwrap();
+    let report = dir.path().join("r.json");
+    let series = dir.path().join("s.csv");
+    let out = plumbline(&[
+        "replay",
+        "replay-logs/campus-loop.jsonl",
+        "--report",
+        report.to_str().unwrap(),
+        "--series",
+        series.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out.stderr));
+    let stdout = text(&out.stdout);
+    for needle in ["gospa", "ospa", "ego_position_error_m", "tracking steps: 600 evaluated", "estimate/objects"] {
+        assert!(stdout.contains(needle), "summary lacks {needle}:\n{stdout}");
+    }
+    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    for key in ["version", "config_digest", "input_digest", "duration_s", "steps", "metrics", "alerts", "verdicts"] {
+        assert!(r.get(key).is_some(), "report lacks {key}");
+    }
+    let g = &r["metrics"]["gospa"];
+    for k in ["count", "mean", "min", "max", "p50", "p95", "p99"] {
+        assert!(g[k].is_number(), "gospa lacks {k}");
+    }
+    assert_eq!(g["count"], 600);
+    // The series has one row per sample; its gospa rows agree with the report's count
+    // and mean (the mean recomputed from the written numbers).
+    let csv = std::fs::read_to_string(&series).unwrap();
+    let mut lines = csv.lines();
+    assert_eq!(lines.next(), Some("t,metric,value"));
+    let gospa: Vec<f64> = lines
+        .filter_map(|l| {
+            let mut it = l.split(',');
+            let (_, m, v) = (it.next()?, it.next()?, it.next()?);
+            (m == "gospa").then(|| v.parse().unwrap())
+        })
+        .collect();
+    assert_eq!(gospa.len(), 600);
+    let mean = gospa.iter().sum::<f64>() / 600.0;
+    assert!((mean - g["mean"].as_f64().unwrap()).abs() < 1e-9);
+}
+
+#[test]
+fn unreadable_input_exits_2() {
+    let out = plumbline(&["replay", "replay-logs/does-not-exist.jsonl"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(text(&out.stderr).contains("does-not-exist"));
+}
+
+#[test]
+fn config_errors_exit_2_and_name_file_and_key() {
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = dir.path().join("bad.toml");
+    std::fs::write(&cfg, "[tracking]\ncutof_m = 2.0\n").unwrap();
+    let out = plumbline(&["--config", cfg.to_str().unwrap(), "replay", "replay-logs/campus-loop.jsonl"]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = text(&out.stderr);
+    assert!(err.contains("bad.toml") && err.contains("tracking.cutof_m"), "{err}");
+    let out = plumbline(&["replay", "replay-logs/campus-loop.jsonl", "--set", "tracking.order=0"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(text(&out.stderr).contains("tracking.order"));
+}
+
+#[test]
+fn set_overrides_change_the_numbers() {
+    let dir = tempfile::tempdir().unwrap();
+    let r1 = dir.path().join("a.json");
+    let r2 = dir.path().join("b.json");
+    let log = "replay-logs/campus-loop.jsonl";
+    assert!(plumbline(&["replay", log, "--quiet", "--report", r1.to_str().unwrap()]).status.success());
+    assert!(plumbline(&["replay", log, "--quiet", "--set", "tracking.alpha=1", "--report", r2.to_str().unwrap()])
+        .status
+        .success());
+    let a: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&r1).unwrap()).unwrap();
+    let b: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&r2).unwrap()).unwrap();
+    assert_ne!(a["config_digest"], b["config_digest"]);
+    // alpha != 2: the total only (SPEC §6).
+    assert!(b["metrics"].get("gospa").is_some());
+    assert!(b["metrics"].get("gospa_missed").is_none());
+    assert!(b["metrics"].get("assigned_count").is_none());
+    assert!(a["metrics"].get("gospa_missed").is_some());
+}
+
+#[test]
+fn convert_round_trips_and_scenario_regenerates_the_shipped_logs() {
+    let dir = tempfile::tempdir().unwrap();
+    let gen = dir.path().join("gen.jsonl");
+    let out = plumbline(&["scenario", "--out", gen.to_str().unwrap(), "--seed", "1", "--duration", "60"]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let shipped = std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl")).unwrap();
+    assert_eq!(std::fs::read(&gen).unwrap(), shipped, "the shipped log is what the command makes");
+    let plb = dir.path().join("x.plb");
+    let back = dir.path().join("back.jsonl");
+    assert!(plumbline(&["convert", gen.to_str().unwrap(), plb.to_str().unwrap()]).status.success());
+    assert!(plumbline(&["convert", plb.to_str().unwrap(), back.to_str().unwrap()]).status.success());
+    assert_eq!(std::fs::read(&back).unwrap(), shipped);
+}

@@ -1,0 +1,172 @@
+//! End to end through the replay edge: the shipped log against an independent evaluator,
+//! both log forms, torn tails and bad records.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use plumbline::config::Config;
+use plumbline::core::Sample;
+use plumbline::logio::{read_all, Item, LogWriter};
+use plumbline::replay::{replay, ReplayOptions, Replayed};
+use serde_json::Value;
+
+fn repo(p: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join(p)
+}
+
+fn run(cfg: &Config, path: &Path) -> (Replayed, Vec<Sample>) {
+    let mut samples = Vec::new();
+    let mut hook = |s: &[Sample]| samples.extend_from_slice(s);
+    let r = replay(cfg, path, ReplayOptions { series: None, progress: &|_| {}, on_samples: Some(&mut hook) })
+        .expect("replay");
+    (r, samples)
+}
+
+/// Source: tests/reference/evaluate.py, an independent numpy/scipy implementation of the
+/// contract, run on the shipped log (its output is committed as a fixture).
+#[test]
+fn shipped_log_matches_the_independent_evaluator() {
+    let cfg = Config::defaults();
+    let (_, samples) = run(&cfg, &repo("replay-logs/campus-loop.jsonl"));
+    let text = std::fs::read_to_string(repo("tests/fixtures/campus-loop.reference.json")).unwrap();
+    let want: Value = serde_json::from_str(&text).unwrap();
+    let mut got: BTreeMap<(String, u64), f64> = BTreeMap::new();
+    for s in samples.iter().filter(|s| s.role.is_none()) {
+        got.insert((s.metric.name().to_string(), s.t.to_bits()), s.value);
+    }
+    let mut checked = 0;
+    for section in ["tracking", "ego"] {
+        let steps = want[section].as_array().unwrap();
+        assert!(steps.len() >= 600, "{section}: {}", steps.len());
+        for step in steps {
+            let t = step["t"].as_f64().unwrap();
+            for (k, v) in step.as_object().unwrap() {
+                if k == "t" {
+                    continue;
+                }
+                let w = v.as_f64().unwrap();
+                let g = got.get(&(k.clone(), t.to_bits())).unwrap_or_else(|| panic!("no {k} at {t}"));
+                assert!((g - w).abs() <= 1e-9 * (1.0 + w.abs()), "{k} at {t}: {g} vs reference {w}");
+                checked += 1;
+            }
+        }
+    }
+    assert!(checked > 8000, "{checked}");
+}
+
+#[test]
+fn jsonl_and_binary_forms_give_the_same_report() {
+    let cfg = Config::defaults();
+    let dir = tempfile::tempdir().unwrap();
+    let plb = dir.path().join("copy.plb");
+    let back = dir.path().join("back.jsonl");
+    convert(&cfg, &repo("replay-logs/campus-loop.jsonl"), &plb);
+    convert(&cfg, &plb, &back);
+    let (a, sa) = run(&cfg, &repo("replay-logs/campus-loop.jsonl"));
+    let (b, sb) = run(&cfg, &plb);
+    let (c, sc) = run(&cfg, &back);
+    assert_eq!(sa, sb);
+    assert_eq!(sa, sc);
+    let strip = |r: &Replayed| {
+        let mut v: Value = serde_json::from_str(&r.report.to_json()).unwrap();
+        v["input"] = Value::Null;
+        v["input_digest"] = Value::Null;
+        v
+    };
+    assert_eq!(strip(&a), strip(&b));
+    assert_eq!(strip(&a), strip(&c));
+    // The round trip keeps every record exactly.
+    assert_eq!(records(&cfg, &repo("replay-logs/campus-loop.jsonl")), records(&cfg, &back));
+}
+
+fn convert(cfg: &Config, from: &Path, to: &Path) {
+    let mut w = LogWriter::create(cfg, to).unwrap();
+    read_all(cfg, from, &mut |item, _| {
+        if let Item::Record { rec, .. } = item {
+            w.write(&rec).unwrap();
+        }
+    })
+    .unwrap();
+    w.finish().unwrap();
+}
+
+fn records(cfg: &Config, p: &Path) -> Vec<plumbline::logio::LogRecord> {
+    let mut v = Vec::new();
+    read_all(cfg, p, &mut |item, _| {
+        if let Item::Record { rec, .. } = item {
+            v.push(rec);
+        }
+    })
+    .unwrap();
+    v
+}
+
+#[test]
+fn torn_binary_tail_is_reported_and_everything_before_replays() {
+    let cfg = Config::defaults();
+    let dir = tempfile::tempdir().unwrap();
+    let plb = dir.path().join("run.plb");
+    convert(&cfg, &repo("replay-logs/campus-loop.jsonl"), &plb);
+    let full = std::fs::read(&plb).unwrap();
+    let all = records(&cfg, &plb).len();
+    // Cut the file in the middle of a record, as a power cut would.
+    let cut = full.len() - 37;
+    std::fs::write(&plb, &full[..cut]).unwrap();
+    let (r, _) = run(&cfg, &plb);
+    let tail = r.report.records.tail.clone().expect("tail reported");
+    assert!(tail.offset < cut as u64 && tail.offset > 0);
+    assert_eq!(r.report.records.accepted as usize, all - 1);
+    // Corrupt a byte inside an early record: the CRC catches it at that record's offset.
+    let mut bad = full.clone();
+    let at = 5000;
+    bad[at] ^= 0xff;
+    std::fs::write(&plb, &bad).unwrap();
+    let (r, _) = run(&cfg, &plb);
+    let tail = r.report.records.tail.clone().expect("tail reported");
+    assert!(tail.offset <= at as u64);
+    assert!(tail.reason.contains("checksum") || tail.reason.contains("range"), "{}", tail.reason);
+}
+
+#[test]
+fn bad_records_are_counted_with_line_and_reason_and_valid_ones_score_the_same() {
+    let cfg = Config::defaults();
+    let dir = tempfile::tempdir().unwrap();
+    let clean = dir.path().join("clean.jsonl");
+    let dirty = dir.path().join("dirty.jsonl");
+    let lines: Vec<String> = std::fs::read_to_string(repo("replay-logs/campus-loop.jsonl"))
+        .unwrap()
+        .lines()
+        .take(400)
+        .map(str::to_string)
+        .collect();
+    std::fs::write(&clean, lines.join("\n") + "\n").unwrap();
+    let mut mixed = Vec::new();
+    let junk = [
+        "this is not json",
+        r#"{"key": "rig/estimate/objects", "recv": 1.0, "msg": {"stamp": 1e999, "objects": []}}"#,
+        r#"{"key": "rig/estimate/objects", "msg": {"stamp": 1.0, "objects": [{"id": 1, "x": 1, "y": 1}, {"id": 1, "x": 2, "y": 2}]}}"#,
+        r#"{"key": "rig/reference/ego", "msg": {"stamp": 1.0, "x": 1}}"#,
+        r#"{"key": "somewhere/else", "msg": {"stamp": 1.0}}"#,
+        r#"{"key": "rig/estimate/objects", "msg": {"stamp": 1.0, "frame": "map", "objects": []}}"#,
+    ];
+    for (i, l) in lines.iter().enumerate() {
+        mixed.push(l.clone());
+        if i % 60 == 5 {
+            mixed.push(junk[(i / 60) % junk.len()].to_string());
+        }
+    }
+    std::fs::write(&dirty, mixed.join("\n") + "\n").unwrap();
+    let (a, sa) = run(&cfg, &clean);
+    let (b, sb) = run(&cfg, &dirty);
+    assert_eq!(sa, sb, "valid records must score exactly as without the bad ones");
+    assert_eq!(b.report.records.rejected, 7);
+    assert_eq!(a.report.records.rejected, 0);
+    let first = &b.report.records.first_rejected[0];
+    assert_eq!(first.at, "line 7");
+    assert_eq!(first.reason, "malformed");
+    let reasons = &b.report.records.rejected_by_reason;
+    for r in ["malformed", "non_finite", "duplicate_id", "missing_field", "unbound_key", "bad_frame"] {
+        assert!(reasons.contains_key(r), "{r} missing from {reasons:?}");
+    }
+    assert!(b.report.transport["estimate/objects"].decode_errors >= 3);
+}
