@@ -131,7 +131,7 @@ pub struct Object {
     pub cov: Option<[f64; 4]>,
     /// Free-form class label.
     #[serde(default, rename = "class")]
-    pub class: Option<String>,
+    pub class: Option<compact_str::CompactString>,
 }
 
 impl Object {
@@ -381,9 +381,9 @@ pub enum Reject {
     /// The record's key is bound to no role.
     #[error("unbound key {0}")]
     UnboundKey(String),
-    /// The binary record failed its checksum.
-    #[error("checksum mismatch")]
-    Checksum,
+    /// A line longer than the reader accepts.
+    #[error("line longer than {0} bytes")]
+    TooLong(usize),
 }
 
 impl Reject {
@@ -401,7 +401,7 @@ impl Reject {
             Reject::TooManyObjects(..) => "too_many_objects",
             Reject::BadCovariance(_) => "bad_covariance",
             Reject::UnboundKey(_) => "unbound_key",
-            Reject::Checksum => "checksum",
+            Reject::TooLong(_) => "line_too_long",
         }
     }
 

@@ -1,21 +1,22 @@
-//! Replay: drives the engine from a log file. An I/O edge with two threads: one reads,
-//! hashes and decodes the file into bounded batches, the other runs the engine, so
-//! decoding and evaluation overlap. The engine sees the records in file order, exactly
-//! as the live monitor sees them in arrival order.
+//! Replay: drives the engine from a log file. An I/O edge: one thread frames the file into
+//! chunks of whole records, worker threads decode chunks in parallel, one thread hashes the
+//! file, and the calling thread runs the engine on the decoded records strictly in file
+//! order — exactly as the live monitor sees them in arrival order. Every channel between
+//! them is bounded, so memory does not grow with the log.
 
+use std::fs::File;
 use std::io::Write;
 use std::path::Path;
-use std::sync::mpsc::sync_channel;
+use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
 
 use crate::config::Config;
 use crate::core::engine::{Engine, Input, Sample};
-use crate::logio::{read_all, Item, LogError, ReadOutcome};
+use crate::logio::chunks::{Frame, LineFramer, RecordFramer};
+use crate::logio::{jsonl, plb, Form, Item, LogError, Tail};
 use crate::report::{series_row, BadRecord, Report, RunInputs, RunStats, SERIES_HEADER};
 
-/// Records per batch handed from the reader to the engine thread.
-const BATCH: usize = 512;
-/// Batches in flight; the reader blocks when the engine is behind (bounded memory).
-const IN_FLIGHT: usize = 8;
+/// Chunks in flight per decoding worker.
+const IN_FLIGHT: usize = 2;
 /// Rejected records kept with their position for the report.
 pub const KEEP_BAD: usize = 100;
 
@@ -42,6 +43,82 @@ pub struct ReplayOptions<'a> {
     pub on_samples: Option<&'a mut SampleHook<'a>>,
 }
 
+/// Why a replay failed as a whole.
+#[derive(Debug, thiserror::Error)]
+pub enum ReplayError {
+    /// The input could not be read.
+    #[error(transparent)]
+    Log(#[from] LogError),
+    /// The series output could not be written.
+    #[error("writing the series: {0}")]
+    Series(std::io::Error),
+}
+
+enum Source {
+    Lines(LineFramer<File>),
+    Records(plb::Header, RecordFramer<File>),
+}
+
+impl Source {
+    fn open(path: &Path) -> Result<Source, LogError> {
+        Ok(match Form::of(path) {
+            Form::Jsonl => Source::Lines(
+                LineFramer::new(File::open(path).map_err(|source| LogError::Io {
+                    path: path.display().to_string(),
+                    source,
+                })?)
+                .hashing(&[]),
+            ),
+            Form::Plb => {
+                let (h, f) = plb::open(path, true)?;
+                Source::Records(h, f)
+            }
+        })
+    }
+
+    fn roles(&self) -> &[(String, String)] {
+        match self {
+            Source::Lines(_) => &[],
+            Source::Records(h, _) => &h.roles,
+        }
+    }
+
+    /// The next frame; a read error ends the readable part like a damaged tail.
+    fn next_frame(&mut self, at: u64) -> Option<Frame> {
+        let r = match self {
+            Source::Lines(f) => f.next_frame(),
+            Source::Records(_, f) => f.next_frame(),
+        };
+        r.unwrap_or_else(|e| {
+            Some(Frame::Tail(Tail {
+                offset: at,
+                reason: format!("read error: {e}"),
+            }))
+        })
+    }
+
+    /// The SHA-256 of the whole file (the rest is read if the replay stopped early).
+    fn finish_digest(self) -> String {
+        let d = match self {
+            Source::Lines(f) => f.finish_digest(),
+            Source::Records(_, f) => f.finish_digest(),
+        };
+        d.ok().flatten().unwrap_or_default()
+    }
+}
+
+struct Decoded {
+    items: Vec<Item>,
+    end: u64,
+    tail: Option<Tail>,
+}
+
+fn workers() -> usize {
+    std::thread::available_parallelism()
+        .map_or(2, |n| n.get())
+        .clamp(1, 4)
+}
+
 /// Replays one log file.
 pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Replayed, ReplayError> {
     let ReplayOptions {
@@ -49,57 +126,70 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         progress,
         mut on_samples,
     } = opts;
+    let mut source = Source::open(path)?;
+    let header_roles: Vec<(String, String)> = source.roles().to_vec();
+    let limits = cfg.limits();
     let mut engine = Engine::new(cfg.tracking, cfg.align);
     let mut stats = RunStats::new(cfg);
     let mut first_bad = Vec::new();
-    let mut samples: Vec<Sample> = Vec::with_capacity(256);
+    let mut samples: Vec<Sample> = Vec::with_capacity(4096);
     let mut text = String::new();
     let mut ryu_buf = ryu::Buffer::new();
+    let mut tail = None;
+    let mut write_err = None;
     if let Some(w) = series.as_mut() {
         w.write_all(SERIES_HEADER.as_bytes())
             .map_err(ReplayError::Series)?;
     }
+    let n = workers();
+    let is_lines = matches!(source, Source::Lines(_));
 
-    let (tx, rx) = sync_channel::<Vec<Item>>(IN_FLIGHT);
-    let outcome: Result<ReadOutcome, LogError> = std::thread::scope(|s| {
-        let reader = s.spawn(move || {
-            let mut batch = Vec::with_capacity(BATCH);
-            let r = read_all(cfg, path, &mut |item, bytes| {
-                batch.push(item);
-                if batch.len() >= BATCH {
-                    let full = std::mem::replace(&mut batch, Vec::with_capacity(BATCH));
-                    let _ = tx.send(full);
-                    progress(bytes);
+    let digest = std::thread::scope(|s| {
+        let (mut to_workers, mut from_workers): (Vec<SyncSender<Frame>>, Vec<Receiver<Decoded>>) =
+            (Vec::new(), Vec::new());
+        for _ in 0..n {
+            let (tx_in, rx_in) = sync_channel::<Frame>(IN_FLIGHT);
+            let (tx_out, rx_out) = sync_channel::<Decoded>(IN_FLIGHT);
+            to_workers.push(tx_in);
+            from_workers.push(rx_out);
+            let roles = &header_roles;
+            let limits = &limits;
+            s.spawn(move || {
+                for frame in rx_in.iter() {
+                    let mut items = Vec::new();
+                    let (end, tail) = match frame {
+                        Frame::Tail(t) => (t.offset, Some(t)),
+                        f if is_lines => (jsonl::decode_frame(cfg, limits, f, &mut items), None),
+                        f => plb::decode_frame(cfg, roles, limits, f, &mut items),
+                    };
+                    if tx_out.send(Decoded { items, end, tail }).is_err() {
+                        break;
+                    }
                 }
             });
-            if !batch.is_empty() {
-                let _ = tx.send(batch);
+        }
+        // The framer hashes what it reads, so the digest costs no second read.
+        let framer = s.spawn(move || {
+            let mut k = 0;
+            let mut at = 0;
+            while let Some(frame) = source.next_frame(at) {
+                if let Frame::Chunk(c) = &frame {
+                    at = c.end;
+                }
+                let stop = matches!(frame, Frame::Tail(_));
+                if to_workers[k % to_workers.len()].send(frame).is_err() || stop {
+                    break;
+                }
+                k += 1;
             }
-            r
+            drop(to_workers);
+            source.finish_digest()
         });
-        let mut flush = |samples: &mut Vec<Sample>,
-                         text: &mut String,
-                         force: bool|
-         -> Result<(), ReplayError> {
-            stats.add(samples);
-            if let Some(f) = on_samples.as_mut() {
-                f(samples);
-            }
-            if let Some(w) = series.as_mut() {
-                for smp in samples.iter() {
-                    series_row(text, smp, &mut ryu_buf);
-                }
-                if force || text.len() > 1 << 16 {
-                    w.write_all(text.as_bytes()).map_err(ReplayError::Series)?;
-                    text.clear();
-                }
-            }
-            samples.clear();
-            Ok(())
-        };
-        let mut result = Ok(());
-        for batch in rx.iter() {
-            for item in batch {
+
+        let mut k = 0;
+        while let Ok(d) = from_workers[k % n].recv() {
+            k += 1;
+            for item in d.items {
                 match item {
                     Item::Record { role, rec } => engine.push(
                         Input::Message {
@@ -124,38 +214,50 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
                     }
                 }
             }
-            if result.is_ok() {
-                result = flush(&mut samples, &mut text, false);
+            progress(d.end);
+            if write_err.is_none() {
+                write_err = emit(
+                    &mut samples,
+                    &mut stats,
+                    &mut on_samples,
+                    &mut series,
+                    &mut text,
+                    &mut ryu_buf,
+                    false,
+                )
+                .err();
+            }
+            samples.clear();
+            if d.tail.is_some() {
+                tail = d.tail;
+                break;
             }
         }
+        // Dropping the receivers stops the workers and the framer if we left early.
+        drop(from_workers);
         engine.finish(&mut samples);
-        if result.is_ok() {
-            result = flush(&mut samples, &mut text, true);
+        if write_err.is_none() {
+            write_err = emit(
+                &mut samples,
+                &mut stats,
+                &mut on_samples,
+                &mut series,
+                &mut text,
+                &mut ryu_buf,
+                true,
+            )
+            .err();
         }
-        let read = reader.join().unwrap_or_else(|_| {
-            Err(LogError::BadHeader {
-                path: path.display().to_string(),
-                why: "reader thread panicked".into(),
-            })
-        });
-        result.map_err(|e| match e {
-            ReplayError::Series(e) => LogError::Io {
-                path: "series output".into(),
-                source: e,
-            },
-            ReplayError::Log(e) => e,
-        })?;
-        read
+        framer.join().unwrap_or_default()
     });
-    let outcome = outcome?;
-    if let Some(w) = series.as_mut() {
-        w.flush().map_err(ReplayError::Series)?;
+    if let Some(e) = write_err {
+        return Err(ReplayError::Series(e));
     }
     let inputs = RunInputs {
         input: path.display().to_string(),
-        input_digest: outcome.digest,
+        input_digest: digest,
         first_rejected: first_bad,
-        tail: outcome.tail,
+        tail,
     };
     let report = Report::build(cfg, &engine, &stats, inputs);
     Ok(Replayed {
@@ -165,13 +267,32 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     })
 }
 
-/// Why a replay failed as a whole.
-#[derive(Debug, thiserror::Error)]
-pub enum ReplayError {
-    /// The input could not be read.
-    #[error(transparent)]
-    Log(#[from] LogError),
-    /// The series output could not be written.
-    #[error("writing the series: {0}")]
-    Series(std::io::Error),
+#[allow(clippy::too_many_arguments)]
+fn emit(
+    samples: &mut Vec<Sample>,
+    stats: &mut RunStats,
+    hook: &mut Option<&mut SampleHook<'_>>,
+    series: &mut Option<&mut dyn Write>,
+    text: &mut String,
+    ryu_buf: &mut ryu::Buffer,
+    force: bool,
+) -> std::io::Result<()> {
+    stats.add(samples);
+    if let Some(f) = hook.as_mut() {
+        f(samples);
+    }
+    if let Some(w) = series.as_mut() {
+        for smp in samples.iter() {
+            series_row(text, smp, ryu_buf);
+        }
+        if force || text.len() > 1 << 16 {
+            w.write_all(text.as_bytes())?;
+            text.clear();
+        }
+        if force {
+            w.flush()?;
+        }
+    }
+    samples.clear();
+    Ok(())
 }

@@ -3,7 +3,8 @@
 //! seed gives the same records on every machine.
 //!
 //! What it plants, so every metric has something to find:
-//! - simulator truth for objects at 10 Hz, tracker output at 10 Hz offset by 20 ms (so the
+//! - simulator truth for objects and tracker output at 10 Hz (configurable), the tracker
+//!   offset by 20 ms (so the
 //!   reference is interpolated), reference ego at 50 Hz, estimated ego at 20 Hz;
 //! - tracker noise (0.12 m, declared covariance a little optimistic), missed detections,
 //!   a confirmation delay before each track appears, coasting after an object leaves;
@@ -31,6 +32,8 @@ pub struct ScenarioParams {
     pub objects: usize,
     /// Tracker position noise (m).
     pub noise: f64,
+    /// Rate of the truth and tracker object topics (Hz).
+    pub rate_hz: f64,
 }
 
 impl Default for ScenarioParams {
@@ -40,6 +43,7 @@ impl Default for ScenarioParams {
             duration: 60.0,
             objects: 14,
             noise: 0.12,
+            rate_hz: 10.0,
         }
     }
 }
@@ -282,10 +286,11 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
         ));
     }
 
-    // Reference objects at 10 Hz.
-    let n_obj = (p.duration * 10.0) as usize;
+    // Reference objects at rate_hz (10 Hz by default).
+    let dt = 1.0 / p.rate_hz;
+    let n_obj = (p.duration * p.rate_hz) as usize;
     for k in 0..=n_obj {
-        let t = k as f64 * 0.1;
+        let t = k as f64 * dt;
         let objects = actors
             .iter()
             .filter(|a| t >= a.born && t < a.dies)
@@ -297,7 +302,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
                     yaw: Some(round6(a.v.1.atan2(a.v.0))),
                     length: Some(a.size.0),
                     width: Some(a.size.1),
-                    class: Some(a.class.to_string()),
+                    class: Some(a.class.into()),
                     ..Object::at(a.id, round3(x), round3(y))
                 }
             })
@@ -315,13 +320,13 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
         ));
     }
 
-    // Tracker output at 10 Hz, 20 ms after the truth frames.
+    // Tracker output at the same rate, 20 ms after the truth frames.
     let declared = p.noise * 0.85;
     let mut clutter: Vec<(u64, f64, f64, f64, f64)> = Vec::new(); // id, born, dies, x, y
     let mut next_false = 901u64;
     for k in 0..n_obj {
-        let t = k as f64 * 0.1 + 0.02;
-        if rng.random_bool(0.03) {
+        let t = k as f64 * dt + 0.02;
+        if rng.random_bool(0.3 * dt) {
             let (ex, ey, _) = loop_pose(SHUTTLE_SPEED * t);
             clutter.push((
                 next_false,
@@ -355,7 +360,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
                     0.0,
                     round6(declared * declared),
                 ]),
-                class: Some(a.class.to_string()),
+                class: Some(a.class.into()),
                 ..Object::at(
                     track,
                     round3(x + p.noise * unit.sample(&mut rng)),

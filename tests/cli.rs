@@ -30,11 +30,27 @@ fn replay_of_the_shipped_log_prints_a_summary_and_writes_report_and_series() {
     ]);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out.stderr));
     let stdout = text(&out.stdout);
-    for needle in ["gospa", "ospa", "ego_position_error_m", "tracking steps: 600 evaluated", "estimate/objects"] {
+    for needle in [
+        "gospa",
+        "ospa",
+        "ego_position_error_m",
+        "tracking steps: 600 evaluated",
+        "estimate/objects",
+    ] {
         assert!(stdout.contains(needle), "summary lacks {needle}:\n{stdout}");
     }
-    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
-    for key in ["version", "config_digest", "input_digest", "duration_s", "steps", "metrics", "alerts", "verdicts"] {
+    let r: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    for key in [
+        "version",
+        "config_digest",
+        "input_digest",
+        "duration_s",
+        "steps",
+        "metrics",
+        "alerts",
+        "verdicts",
+    ] {
         assert!(r.get(key).is_some(), "report lacks {key}");
     }
     let g = &r["metrics"]["gospa"];
@@ -71,11 +87,24 @@ fn config_errors_exit_2_and_name_file_and_key() {
     let dir = tempfile::tempdir().unwrap();
     let cfg = dir.path().join("bad.toml");
     std::fs::write(&cfg, "[tracking]\ncutof_m = 2.0\n").unwrap();
-    let out = plumbline(&["--config", cfg.to_str().unwrap(), "replay", "replay-logs/campus-loop.jsonl"]);
+    let out = plumbline(&[
+        "--config",
+        cfg.to_str().unwrap(),
+        "replay",
+        "replay-logs/campus-loop.jsonl",
+    ]);
     assert_eq!(out.status.code(), Some(2));
     let err = text(&out.stderr);
-    assert!(err.contains("bad.toml") && err.contains("tracking.cutof_m"), "{err}");
-    let out = plumbline(&["replay", "replay-logs/campus-loop.jsonl", "--set", "tracking.order=0"]);
+    assert!(
+        err.contains("bad.toml") && err.contains("tracking.cutof_m"),
+        "{err}"
+    );
+    let out = plumbline(&[
+        "replay",
+        "replay-logs/campus-loop.jsonl",
+        "--set",
+        "tracking.order=0",
+    ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(text(&out.stderr).contains("tracking.order"));
 }
@@ -86,12 +115,26 @@ fn set_overrides_change_the_numbers() {
     let r1 = dir.path().join("a.json");
     let r2 = dir.path().join("b.json");
     let log = "replay-logs/campus-loop.jsonl";
-    assert!(plumbline(&["replay", log, "--quiet", "--report", r1.to_str().unwrap()]).status.success());
-    assert!(plumbline(&["replay", log, "--quiet", "--set", "tracking.alpha=1", "--report", r2.to_str().unwrap()])
-        .status
-        .success());
-    let a: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&r1).unwrap()).unwrap();
-    let b: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&r2).unwrap()).unwrap();
+    assert!(
+        plumbline(&["replay", log, "--quiet", "--report", r1.to_str().unwrap()])
+            .status
+            .success()
+    );
+    assert!(plumbline(&[
+        "replay",
+        log,
+        "--quiet",
+        "--set",
+        "tracking.alpha=1",
+        "--report",
+        r2.to_str().unwrap()
+    ])
+    .status
+    .success());
+    let a: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&r1).unwrap()).unwrap();
+    let b: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&r2).unwrap()).unwrap();
     assert_ne!(a["config_digest"], b["config_digest"]);
     // alpha != 2: the total only (SPEC §6).
     assert!(b["metrics"].get("gospa").is_some());
@@ -104,13 +147,35 @@ fn set_overrides_change_the_numbers() {
 fn convert_round_trips_and_scenario_regenerates_the_shipped_logs() {
     let dir = tempfile::tempdir().unwrap();
     let gen = dir.path().join("gen.jsonl");
-    let out = plumbline(&["scenario", "--out", gen.to_str().unwrap(), "--seed", "1", "--duration", "60"]);
+    let out = plumbline(&[
+        "scenario",
+        "--out",
+        gen.to_str().unwrap(),
+        "--seed",
+        "1",
+        "--duration",
+        "60",
+    ]);
     assert!(out.status.success(), "{}", text(&out.stderr));
-    let shipped = std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl")).unwrap();
-    assert_eq!(std::fs::read(&gen).unwrap(), shipped, "the shipped log is what the command makes");
+    let shipped =
+        std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl"))
+            .unwrap();
+    assert_eq!(
+        std::fs::read(&gen).unwrap(),
+        shipped,
+        "the shipped log is what the command makes"
+    );
     let plb = dir.path().join("x.plb");
     let back = dir.path().join("back.jsonl");
-    assert!(plumbline(&["convert", gen.to_str().unwrap(), plb.to_str().unwrap()]).status.success());
-    assert!(plumbline(&["convert", plb.to_str().unwrap(), back.to_str().unwrap()]).status.success());
+    assert!(
+        plumbline(&["convert", gen.to_str().unwrap(), plb.to_str().unwrap()])
+            .status
+            .success()
+    );
+    assert!(
+        plumbline(&["convert", plb.to_str().unwrap(), back.to_str().unwrap()])
+            .status
+            .success()
+    );
     assert_eq!(std::fs::read(&back).unwrap(), shipped);
 }

@@ -23,12 +23,19 @@ pub struct Args {
     /// Tracker position noise (m).
     #[arg(long, default_value_t = 0.12)]
     pub noise: f64,
+    /// Rate of the truth and tracker object topics (Hz).
+    #[arg(long, default_value_t = 10.0)]
+    pub rate: f64,
 }
 
 /// Runs the command.
 pub fn run(cfg: &Config, a: &Args) -> u8 {
-    if !(a.duration.is_finite() && a.duration > 0.0 && a.noise.is_finite() && a.noise >= 0.0) {
-        eprintln!("plumbline scenario: --duration must be > 0 and --noise >= 0");
+    let ok = |x: f64| x.is_finite() && x > 0.0;
+    if !(ok(a.duration) && ok(a.rate) && a.rate <= 1000.0 && a.noise.is_finite() && a.noise >= 0.0)
+    {
+        eprintln!(
+            "plumbline scenario: --duration and --rate must be > 0 (rate <= 1000), --noise >= 0"
+        );
         return super::EXIT_INPUT;
     }
     let p = ScenarioParams {
@@ -36,6 +43,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         duration: a.duration,
         objects: a.objects,
         noise: a.noise,
+        rate_hz: a.rate,
     };
     let records = generate(cfg, &p);
     let mut w = match crate::logio::LogWriter::create(cfg, &a.out) {

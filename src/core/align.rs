@@ -201,62 +201,89 @@ pub fn pose_at(r: Resolved<'_, Pose>, t: f64) -> (Pose, How) {
     }
 }
 
-fn lerp_opt(a: Option<f64>, b: Option<f64>, w: f64) -> Option<f64> {
-    match (a, b) {
-        (Some(x), Some(y)) => Some(x + (y - x) * w),
-        _ => a,
+/// The part of an object the metrics use: no strings, cheap to copy.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Point {
+    /// Object id.
+    pub id: u64,
+    /// x (m).
+    pub x: f64,
+    /// y (m).
+    pub y: f64,
+    /// Heading (rad).
+    pub yaw: Option<f64>,
+    /// Box length (m).
+    pub length: Option<f64>,
+    /// Box width (m).
+    pub width: Option<f64>,
+    /// 2x2 position covariance, row-major.
+    pub cov: Option<[f64; 4]>,
+}
+
+impl Point {
+    /// The metric part of an object.
+    pub fn of(o: &Object) -> Point {
+        Point {
+            id: o.id,
+            x: o.x,
+            y: o.y,
+            yaw: o.yaw,
+            length: o.length,
+            width: o.width,
+            cov: o.cov,
+        }
     }
 }
 
-/// Per-id interpolation of two object sets at `t`: ids present in both, positions and
-/// velocities linear, yaw along the shorter arc; other fields from the earlier set.
-/// `index` is scratch space.
-pub fn interpolate_objects(
-    a: &[Object],
+/// Appends a set's objects as points, moved to the world frame by `ego` when given.
+pub fn points_of(set: &ObjectSet, ego: Option<&Pose>, out: &mut Vec<Point>) {
+    let start = out.len();
+    out.extend(set.objects.iter().map(Point::of));
+    if let Some(ego) = ego {
+        for p in &mut out[start..] {
+            to_world(p, ego);
+        }
+    }
+}
+
+/// Per-id interpolation of two point sets at `t`: ids present in both, positions linear,
+/// yaw along the shorter arc; size and covariance from the earlier set. `index` is scratch.
+pub fn interpolate_points(
+    a: &[Point],
     ta: f64,
-    b: &[Object],
+    b: &[Point],
     tb: f64,
     t: f64,
     index: &mut Vec<(u64, usize)>,
-    out: &mut Vec<Object>,
+    out: &mut Vec<Point>,
 ) {
     let w = weight(ta, tb, t);
     index.clear();
     index.extend(b.iter().enumerate().map(|(i, o)| (o.id, i)));
     index.sort_unstable();
-    for oa in a {
-        let Ok(k) = index.binary_search_by_key(&oa.id, |&(id, _)| id) else {
+    for pa in a {
+        let Ok(k) = index.binary_search_by_key(&pa.id, |&(id, _)| id) else {
             continue;
         };
-        let ob = &b[index[k].1];
-        out.push(Object {
-            id: oa.id,
-            x: oa.x + (ob.x - oa.x) * w,
-            y: oa.y + (ob.y - oa.y) * w,
-            vx: lerp_opt(oa.vx, ob.vx, w),
-            vy: lerp_opt(oa.vy, ob.vy, w),
-            yaw: match (oa.yaw, ob.yaw) {
+        let pb = &b[index[k].1];
+        out.push(Point {
+            x: pa.x + (pb.x - pa.x) * w,
+            y: pa.y + (pb.y - pa.y) * w,
+            yaw: match (pa.yaw, pb.yaw) {
                 (Some(x), Some(y)) => Some(lerp_angle(x, y, w)),
-                _ => oa.yaw,
+                _ => pa.yaw,
             },
-            length: oa.length,
-            width: oa.width,
-            cov: oa.cov,
-            class: oa.class.clone(),
+            ..*pa
         });
     }
 }
 
-/// Moves an ego-frame object into the world frame of `ego`.
-pub fn to_world(o: &mut Object, ego: &Pose) {
+/// Moves an ego-frame point into the world frame of `ego`.
+pub fn to_world(o: &mut Point, ego: &Pose) {
     let (s, c) = ego.yaw.sin_cos();
     let (x, y) = (o.x, o.y);
     o.x = ego.x + c * x - s * y;
     o.y = ego.y + s * x + c * y;
-    if let (Some(vx), Some(vy)) = (o.vx, o.vy) {
-        o.vx = Some(c * vx - s * vy);
-        o.vy = Some(s * vx + c * vy);
-    }
     if let Some(yaw) = o.yaw {
         o.yaw = Some(crate::metrics::ego::wrap_angle(yaw + ego.yaw));
     }
@@ -289,16 +316,12 @@ mod tests {
     fn constant_velocity_interpolation_is_exact() {
         // Analytic case: x(t) = 1 + 2t, y(t) = -3 + 0.5t. Samples at 0.0 and 0.1; any t
         // between must reproduce the line exactly (up to rounding).
-        let at = |t: f64| Object {
-            vx: Some(2.0),
-            vy: Some(0.5),
-            ..Object::at(7, 1.0 + 2.0 * t, -3.0 + 0.5 * t)
-        };
+        let at = |t: f64| Point::of(&Object::at(7, 1.0 + 2.0 * t, -3.0 + 0.5 * t));
         let (mut idx, mut out) = (Vec::new(), Vec::new());
         for k in 1..10 {
             let t = k as f64 * 0.01;
             out.clear();
-            interpolate_objects(&[at(0.0)], 0.0, &[at(0.1)], 0.1, t, &mut idx, &mut out);
+            interpolate_points(&[at(0.0)], 0.0, &[at(0.1)], 0.1, t, &mut idx, &mut out);
             assert_eq!(out.len(), 1);
             assert!((out[0].x - (1.0 + 2.0 * t)).abs() < 1e-12);
             assert!((out[0].y - (-3.0 + 0.5 * t)).abs() < 1e-12);
@@ -308,9 +331,9 @@ mod tests {
     #[test]
     fn only_ids_in_both_are_interpolated() {
         let (mut idx, mut out) = (Vec::new(), Vec::new());
-        let a = [Object::at(1, 0.0, 0.0), Object::at(2, 5.0, 5.0)];
-        let b = [Object::at(2, 6.0, 5.0), Object::at(3, 9.0, 9.0)];
-        interpolate_objects(&a, 0.0, &b, 1.0, 0.25, &mut idx, &mut out);
+        let a = [Object::at(1, 0.0, 0.0), Object::at(2, 5.0, 5.0)].map(|o| Point::of(&o));
+        let b = [Object::at(2, 6.0, 5.0), Object::at(3, 9.0, 9.0)].map(|o| Point::of(&o));
+        interpolate_points(&a, 0.0, &b, 1.0, 0.25, &mut idx, &mut out);
         assert_eq!(out.len(), 1);
         assert_eq!(out[0].id, 2);
         assert_eq!(out[0].x, 5.25);
@@ -371,6 +394,7 @@ mod tests {
             cov: Some([4.0, 0.0, 0.0, 1.0]),
             ..Object::at(1, 2.0, 0.0)
         };
+        let mut o = Point::of(&o);
         to_world(&mut o, &ego);
         assert!((o.x - 10.0).abs() < 1e-12 && (o.y - 7.0).abs() < 1e-12);
         let c = o.cov.unwrap();

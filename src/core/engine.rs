@@ -10,14 +10,14 @@ use std::collections::{BTreeMap, VecDeque};
 
 use serde::Serialize;
 
-use super::align::{self, How, Miss, Resolved, Timeline};
+use super::align::{self, How, Miss, Point, Resolved, Timeline};
 use super::assign::{match_with_cutoff, MatchScratch, ShortestPath};
 use super::{AlignParams, EgoSource, TrackingParams};
 use crate::metrics::nees::{nees, NeesPool};
 use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
 use crate::metrics::transport::Transport;
 use crate::metrics::{ego, gospa, ospa, Metric};
-use crate::msg::{Msg, Object, ObjectSet, Pose, Role};
+use crate::msg::{Msg, ObjectSet, Pose, Role};
 
 /// One input to the engine.
 #[derive(Debug, Clone)]
@@ -155,8 +155,10 @@ pub struct Engine {
     nees_pool: NeesPool,
     solver: ShortestPath,
     scratch: MatchScratch,
-    xs: Vec<Object>,
-    ys: Vec<Object>,
+    xs: Vec<Point>,
+    ys: Vec<Point>,
+    wa: Vec<Point>,
+    wb: Vec<Point>,
     xp: Vec<[f64; 2]>,
     yp: Vec<[f64; 2]>,
     index: Vec<(u64, usize)>,
@@ -186,6 +188,8 @@ impl Engine {
             scratch: MatchScratch::default(),
             xs: Vec::new(),
             ys: Vec::new(),
+            wa: Vec::new(),
+            wb: Vec::new(),
             xp: Vec::new(),
             yp: Vec::new(),
             index: Vec::new(),
@@ -385,41 +389,42 @@ impl Engine {
             .map_err(|m| miss_reason(m, "frame"))
     }
 
-    fn world_objects(
+    fn world_points(
         &self,
         set: &ObjectSet,
         at: f64,
-        out: &mut Vec<Object>,
+        out: &mut Vec<Point>,
     ) -> Result<(), &'static str> {
-        let start = out.len();
-        out.extend(set.objects.iter().cloned());
-        if align::is_ego_frame(set) {
-            let pose = self.frame_pose(at)?;
-            for o in &mut out[start..] {
-                align::to_world(o, &pose);
-            }
-        }
+        let ego = if align::is_ego_frame(set) {
+            Some(self.frame_pose(at)?)
+        } else {
+            None
+        };
+        align::points_of(set, ego.as_ref(), out);
         Ok(())
     }
 
     fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
-        let mut xs = std::mem::take(&mut self.xs);
+        let (mut xs, mut wa, mut wb) = (
+            std::mem::take(&mut self.xs),
+            std::mem::take(&mut self.wa),
+            std::mem::take(&mut self.wb),
+        );
         xs.clear();
+        wa.clear();
+        wb.clear();
         let res = match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
             Err(m) => Err(miss_reason(m, "objects")),
-            Ok(Resolved::One(set, how)) => self.world_objects(set, set.stamp, &mut xs).map(|_| how),
-            Ok(Resolved::Two(a, b)) => {
-                let (mut wa, mut wb) = (Vec::new(), Vec::new());
-                let r = self
-                    .world_objects(&a.1, a.0, &mut wa)
-                    .and_then(|_| self.world_objects(&b.1, b.0, &mut wb));
-                r.map(|_| {
-                    align::interpolate_objects(&wa, a.0, &wb, b.0, t, &mut self.index, &mut xs);
+            Ok(Resolved::One(set, how)) => self.world_points(set, set.stamp, &mut xs).map(|_| how),
+            Ok(Resolved::Two(a, b)) => self
+                .world_points(&a.1, a.0, &mut wa)
+                .and_then(|_| self.world_points(&b.1, b.0, &mut wb))
+                .map(|_| {
+                    align::interpolate_points(&wa, a.0, &wb, b.0, t, &mut self.index, &mut xs);
                     How::Interpolated
-                })
-            }
+                }),
         };
-        self.xs = xs;
+        (self.xs, self.wa, self.wb) = (xs, wa, wb);
         res
     }
 
@@ -431,7 +436,7 @@ impl Engine {
         };
         let mut ys = std::mem::take(&mut self.ys);
         ys.clear();
-        let frame = self.world_objects(est, t, &mut ys);
+        let frame = self.world_points(est, t, &mut ys);
         self.ys = ys;
         if let Err(reason) = frame {
             return self.counters.tracking.skip(reason);
@@ -442,7 +447,7 @@ impl Engine {
                 Err(m) => return self.counters.tracking.skip(miss_reason(m, "ego")),
             };
             let (r, r_est) = (self.tp.region, self.tp.region + self.tp.cutoff);
-            let near = |o: &Object, lim: f64| (o.x - ego.x).hypot(o.y - ego.y) <= lim;
+            let near = |o: &Point, lim: f64| (o.x - ego.x).hypot(o.y - ego.y) <= lim;
             self.xs.retain(|o| near(o, r));
             self.ys.retain(|o| near(o, r_est));
         }

@@ -1,26 +1,119 @@
 //! JSON Lines logs: `{"key": "...", "recv": 12.305, "msg": {...}}`, one record a line.
 
 use std::borrow::Cow;
+use std::cell::Cell;
 use std::fs::File;
-use std::io::{BufRead, BufReader, Write};
+use std::io::Write;
 use std::path::Path;
 
+use serde::de::{self, DeserializeSeed, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
 use serde_json::value::RawValue;
-use sha2::{Digest, Sha256};
 
-use super::{hex_digest, io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome};
+use super::chunks::{Chunk, Frame, LineFramer, MAX_LINE};
+use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome};
 use crate::config::Config;
-use crate::msg::{decode_json, Limits, Reject, Role};
+use crate::msg::{
+    self, decode_json, validate, Limits, Msg, MsgKind, ObjectSet, ObstacleSet, Pose, Reject, Role,
+};
 
-#[derive(Deserialize)]
-struct Line<'a> {
-    #[serde(borrow)]
-    key: Cow<'a, str>,
-    #[serde(default)]
+/// A string borrowed from the line when it has no escapes.
+struct Text<'a>(Cow<'a, str>);
+
+impl<'de> Deserialize<'de> for Text<'de> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = Text<'de>;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("a string")
+            }
+            fn visit_borrowed_str<E: de::Error>(self, v: &'de str) -> Result<Self::Value, E> {
+                Ok(Text(Cow::Borrowed(v)))
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<Self::Value, E> {
+                Ok(Text(Cow::Owned(v.to_string())))
+            }
+        }
+        d.deserialize_str(V)
+    }
+}
+
+/// Decodes a message of a known kind straight from the line.
+struct MsgSeed(MsgKind);
+
+impl<'de> DeserializeSeed<'de> for MsgSeed {
+    type Value = Msg;
+    fn deserialize<D: Deserializer<'de>>(self, d: D) -> Result<Msg, D::Error> {
+        Ok(match self.0 {
+            MsgKind::Objects => Msg::Objects(ObjectSet::deserialize(d)?),
+            MsgKind::Pose => Msg::Pose(Pose::deserialize(d)?),
+            MsgKind::Path => Msg::Path(msg::Path::deserialize(d)?),
+            MsgKind::Obstacles => Msg::Obstacles(ObstacleSet::deserialize(d)?),
+        })
+    }
+}
+
+enum Body<'a> {
+    Typed(Role, Msg),
+    Raw(&'a RawValue),
+}
+
+/// One pass over a line: when `key` comes before `msg` (as plumbline writes it) the
+/// message is decoded straight into its type; otherwise it is kept raw and decoded after.
+struct LineSeed<'c> {
+    cfg: &'c Config,
+    /// Set while a bound message is being decoded, so an error can name its role.
+    decoding: &'c Cell<Option<Role>>,
+}
+
+struct Parsed<'a> {
+    key: Option<Text<'a>>,
     recv: Option<f64>,
-    #[serde(borrow)]
-    msg: &'a RawValue,
+    body: Option<Body<'a>>,
+}
+
+impl<'de> DeserializeSeed<'de> for LineSeed<'_> {
+    type Value = Parsed<'de>;
+    fn deserialize<D: Deserializer<'de>>(self, d: D) -> Result<Self::Value, D::Error> {
+        d.deserialize_map(self)
+    }
+}
+
+impl<'de> Visitor<'de> for LineSeed<'_> {
+    type Value = Parsed<'de>;
+    fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("a record object with key, recv and msg")
+    }
+    fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Self::Value, A::Error> {
+        let mut out = Parsed {
+            key: None,
+            recv: None,
+            body: None,
+        };
+        while let Some(k) = map.next_key::<Text<'de>>()? {
+            match &*k.0 {
+                "key" => out.key = Some(map.next_value()?),
+                "recv" => out.recv = map.next_value()?,
+                "msg" => {
+                    let role = out.key.as_ref().and_then(|k| role_for(self.cfg, &[], &k.0));
+                    out.body = Some(match role {
+                        Some(role) => {
+                            self.decoding.set(Some(role));
+                            let m = map.next_value_seed(MsgSeed(role.kind()))?;
+                            self.decoding.set(None);
+                            Body::Typed(role, m)
+                        }
+                        None => Body::Raw(map.next_value()?),
+                    });
+                }
+                _ => {
+                    map.next_value::<de::IgnoredAny>()?;
+                }
+            }
+        }
+        Ok(out)
+    }
 }
 
 /// Decodes one line (without its newline).
@@ -30,69 +123,114 @@ pub fn decode_line(
     line: &[u8],
 ) -> Result<(Role, LogRecord), (Option<Role>, Reject)> {
     let text = std::str::from_utf8(line).map_err(|e| (None, Reject::Malformed(e.to_string())))?;
-    let l: Line<'_> = serde_json::from_str(text).map_err(|e| (None, Reject::from_json(&e)))?;
-    if let Some(r) = l.recv {
+    let decoding = Cell::new(None);
+    let mut de = serde_json::Deserializer::from_str(text);
+    let parsed = LineSeed {
+        cfg,
+        decoding: &decoding,
+    }
+    .deserialize(&mut de)
+    .and_then(|p| de.end().map(|_| p))
+    .map_err(|e| (decoding.get(), Reject::from_json(&e)))?;
+    let key = parsed
+        .key
+        .ok_or_else(|| (None, Reject::MissingField("key".into())))?
+        .0;
+    let body = parsed
+        .body
+        .ok_or_else(|| (None, Reject::MissingField("msg".into())))?;
+    if let Some(r) = parsed.recv {
         if !r.is_finite() {
             return Err((None, Reject::NonFinite("recv".into())));
         }
     }
-    let role =
-        role_for(cfg, &[], &l.key).ok_or_else(|| (None, Reject::UnboundKey(l.key.to_string())))?;
-    let msg = decode_json(role.kind(), l.msg.get(), limits).map_err(|e| (Some(role), e))?;
+    let (role, msg) = match body {
+        Body::Typed(role, msg) => (role, msg),
+        Body::Raw(raw) => {
+            let role = role_for(cfg, &[], &key)
+                .ok_or_else(|| (None, Reject::UnboundKey(key.to_string())))?;
+            let msg = decode_json(role.kind(), raw.get(), limits).map_err(|e| (Some(role), e))?;
+            return Ok((
+                role,
+                LogRecord {
+                    key: key.into_owned(),
+                    recv: parsed.recv,
+                    msg,
+                },
+            ));
+        }
+    };
+    validate(&msg, limits).map_err(|e| (Some(role), e))?;
     Ok((
         role,
         LogRecord {
-            key: l.key.into_owned(),
-            recv: l.recv,
+            key: key.into_owned(),
+            recv: parsed.recv,
             msg,
         },
     ))
 }
 
-/// Reads a JSON Lines log.
+/// Decodes a chunk of whole lines.
+pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<Item>) {
+    let mut line_no = chunk.first;
+    for raw in chunk.bytes.split_inclusive(|&b| b == b'\n') {
+        let mut line = raw;
+        while let [rest @ .., b'\n' | b'\r'] = line {
+            line = rest;
+        }
+        if !line.iter().all(u8::is_ascii_whitespace) {
+            out.push(match decode_line(cfg, limits, line) {
+                Ok((role, rec)) => Item::Record { role, rec },
+                Err((role, reason)) => Item::Bad {
+                    pos: Position::Line(line_no),
+                    role,
+                    reason,
+                },
+            });
+        }
+        line_no += 1;
+    }
+}
+
+/// Reads a JSON Lines log on the calling thread.
 pub fn read(
     cfg: &Config,
     path: &Path,
     each: &mut dyn FnMut(Item, u64),
 ) -> Result<ReadOutcome, LogError> {
     let f = File::open(path).map_err(io_err(path))?;
-    let mut r = BufReader::with_capacity(1 << 20, f);
+    let mut framer = LineFramer::new(f);
     let limits = cfg.limits();
-    let mut hasher = Sha256::new();
-    let mut buf = Vec::with_capacity(4096);
-    let mut line_no = 0u64;
-    let mut bytes = 0u64;
-    loop {
-        buf.clear();
-        let n = r.read_until(b'\n', &mut buf).map_err(io_err(path))?;
-        if n == 0 {
-            break;
+    let mut items = Vec::new();
+    let mut bytes = 0;
+    while let Some(frame) = framer.next_frame().map_err(io_err(path))? {
+        bytes = decode_frame(cfg, &limits, frame, &mut items);
+        for item in items.drain(..) {
+            each(item, bytes);
         }
-        hasher.update(&buf);
-        bytes += n as u64;
-        line_no += 1;
-        let mut line = &buf[..];
-        while let [rest @ .., b'\n' | b'\r'] = line {
-            line = rest;
-        }
-        if line.iter().all(u8::is_ascii_whitespace) {
-            continue;
-        }
-        let item = match decode_line(cfg, &limits, line) {
-            Ok((role, rec)) => Item::Record { role, rec },
-            Err((role, reason)) => Item::Bad {
-                pos: Position::Line(line_no),
-                role,
-                reason,
-            },
-        };
-        each(item, bytes);
     }
-    Ok(ReadOutcome {
-        digest: hex_digest(hasher),
-        bytes,
-        tail: None,
-    })
+    Ok(ReadOutcome { bytes, tail: None })
+}
+
+/// Decodes one frame into items; returns the file offset past it.
+pub fn decode_frame(cfg: &Config, limits: &Limits, frame: Frame, out: &mut Vec<Item>) -> u64 {
+    match frame {
+        Frame::Chunk(c) => {
+            decode_chunk(cfg, limits, &c, out);
+            c.end
+        }
+        Frame::LongLine { line, end } => {
+            out.push(Item::Bad {
+                pos: Position::Line(line),
+                role: None,
+                reason: Reject::TooLong(MAX_LINE),
+            });
+            end
+        }
+        // Lines have no tail; a framer of lines never yields one.
+        Frame::Tail(t) => t.offset,
+    }
 }
 
 /// Formats one record as a line (with its newline).

@@ -1,6 +1,7 @@
 //! Log files (SPEC §3): JSON Lines and the binary `.plb` form. This is an I/O edge: it
 //! reads and writes files and hands decoded records to the caller.
 
+pub mod chunks;
 pub mod jsonl;
 pub mod plb;
 
@@ -123,8 +124,6 @@ pub fn role_for(cfg: &Config, header_roles: &[(String, String)], key: &str) -> O
 /// What reading a whole log found besides its items.
 #[derive(Debug, Clone, Default)]
 pub struct ReadOutcome {
-    /// SHA-256 of the file's bytes, `sha256:<hex>`.
-    pub digest: String,
     /// Bytes read.
     pub bytes: u64,
     /// The damaged tail of a binary log, if any.
@@ -149,11 +148,6 @@ fn io_err(path: &Path) -> impl FnOnce(std::io::Error) -> LogError + '_ {
         path: path.display().to_string(),
         source,
     }
-}
-
-fn hex_digest(h: sha2::Sha256) -> String {
-    use sha2::Digest;
-    format!("sha256:{:x}", h.finalize())
 }
 
 /// A writer of either form, picked by the path's extension.

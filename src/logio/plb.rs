@@ -11,15 +11,15 @@
 //! holds but whose content fails validation is rejected alone and reading goes on.
 
 use std::fs::File;
-use std::io::{BufReader, BufWriter, Read, Write};
+use std::io::{BufWriter, Read, Write};
 use std::path::Path;
 
 use serde::{Deserialize, Serialize};
-use sha2::{Digest, Sha256};
 
-use super::{hex_digest, io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome, Tail};
+use super::chunks::{Chunk, Frame, RecordFramer};
+use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome, Tail};
 use crate::config::Config;
-use crate::msg::{validate, Reject};
+use crate::msg::{validate, Limits, Reject};
 
 /// File magic.
 pub const MAGIC: &[u8; 8] = b"PLUMBLOG";
@@ -128,11 +128,9 @@ fn read_full(r: &mut impl Read, buf: &mut [u8]) -> std::io::Result<usize> {
 }
 
 /// Reads a binary log's header.
-pub fn read_header(
-    r: &mut impl Read,
-    path: &Path,
-    hasher: &mut Sha256,
-) -> Result<(Header, u64), LogError> {
+///
+/// Returns the header and the raw bytes it took.
+pub fn read_header(r: &mut impl Read, path: &Path) -> Result<(Header, Vec<u8>), LogError> {
     let bad = |why: &str| LogError::BadHeader {
         path: path.display().to_string(),
         why: why.to_string(),
@@ -141,7 +139,6 @@ pub fn read_header(
     if read_full(r, &mut fixed).map_err(io_err(path))? < 16 {
         return Err(bad("shorter than the fixed header"));
     }
-    hasher.update(fixed);
     if &fixed[..8] != MAGIC {
         return Err(bad("wrong magic"));
     }
@@ -159,120 +156,139 @@ pub fn read_header(
     if read_full(r, &mut h).map_err(io_err(path))? < h.len() {
         return Err(bad("header cut short"));
     }
-    hasher.update(&h);
     let (body, crc) = h.split_at(len as usize);
     if crc32fast::hash(body).to_le_bytes() != crc {
         return Err(bad("header checksum mismatch"));
     }
     let header: Header = postcard::from_bytes(body).map_err(|e| bad(&e.to_string()))?;
-    Ok((header, 16 + h.len() as u64))
+    let mut raw = fixed.to_vec();
+    raw.extend_from_slice(&h);
+    Ok((header, raw))
 }
 
-/// Reads a binary log.
+/// Decodes a chunk of whole records. Returns the tail when a record fails its checksum;
+/// the records after it are not decoded.
+pub fn decode_chunk(
+    cfg: &Config,
+    header_roles: &[(String, String)],
+    limits: &Limits,
+    chunk: &Chunk,
+    out: &mut Vec<Item>,
+) -> Option<Tail> {
+    let mut pos = 0usize;
+    let b = &chunk.bytes;
+    while pos + 8 <= b.len() {
+        let off = chunk.first + pos as u64;
+        let len = u32::from_le_bytes([b[pos], b[pos + 1], b[pos + 2], b[pos + 3]]) as usize;
+        let crc = u32::from_le_bytes([b[pos + 4], b[pos + 5], b[pos + 6], b[pos + 7]]);
+        let payload = &b[pos + 8..pos + 8 + len];
+        pos += 8 + len;
+        if crc32fast::hash(payload) != crc {
+            return Some(Tail {
+                offset: off,
+                reason: "record checksum mismatch".into(),
+            });
+        }
+        out.push(decode_record(
+            cfg,
+            header_roles,
+            limits,
+            payload,
+            Position::Offset(off),
+        ));
+    }
+    None
+}
+
+fn decode_record(
+    cfg: &Config,
+    header_roles: &[(String, String)],
+    limits: &Limits,
+    payload: &[u8],
+    pos: Position,
+) -> Item {
+    let rec = match postcard::from_bytes::<LogRecord>(payload) {
+        Err(e) => {
+            return Item::Bad {
+                pos,
+                role: None,
+                reason: Reject::Malformed(e.to_string()),
+            }
+        }
+        Ok(rec) => rec,
+    };
+    let Some(role) = role_for(cfg, header_roles, &rec.key) else {
+        return Item::Bad {
+            pos,
+            role: None,
+            reason: Reject::UnboundKey(rec.key),
+        };
+    };
+    let bad = |reason| Item::Bad {
+        pos,
+        role: Some(role),
+        reason,
+    };
+    if role.kind() != rec.msg.kind() {
+        return bad(Reject::WrongType(format!(
+            "message kind does not match role {}",
+            role.name()
+        )));
+    }
+    if let Err(reason) = validate(&rec.msg, limits) {
+        return bad(reason);
+    }
+    if rec.recv.is_some_and(|v| !v.is_finite()) {
+        return bad(Reject::NonFinite("recv".into()));
+    }
+    Item::Record { role, rec }
+}
+
+/// Opens a binary log: its header and a framer positioned after it.
+///
+/// With `hash`, the framer also hashes the whole file, header included.
+pub fn open(path: &Path, hash: bool) -> Result<(Header, RecordFramer<File>), LogError> {
+    let mut f = File::open(path).map_err(io_err(path))?;
+    let (header, raw) = read_header(&mut f, path)?;
+    let framer = RecordFramer::new(f, raw.len() as u64, MAX_RECORD);
+    Ok((header, if hash { framer.hashing(&raw) } else { framer }))
+}
+
+/// Decodes one frame into items; returns the file offset past it and the tail, if any.
+pub fn decode_frame(
+    cfg: &Config,
+    header_roles: &[(String, String)],
+    limits: &Limits,
+    frame: Frame,
+    out: &mut Vec<Item>,
+) -> (u64, Option<Tail>) {
+    match frame {
+        Frame::Chunk(c) => (c.end, decode_chunk(cfg, header_roles, limits, &c, out)),
+        Frame::Tail(t) => (t.offset, Some(t)),
+        // Binary framing has no lines.
+        Frame::LongLine { end, .. } => (end, None),
+    }
+}
+
+/// Reads a binary log on the calling thread.
 pub fn read(
     cfg: &Config,
     path: &Path,
     each: &mut dyn FnMut(Item, u64),
 ) -> Result<ReadOutcome, LogError> {
-    let f = File::open(path).map_err(io_err(path))?;
-    let mut r = BufReader::with_capacity(1 << 20, f);
-    let mut hasher = Sha256::new();
-    let (header, mut off) = read_header(&mut r, path, &mut hasher)?;
+    let (header, mut framer) = open(path, false)?;
     let limits = cfg.limits();
-    let mut payload = Vec::new();
-    let mut tail = None;
-    loop {
-        let mut lenbuf = [0u8; 8];
-        let got = read_full(&mut r, &mut lenbuf).map_err(io_err(path))?;
-        if got == 0 {
-            break;
+    let mut items = Vec::new();
+    let mut bytes = 0;
+    while let Some(frame) = framer.next_frame().map_err(io_err(path))? {
+        let (end, tail) = decode_frame(cfg, &header.roles, &limits, frame, &mut items);
+        bytes = end;
+        for item in items.drain(..) {
+            each(item, end);
         }
-        hasher.update(&lenbuf[..got]);
-        if got < 8 {
-            tail = Some(Tail {
-                offset: off,
-                reason: "record header cut short".into(),
-            });
-            break;
+        if tail.is_some() {
+            return Ok(ReadOutcome { bytes, tail });
         }
-        let len = u32::from_le_bytes([lenbuf[0], lenbuf[1], lenbuf[2], lenbuf[3]]);
-        let crc = u32::from_le_bytes([lenbuf[4], lenbuf[5], lenbuf[6], lenbuf[7]]);
-        if len > MAX_RECORD {
-            tail = Some(Tail {
-                offset: off,
-                reason: format!("record length {len} out of range"),
-            });
-            // Hash the rest so the digest still covers the whole file.
-            let mut rest = Vec::new();
-            r.read_to_end(&mut rest).map_err(io_err(path))?;
-            hasher.update(&rest);
-            break;
-        }
-        payload.resize(len as usize, 0);
-        let got = read_full(&mut r, &mut payload).map_err(io_err(path))?;
-        hasher.update(&payload[..got]);
-        if got < len as usize {
-            tail = Some(Tail {
-                offset: off,
-                reason: format!("record cut short: {got} of {len} bytes"),
-            });
-            break;
-        }
-        if crc32fast::hash(&payload) != crc {
-            tail = Some(Tail {
-                offset: off,
-                reason: "record checksum mismatch".into(),
-            });
-            let mut rest = Vec::new();
-            r.read_to_end(&mut rest).map_err(io_err(path))?;
-            hasher.update(&rest);
-            break;
-        }
-        let pos = Position::Offset(off);
-        off += 8 + len as u64;
-        let item = match postcard::from_bytes::<LogRecord>(&payload) {
-            Err(e) => Item::Bad {
-                pos,
-                role: None,
-                reason: Reject::Malformed(e.to_string()),
-            },
-            Ok(rec) => match role_for(cfg, &header.roles, &rec.key) {
-                None => Item::Bad {
-                    pos,
-                    role: None,
-                    reason: Reject::UnboundKey(rec.key),
-                },
-                Some(role) if role.kind() != rec.msg.kind() => Item::Bad {
-                    pos,
-                    role: Some(role),
-                    reason: Reject::WrongType(format!(
-                        "message kind does not match role {}",
-                        role.name()
-                    )),
-                },
-                Some(role) => {
-                    let bad_recv = rec.recv.is_some_and(|v| !v.is_finite());
-                    match validate(&rec.msg, &limits) {
-                        Err(reason) => Item::Bad {
-                            pos,
-                            role: Some(role),
-                            reason,
-                        },
-                        Ok(()) if bad_recv => Item::Bad {
-                            pos,
-                            role: Some(role),
-                            reason: Reject::NonFinite("recv".into()),
-                        },
-                        Ok(()) => Item::Record { role, rec },
-                    }
-                }
-            },
-        };
-        each(item, off);
     }
-    Ok(ReadOutcome {
-        digest: hex_digest(hasher),
-        bytes: off,
-        tail,
-    })
+    Ok(ReadOutcome { bytes, tail: None })
 }

@@ -16,7 +16,7 @@
 //!
 //! Memory: ids unseen for `forget_after` seconds of event time are forgotten.
 
-use std::collections::{HashMap, HashSet};
+use rustc_hash::{FxHashMap as HashMap, FxHashSet as HashSet};
 
 #[derive(Debug, Clone)]
 struct RefState {
@@ -67,12 +67,12 @@ impl TrackLife {
     /// New state; ids unseen for `forget_after` seconds are dropped.
     pub fn new(forget_after: f64) -> TrackLife {
         TrackLife {
-            refs: HashMap::new(),
-            ests: HashMap::new(),
-            prev_ests: HashSet::new(),
-            cur_ests: HashSet::new(),
-            cur_refs: HashSet::new(),
-            assigned_refs: HashSet::new(),
+            refs: HashMap::default(),
+            ests: HashMap::default(),
+            prev_ests: HashSet::default(),
+            cur_ests: HashSet::default(),
+            cur_refs: HashSet::default(),
+            assigned_refs: HashSet::default(),
             forget_after,
             last_t: f64::NEG_INFINITY,
             steps: 0,
