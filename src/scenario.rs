@@ -34,6 +34,8 @@ pub struct ScenarioParams {
     pub noise: f64,
     /// Rate of the truth and tracker object topics (Hz).
     pub rate_hz: f64,
+    /// Objects carry only the required fields (id, x, y): lean logs for throughput runs.
+    pub minimal: bool,
 }
 
 impl Default for ScenarioParams {
@@ -44,6 +46,7 @@ impl Default for ScenarioParams {
             objects: 14,
             noise: 0.12,
             rate_hz: 10.0,
+            minimal: false,
         }
     }
 }
@@ -388,6 +391,15 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
                 objects,
             }),
         ));
+    }
+    if p.minimal {
+        for r in &mut out {
+            if let Msg::Objects(set) = &mut r.msg {
+                for o in &mut set.objects {
+                    *o = Object::at(o.id, o.x, o.y);
+                }
+            }
+        }
     }
     out.sort_by(|a, b| a.recv.unwrap_or(0.0).total_cmp(&b.recv.unwrap_or(0.0)));
     out

@@ -26,6 +26,9 @@ pub struct Args {
     /// Rate of the truth and tracker object topics (Hz).
     #[arg(long, default_value_t = 10.0)]
     pub rate: f64,
+    /// Objects carry only id, x and y (lean logs for throughput runs).
+    #[arg(long)]
+    pub minimal: bool,
 }
 
 /// Runs the command.
@@ -44,6 +47,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         objects: a.objects,
         noise: a.noise,
         rate_hz: a.rate,
+        minimal: a.minimal,
     };
     let records = generate(cfg, &p);
     let mut w = match crate::logio::LogWriter::create(cfg, &a.out) {

@@ -390,7 +390,7 @@ mod tests {
             v: None,
             cov: None,
         };
-        let mut o = Object {
+        let o = Object {
             cov: Some([4.0, 0.0, 0.0, 1.0]),
             ..Object::at(1, 2.0, 0.0)
         };

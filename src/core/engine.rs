@@ -128,6 +128,22 @@ fn miss_reason(m: Miss, what: &'static str) -> &'static str {
     }
 }
 
+/// A reference set as buffered: its points, converted once on arrival.
+#[derive(Debug)]
+struct RefSet {
+    stamp: f64,
+    ego_frame: bool,
+    points: Vec<Point>,
+}
+
+impl RefSet {
+    fn new(set: &ObjectSet) -> RefSet {
+        let mut points = Vec::with_capacity(set.objects.len());
+        align::points_of(set, None, &mut points);
+        RefSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points }
+    }
+}
+
 #[derive(Debug)]
 struct Pending<T> {
     t: f64,
@@ -140,7 +156,7 @@ struct Pending<T> {
 pub struct Engine {
     tp: TrackingParams,
     ap: AlignParams,
-    ref_objects: Timeline<ObjectSet>,
+    ref_objects: Timeline<RefSet>,
     ref_ego: Timeline<Pose>,
     est_ego: Timeline<Pose>,
     tracks: VecDeque<Pending<ObjectSet>>,
@@ -265,7 +281,7 @@ impl Engine {
         }
         let deadline = arrival + self.ap.max_wait;
         match (role, msg) {
-            (Role::ReferenceObjects, Msg::Objects(set)) => self.ref_objects.insert(stamp, set),
+            (Role::ReferenceObjects, Msg::Objects(set)) => self.ref_objects.insert(stamp, RefSet::new(&set)),
             (Role::EstimateObjects, Msg::Objects(set)) => {
                 if self.tracks.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
@@ -405,27 +421,40 @@ impl Engine {
     }
 
     fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
-        let (mut xs, mut wa, mut wb) = (
-            std::mem::take(&mut self.xs),
-            std::mem::take(&mut self.wa),
-            std::mem::take(&mut self.wb),
-        );
+        let (mut xs, mut wa, mut wb) =
+            (std::mem::take(&mut self.xs), std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
+        let mut index = std::mem::take(&mut self.index);
         xs.clear();
-        wa.clear();
-        wb.clear();
         let res = match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
             Err(m) => Err(miss_reason(m, "objects")),
-            Ok(Resolved::One(set, how)) => self.world_points(set, set.stamp, &mut xs).map(|_| how),
-            Ok(Resolved::Two(a, b)) => self
-                .world_points(&a.1, a.0, &mut wa)
-                .and_then(|_| self.world_points(&b.1, b.0, &mut wb))
-                .map(|_| {
-                    align::interpolate_points(&wa, a.0, &wb, b.0, t, &mut self.index, &mut xs);
-                    How::Interpolated
-                }),
+            Ok(Resolved::One(set, how)) => self.ref_points(set, &mut wa).map(|p| {
+                xs.extend_from_slice(p);
+                how
+            }),
+            Ok(Resolved::Two(a, b)) => self.ref_points(&a.1, &mut wa).and_then(|pa| {
+                let pb = self.ref_points(&b.1, &mut wb)?;
+                align::interpolate_points(pa, a.0, pb, b.0, t, &mut index, &mut xs);
+                Ok(How::Interpolated)
+            }),
         };
-        (self.xs, self.wa, self.wb) = (xs, wa, wb);
+        (self.xs, self.wa, self.wb, self.index) = (xs, wa, wb, index);
         res
+    }
+
+    /// A reference set's world-frame points: cached at arrival for world-frame sets, moved
+    /// by the frame pose at the set's stamp into `scratch` for ego-frame sets.
+    fn ref_points<'a>(&self, set: &'a RefSet, scratch: &'a mut Vec<Point>) -> Result<&'a [Point], &'static str> {
+        if !set.ego_frame {
+            return Ok(&set.points);
+        }
+        let pose = self.frame_pose(set.stamp)?;
+        scratch.clear();
+        scratch.extend(set.points.iter().map(|p| {
+            let mut q = *p;
+            align::to_world(&mut q, &pose);
+            q
+        }));
+        Ok(scratch)
     }
 
     fn eval_tracking(&mut self, t: f64, est: &ObjectSet, out: &mut Vec<Sample>) {

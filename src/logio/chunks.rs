@@ -13,7 +13,7 @@ use sha2::{Digest, Sha256};
 use super::Tail;
 
 /// Bytes read per block.
-pub const BLOCK: usize = 1 << 20;
+pub const BLOCK: usize = 256 << 10;
 /// Longest JSON line accepted (bytes, newline excluded).
 pub const MAX_LINE: usize = 64 << 20;
 

@@ -173,8 +173,8 @@ pub fn decode_line(
 
 /// Decodes a chunk of whole lines.
 pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<Item>) {
-    let mut line_no = chunk.first;
-    for raw in chunk.bytes.split_inclusive(|&b| b == b'\n') {
+    let lines = chunk.bytes.split_inclusive(|&b| b == b'\n');
+    for (line_no, raw) in (chunk.first..).zip(lines) {
         let mut line = raw;
         while let [rest @ .., b'\n' | b'\r'] = line {
             line = rest;
@@ -182,14 +182,9 @@ pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<
         if !line.iter().all(u8::is_ascii_whitespace) {
             out.push(match decode_line(cfg, limits, line) {
                 Ok((role, rec)) => Item::Record { role, rec },
-                Err((role, reason)) => Item::Bad {
-                    pos: Position::Line(line_no),
-                    role,
-                    reason,
-                },
+                Err((role, reason)) => Item::Bad { pos: Position::Line(line_no), role, reason },
             });
         }
-        line_no += 1;
     }
 }
 
