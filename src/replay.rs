@@ -154,7 +154,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             from_workers.push(rx_out);
             let roles = &header_roles;
             let limits = &limits;
-            s.spawn(move || {
+            let decode = move || {
                 for frame in rx_in.iter() {
                     let mut items = Vec::new();
                     let (end, tail) = match frame {
@@ -166,10 +166,11 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
                         break;
                     }
                 }
-            });
+            };
+            spawn_named(s, "plumbline-decode", decode);
         }
         // The framer hashes what it reads, so the digest costs no second read.
-        let framer = s.spawn(move || {
+        let framer = spawn_named(s, "plumbline-frame", move || {
             let mut k = 0;
             let mut at = 0;
             while let Some(frame) = source.next_frame(at) {
@@ -265,6 +266,19 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         engine,
         stats,
     })
+}
+
+/// Spawns a named scoped thread (names show in `top -H` and `perf`). Spawning fails only
+/// when the OS is out of threads; the work then runs on the caller's thread.
+fn spawn_named<'s, 'e, T: Send + 's>(
+    s: &'s std::thread::Scope<'s, 'e>,
+    name: &str,
+    f: impl FnOnce() -> T + Send + 's,
+) -> std::thread::ScopedJoinHandle<'s, T> {
+    std::thread::Builder::new()
+        .name(name.into())
+        .spawn_scoped(s, f)
+        .expect("spawn a replay thread")
 }
 
 #[allow(clippy::too_many_arguments)]

@@ -140,7 +140,11 @@ impl RefSet {
     fn new(set: &ObjectSet) -> RefSet {
         let mut points = Vec::with_capacity(set.objects.len());
         align::points_of(set, None, &mut points);
-        RefSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points }
+        RefSet {
+            stamp: set.stamp,
+            ego_frame: align::is_ego_frame(set),
+            points,
+        }
     }
 }
 
@@ -281,7 +285,9 @@ impl Engine {
         }
         let deadline = arrival + self.ap.max_wait;
         match (role, msg) {
-            (Role::ReferenceObjects, Msg::Objects(set)) => self.ref_objects.insert(stamp, RefSet::new(&set)),
+            (Role::ReferenceObjects, Msg::Objects(set)) => {
+                self.ref_objects.insert(stamp, RefSet::new(&set))
+            }
             (Role::EstimateObjects, Msg::Objects(set)) => {
                 if self.tracks.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
@@ -421,8 +427,11 @@ impl Engine {
     }
 
     fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
-        let (mut xs, mut wa, mut wb) =
-            (std::mem::take(&mut self.xs), std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
+        let (mut xs, mut wa, mut wb) = (
+            std::mem::take(&mut self.xs),
+            std::mem::take(&mut self.wa),
+            std::mem::take(&mut self.wb),
+        );
         let mut index = std::mem::take(&mut self.index);
         xs.clear();
         let res = match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
@@ -443,7 +452,11 @@ impl Engine {
 
     /// A reference set's world-frame points: cached at arrival for world-frame sets, moved
     /// by the frame pose at the set's stamp into `scratch` for ego-frame sets.
-    fn ref_points<'a>(&self, set: &'a RefSet, scratch: &'a mut Vec<Point>) -> Result<&'a [Point], &'static str> {
+    fn ref_points<'a>(
+        &self,
+        set: &'a RefSet,
+        scratch: &'a mut Vec<Point>,
+    ) -> Result<&'a [Point], &'static str> {
         if !set.ego_frame {
             return Ok(&set.points);
         }

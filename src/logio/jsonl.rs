@@ -182,7 +182,11 @@ pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<
         if !line.iter().all(u8::is_ascii_whitespace) {
             out.push(match decode_line(cfg, limits, line) {
                 Ok((role, rec)) => Item::Record { role, rec },
-                Err((role, reason)) => Item::Bad { pos: Position::Line(line_no), role, reason },
+                Err((role, reason)) => Item::Bad {
+                    pos: Position::Line(line_no),
+                    role,
+                    reason,
+                },
             });
         }
     }
