@@ -12,18 +12,10 @@ fn scene(n: usize, dense: bool, seed: u64) -> (Vec<[f64; 2]>, Vec<[f64; 2]>) {
     // Dense: all objects in a 3 m square (cutoff 2 m). Sparse: spread over 200 m, each
     // estimate 0.3 m from its object on average.
     let side = if dense { 3.0 } else { 200.0 };
-    let xs: Vec<[f64; 2]> = (0..n)
-        .map(|_| [rng.random_range(0.0..side), rng.random_range(0.0..side)])
-        .collect();
-    let ys = xs
-        .iter()
-        .map(|p| {
-            [
-                p[0] + rng.random_range(-0.3..0.3),
-                p[1] + rng.random_range(-0.3..0.3),
-            ]
-        })
-        .collect();
+    let xs: Vec<[f64; 2]> =
+        (0..n).map(|_| [rng.random_range(0.0..side), rng.random_range(0.0..side)]).collect();
+    let ys =
+        xs.iter().map(|p| [p[0] + rng.random_range(-0.3..0.3), p[1] + rng.random_range(-0.3..0.3)]).collect();
     (xs, ys)
 }
 

@@ -15,13 +15,7 @@ fn bench(c: &mut Criterion) {
     let mut g = c.benchmark_group("replay_throughput");
     g.sample_size(10);
     for minimal in [true, false] {
-        let p = ScenarioParams {
-            duration: 60.0,
-            objects: 80,
-            rate_hz: 20.0,
-            minimal,
-            ..Default::default()
-        };
+        let p = ScenarioParams { duration: 60.0, objects: 80, rate_hz: 20.0, minimal, ..Default::default() };
         let records = generate(&cfg, &p);
         let states: u64 = records.iter().map(|r| r.msg.object_count() as u64).sum();
         for ext in ["jsonl", "plb"] {
@@ -35,17 +29,8 @@ fn bench(c: &mut Criterion) {
             let label = format!("{}-{ext}", if minimal { "lean" } else { "full" });
             g.bench_function(label, |b| {
                 b.iter(|| {
-                    let opts = ReplayOptions {
-                        series: None,
-                        progress: &|_| {},
-                        on_samples: None,
-                    };
-                    replay(&cfg, &path, opts)
-                        .expect("replay")
-                        .report
-                        .steps
-                        .tracking
-                        .evaluated
+                    let opts = ReplayOptions { series: None, progress: &|_| {}, on_samples: None };
+                    replay(&cfg, &path, opts).expect("replay").report.steps.tracking.evaluated
                 })
             });
         }

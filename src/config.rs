@@ -16,7 +16,10 @@ use sha2::{Digest, Sha256};
 use thiserror::Error;
 
 use crate::core::{AlignParams, EgoSource, TrackingParams};
+use crate::metrics::Metric;
 use crate::msg::{Limits, Role};
+use crate::rules::{Rule, RuleWindow, Severity};
+use crate::windows::Stat;
 
 /// A configuration error, naming where it came from.
 #[derive(Debug, Error)]
@@ -31,11 +34,7 @@ pub struct ConfigError {
 }
 
 fn err(source: &str, key: &str, expected: impl Into<String>) -> ConfigError {
-    ConfigError {
-        source_name: source.to_string(),
-        key: key.to_string(),
-        expected: expected.into(),
-    }
+    ConfigError { source_name: source.to_string(), key: key.to_string(), expected: expected.into() }
 }
 
 /// Stage one: what the user may write. Every section and key is optional.
@@ -66,6 +65,48 @@ pub struct RawConfig {
     /// `[monitor]`
     #[serde(default)]
     pub monitor: RawMonitor,
+    /// `[windows]`
+    #[serde(default)]
+    pub windows: RawWindows,
+    /// `[[rule]]`
+    #[serde(default)]
+    pub rule: Vec<RawRule>,
+}
+
+/// `[windows]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawWindows {
+    /// sliding window lengths
+    pub lengths: Option<Vec<toml::Value>>,
+    /// sub-buckets per window
+    pub buckets: Option<i64>,
+}
+
+/// One `[[rule]]`.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawRule {
+    /// unique name
+    pub name: String,
+    /// metric name (SPEC §5)
+    pub metric: String,
+    /// a duration or "run"
+    pub window: toml::Value,
+    /// count, mean, min, max, p50, p95, p99, last
+    pub stat: String,
+    /// fails above this
+    pub above: Option<f64>,
+    /// fails below this
+    pub below: Option<f64>,
+    /// how long the condition must hold before raising
+    pub sustain: Option<toml::Value>,
+    /// how long it must be false before clearing
+    pub clear_after: Option<toml::Value>,
+    /// info, warning or critical
+    pub severity: Option<String>,
+    /// role filter
+    pub role: Option<String>,
 }
 
 /// `[tracking]`
@@ -167,6 +208,14 @@ pub struct Config {
     pub report: ReportParams,
     /// key prefix for the monitor's publications
     pub prefix: String,
+    /// sliding window lengths (s), configured ones first, then any a rule adds
+    pub windows: Vec<f64>,
+    /// their labels as written (`10s`)
+    pub window_labels: Vec<String>,
+    /// sub-buckets per window
+    pub window_buckets: usize,
+    /// the rules
+    pub rules: Vec<Rule>,
 }
 
 /// The ego footprint rectangle relative to the pose origin.
@@ -192,8 +241,7 @@ pub struct ReportParams {
 impl Config {
     /// Built-in defaults (SPEC §7).
     pub fn defaults() -> Config {
-        Config::build(&RawConfig::default(), "built-in defaults")
-            .expect("built-in defaults are valid")
+        Config::build(&RawConfig::default(), "built-in defaults").expect("built-in defaults are valid")
     }
 
     /// Merges the sources and resolves. `file` is (name, text).
@@ -223,18 +271,10 @@ impl Config {
         for (name, key) in &raw.roles {
             let role = Role::from_name(name).ok_or_else(|| {
                 let names: Vec<_> = Role::ALL.iter().map(|r| r.name()).collect();
-                err(
-                    source,
-                    &format!("roles.{name}"),
-                    format!("a role, one of {}", names.join(", ")),
-                )
+                err(source, &format!("roles.{name}"), format!("a role, one of {}", names.join(", ")))
             })?;
             if key.is_empty() {
-                return Err(err(
-                    source,
-                    &format!("roles.{name}"),
-                    "a non-empty key expression",
-                ));
+                return Err(err(source, &format!("roles.{name}"), "a non-empty key expression"));
             }
             roles.push((role, key.clone()));
         }
@@ -274,18 +314,8 @@ impl Config {
             duration(source, "time.max_wait", &tm.max_wait, 0.5)?,
             duration(source, "time.tolerance", &tm.tolerance, 0.1)?,
             duration(source, "time.retain", &tm.retain, 2.0)?,
-            count(
-                source,
-                "limits.pending_steps",
-                raw.limits.pending_steps,
-                4096,
-            )?,
-            count(
-                source,
-                "limits.buffer_messages",
-                raw.limits.buffer_messages,
-                4096,
-            )?,
+            count(source, "limits.pending_steps", raw.limits.pending_steps, 4096)?,
+            count(source, "limits.buffer_messages", raw.limits.buffer_messages, 4096)?,
         )
         .map_err(|e| err(source, &e.key, e.expected))?;
 
@@ -296,47 +326,46 @@ impl Config {
             origin_to_rear: v.origin_to_rear.unwrap_or(1.0),
         };
         if !vehicle.origin_to_rear.is_finite() {
-            return Err(err(
-                source,
-                "vehicle.origin_to_rear",
-                "a finite number of metres",
-            ));
+            return Err(err(source, "vehicle.origin_to_rear", "a finite number of metres"));
         }
-        let http_listen = raw
-            .http
-            .listen
-            .clone()
-            .unwrap_or_else(|| "127.0.0.1:9464".into());
+        let http_listen = raw.http.listen.clone().unwrap_or_else(|| "127.0.0.1:9464".into());
         if http_listen.parse::<std::net::SocketAddr>().is_err() {
-            return Err(err(
-                source,
-                "http.listen",
-                "an address such as \"127.0.0.1:9464\"",
-            ));
+            return Err(err(source, "http.listen", "an address such as \"127.0.0.1:9464\""));
         }
-        let digits = count(
-            source,
-            "report.histogram_digits",
-            raw.report.histogram_digits,
-            3,
-        )?;
+        let digits = count(source, "report.histogram_digits", raw.report.histogram_digits, 3)?;
         if !(1..=5).contains(&digits) {
-            return Err(err(
-                source,
-                "report.histogram_digits",
-                "a whole number from 1 to 5",
-            ));
+            return Err(err(source, "report.histogram_digits", "a whole number from 1 to 5"));
         }
         let report = ReportParams {
-            exact_values: count(
-                source,
-                "report.exact_values",
-                raw.report.exact_values,
-                200_000,
-            )?,
+            exact_values: count(source, "report.exact_values", raw.report.exact_values, 200_000)?,
             histogram_digits: digits as u8,
         };
         let prefix = raw.monitor.prefix.clone().unwrap_or_else(|| "rig".into());
+        let (mut windows, mut window_labels) = (Vec::new(), Vec::new());
+        let default_lengths = ["1s", "10s", "60s"].map(|s| toml::Value::String(s.into()));
+        let lengths = raw.windows.lengths.as_deref().unwrap_or(&default_lengths);
+        for (i, v) in lengths.iter().enumerate() {
+            let key = format!("windows.lengths[{i}]");
+            let l = duration(source, &key, &Some(v.clone()), 0.0)?;
+            if l <= 0.0 {
+                return Err(err(source, &key, "a duration > 0"));
+            }
+            windows.push(l);
+            window_labels.push(v.as_str().unwrap_or_default().to_string());
+        }
+        let window_buckets = count(source, "windows.buckets", raw.windows.buckets, 10)?;
+        if window_buckets > 1000 {
+            return Err(err(source, "windows.buckets", "a whole number from 1 to 1000"));
+        }
+        let mut rules = Vec::new();
+        for (i, r) in raw.rule.iter().enumerate() {
+            let rule = build_rule(source, i, r, &mut windows, &mut window_labels)?;
+            if rules.iter().any(|q: &Rule| q.name == rule.name) {
+                let why = format!("a unique name; \"{}\" is used twice", rule.name);
+                return Err(err(source, &format!("rule[{i}].name"), why));
+            }
+            rules.push(rule);
+        }
         Ok(Config {
             roles,
             tracking,
@@ -346,23 +375,21 @@ impl Config {
             max_objects,
             report,
             prefix,
+            windows,
+            window_labels,
+            window_buckets,
+            rules,
         })
     }
 
     /// Message validation limits.
     pub fn limits(&self) -> Limits {
-        Limits {
-            max_objects: self.max_objects,
-        }
+        Limits { max_objects: self.max_objects }
     }
 
     /// The key expression bound to a role.
     pub fn key_of(&self, role: Role) -> &str {
-        self.roles
-            .iter()
-            .find(|(r, _)| *r == role)
-            .map(|(_, k)| k.as_str())
-            .unwrap_or("")
+        self.roles.iter().find(|(r, _)| *r == role).map(|(_, k)| k.as_str()).unwrap_or("")
     }
 
     /// The role bound to an exact key, if any.
@@ -379,6 +406,75 @@ impl Config {
     }
 }
 
+fn build_rule(
+    source: &str,
+    i: usize,
+    r: &RawRule,
+    windows: &mut Vec<f64>,
+    labels: &mut Vec<String>,
+) -> Result<Rule, ConfigError> {
+    let key = |k: &str| format!("rule[{i}].{k}");
+    let metric = Metric::from_name(&r.metric).ok_or_else(|| {
+        let names: Vec<_> = Metric::ALL.iter().map(|m| m.name()).collect();
+        err(source, &key("metric"), format!("a metric, one of {}; found \"{}\"", names.join(", "), r.metric))
+    })?;
+    let stat = Stat::from_name(&r.stat).ok_or_else(|| {
+        err(source, &key("stat"), format!("one of {}; found \"{}\"", Stat::NAMES.join(", "), r.stat))
+    })?;
+    let (above, threshold) = match (r.above, r.below) {
+        (Some(a), None) if a.is_finite() => (true, a),
+        (None, Some(b)) if b.is_finite() => (false, b),
+        _ => return Err(err(source, &key("above"), "exactly one of `above` or `below`, a finite number")),
+    };
+    let window = match &r.window {
+        toml::Value::String(s) if s == "run" => RuleWindow::Run,
+        v => {
+            let l = duration(source, &key("window"), &Some(v.clone()), 0.0)?;
+            if l <= 0.0 {
+                return Err(err(source, &key("window"), "a duration > 0 or \"run\""));
+            }
+            let idx = match windows.iter().position(|&w| (w - l).abs() < 1e-9) {
+                Some(idx) => idx,
+                None => {
+                    windows.push(l);
+                    labels.push(v.as_str().unwrap_or_default().to_string());
+                    windows.len() - 1
+                }
+            };
+            RuleWindow::Sliding(idx)
+        }
+    };
+    let severity = match r.severity.as_deref() {
+        None => Severity::Warning,
+        Some(s) => Severity::from_name(s).ok_or_else(|| {
+            err(source, &key("severity"), format!("info, warning or critical; found \"{s}\""))
+        })?,
+    };
+    let role = match r.role.as_deref() {
+        None => None,
+        Some(s) => Some(
+            Role::from_name(s)
+                .ok_or_else(|| err(source, &key("role"), format!("a role name; found \"{s}\"")))?,
+        ),
+    };
+    if r.name.trim().is_empty() {
+        return Err(err(source, &key("name"), "a non-empty name"));
+    }
+    Ok(Rule {
+        name: r.name.clone(),
+        metric,
+        role,
+        window_label: r.window.as_str().unwrap_or_default().to_string(),
+        window,
+        stat,
+        above,
+        threshold,
+        sustain: duration(source, &key("sustain"), &r.sustain, 0.0)?,
+        clear_after: duration(source, &key("clear_after"), &r.clear_after, 0.0)?,
+        severity,
+    })
+}
+
 fn check_raw(table: &toml::Table, source: &str) -> Result<RawConfig, ConfigError> {
     let value = toml::Value::Table(table.clone());
     serde_path_to_error::deserialize::<_, RawConfig>(value).map_err(|e| {
@@ -390,9 +486,8 @@ fn check_raw(table: &toml::Table, source: &str) -> Result<RawConfig, ConfigError
 
 /// Applies `section.key=value`; the value is read as a TOML value, else as a string.
 fn apply_set(table: &mut toml::Table, s: &str) -> Result<(), (String, String)> {
-    let (path, value) = s
-        .split_once('=')
-        .ok_or_else(|| (s.to_string(), "the form section.key=value".to_string()))?;
+    let (path, value) =
+        s.split_once('=').ok_or_else(|| (s.to_string(), "the form section.key=value".to_string()))?;
     let path = path.trim();
     let parts: Vec<&str> = if let Some(rest) = path.strip_prefix("roles.") {
         // Role names contain a slash and may be quoted: roles."estimate/objects"
@@ -409,9 +504,7 @@ fn apply_set(table: &mut toml::Table, s: &str) -> Result<(), (String, String)> {
         .ok()
         .and_then(|mut t| t.remove("v"))
         .unwrap_or_else(|| toml::Value::String(text.to_string()));
-    let section = table
-        .entry(parts[0].to_string())
-        .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+    let section = table.entry(parts[0].to_string()).or_insert_with(|| toml::Value::Table(toml::Table::new()));
     match section {
         toml::Value::Table(t) => {
             t.insert(parts[1].to_string(), parsed);
@@ -440,18 +533,9 @@ pub fn parse_duration(s: &str) -> Option<f64> {
 }
 
 /// Reads a duration key: a string with a unit.
-pub fn duration(
-    source: &str,
-    key: &str,
-    v: &Option<toml::Value>,
-    default: f64,
-) -> Result<f64, ConfigError> {
+pub fn duration(source: &str, key: &str, v: &Option<toml::Value>, default: f64) -> Result<f64, ConfigError> {
     let bad = |found: String| {
-        err(
-            source,
-            key,
-            format!("a duration with a unit such as \"500ms\", \"10s\", \"2m\"; found {found}"),
-        )
+        err(source, key, format!("a duration with a unit such as \"500ms\", \"10s\", \"2m\"; found {found}"))
     };
     match v {
         None => Ok(default),
@@ -464,11 +548,7 @@ fn count(source: &str, key: &str, v: Option<i64>, default: usize) -> Result<usiz
     match v {
         None => Ok(default),
         Some(n) if n > 0 => Ok(n as usize),
-        Some(n) => Err(err(
-            source,
-            key,
-            format!("a positive whole number, found {n}"),
-        )),
+        Some(n) => Err(err(source, key, format!("a positive whole number, found {n}"))),
     }
 }
 
@@ -476,11 +556,7 @@ fn positive(source: &str, key: &str, v: Option<f64>, default: f64) -> Result<f64
     match v {
         None => Ok(default),
         Some(x) if x.is_finite() && x > 0.0 => Ok(x),
-        Some(x) => Err(err(
-            source,
-            key,
-            format!("a positive number of metres, found {x}"),
-        )),
+        Some(x) => Err(err(source, key, format!("a positive number of metres, found {x}"))),
     }
 }
 
@@ -503,8 +579,7 @@ mod tests {
 
     #[test]
     fn unknown_key_names_file_and_key() {
-        let e =
-            Config::load(Some(("site.toml", "[tracking]\ncutoff_mm = 3.0\n")), &[]).unwrap_err();
+        let e = Config::load(Some(("site.toml", "[tracking]\ncutoff_mm = 3.0\n")), &[]).unwrap_err();
         assert_eq!(e.source_name, "site.toml");
         assert_eq!(e.key, "tracking.cutoff_mm");
         assert!(e.expected.contains("cutoff_m"), "{e}");
@@ -514,10 +589,7 @@ mod tests {
     fn wrong_type_names_key() {
         let e = Config::load(Some(("a.toml", "[tracking]\norder = \"two\"\n")), &[]).unwrap_err();
         assert_eq!(e.key, "tracking.order");
-        assert!(
-            e.expected.contains("f64") || e.expected.contains("float"),
-            "{e}"
-        );
+        assert!(e.expected.contains("f64") || e.expected.contains("float"), "{e}");
     }
 
     #[test]
@@ -543,12 +615,28 @@ mod tests {
     fn roles_rebind_and_reject_unknown() {
         let c = Config::load(None, &["roles.\"estimate/objects\"=car7/tracks".into()]).unwrap();
         assert_eq!(c.role_of("car7/tracks"), Some(Role::EstimateObjects));
-        let e = Config::load(
-            Some(("r.toml", "[roles]\n\"estimate/blobs\" = \"x\"\n")),
-            &[],
-        )
-        .unwrap_err();
+        let e = Config::load(Some(("r.toml", "[roles]\n\"estimate/blobs\" = \"x\"\n")), &[]).unwrap_err();
         assert_eq!(e.key, "roles.estimate/blobs");
+    }
+
+    #[test]
+    fn rules_are_validated_with_their_index() {
+        let ok = "[[rule]]\nname = \"g\"\nmetric = \"gospa\"\nwindow = \"5s\"\nstat = \"mean\"\nabove = 1.0\nsustain = \"2s\"\nseverity = \"critical\"\n";
+        let c = Config::load(Some(("r.toml", ok)), &[]).unwrap();
+        assert_eq!(c.rules.len(), 1);
+        assert_eq!(c.windows, vec![1.0, 10.0, 60.0, 5.0]);
+        assert_eq!(c.rules[0].sustain, 2.0);
+        let bad = ok.replace("mean", "median");
+        let e = Config::load(Some(("r.toml", &bad)), &[]).unwrap_err();
+        assert_eq!(e.key, "rule[0].stat");
+        let bad = ok.replace("above = 1.0", "above = 1.0\nbelow = 0.5");
+        assert_eq!(Config::load(Some(("r.toml", &bad)), &[]).unwrap_err().key, "rule[0].above");
+        let bad = ok.replace("gospa", "gospa_total");
+        assert_eq!(Config::load(Some(("r.toml", &bad)), &[]).unwrap_err().key, "rule[0].metric");
+        let bad = ok.replace("\"5s\"", "5");
+        assert_eq!(Config::load(Some(("r.toml", &bad)), &[]).unwrap_err().key, "rule[0].window");
+        let bad = ok.replace("name = \"g\"", "nam = \"g\"");
+        assert!(Config::load(Some(("r.toml", &bad)), &[]).unwrap_err().key.starts_with("rule[0]"));
     }
 
     #[test]

@@ -137,18 +137,7 @@ pub struct Object {
 impl Object {
     /// An object with only the required fields.
     pub fn at(id: u64, x: f64, y: f64) -> Object {
-        Object {
-            id,
-            x,
-            y,
-            vx: None,
-            vy: None,
-            yaw: None,
-            length: None,
-            width: None,
-            cov: None,
-            class: None,
-        }
+        Object { id, x, y, vx: None, vy: None, yaw: None, length: None, width: None, cov: None, class: None }
     }
 }
 
@@ -435,9 +424,7 @@ pub struct Limits {
 
 impl Default for Limits {
     fn default() -> Self {
-        Limits {
-            max_objects: 10_000,
-        }
+        Limits { max_objects: 10_000 }
     }
 }
 
@@ -494,10 +481,7 @@ pub fn validate(msg: &Msg, limits: &Limits) -> Result<(), Reject> {
     match msg {
         Msg::Objects(set) => {
             if set.objects.len() > limits.max_objects {
-                return Err(Reject::TooManyObjects(
-                    set.objects.len(),
-                    limits.max_objects,
-                ));
+                return Err(Reject::TooManyObjects(set.objects.len(), limits.max_objects));
             }
             for o in &set.objects {
                 finite("x", o.x)?;
@@ -530,10 +514,7 @@ pub fn validate(msg: &Msg, limits: &Limits) -> Result<(), Reject> {
         }
         Msg::Obstacles(set) => {
             if set.obstacles.len() > limits.max_objects {
-                return Err(Reject::TooManyObjects(
-                    set.obstacles.len(),
-                    limits.max_objects,
-                ));
+                return Err(Reject::TooManyObjects(set.obstacles.len(), limits.max_objects));
             }
             for o in &set.obstacles {
                 check_obstacle(o)?;
@@ -579,20 +560,14 @@ fn check_obstacle(o: &Obstacle) -> Result<(), Reject> {
             need("x", o.x)?;
             need("y", o.y)?;
             if need("radius", o.radius)? < 0.0 {
-                return Err(Reject::BadObstacle(format!(
-                    "obstacle {}: negative radius",
-                    o.id
-                )));
+                return Err(Reject::BadObstacle(format!("obstacle {}: negative radius", o.id)));
             }
         }
         Shape::Box => {
             need("x", o.x)?;
             need("y", o.y)?;
             if need("length", o.length)? < 0.0 || need("width", o.width)? < 0.0 {
-                return Err(Reject::BadObstacle(format!(
-                    "obstacle {}: negative size",
-                    o.id
-                )));
+                return Err(Reject::BadObstacle(format!("obstacle {}: negative size", o.id)));
             }
         }
         Shape::Polygon => {
@@ -634,39 +609,18 @@ mod tests {
     #[test]
     fn rejections_carry_reasons() {
         let cases = [
-            (
-                r#"{"stamp": 1, "objects": [{"id": 1, "x": 1}]}"#,
-                "missing_field",
-            ),
-            (
-                r#"{"stamp": 1, "objects": [{"id": 1, "x": "a", "y": 2}]}"#,
-                "wrong_type",
-            ),
+            (r#"{"stamp": 1, "objects": [{"id": 1, "x": 1}]}"#, "missing_field"),
+            (r#"{"stamp": 1, "objects": [{"id": 1, "x": "a", "y": 2}]}"#, "wrong_type"),
             (r#"{"stamp": 1e999, "objects": []}"#, "non_finite"),
-            (
-                r#"{"stamp": 1, "objects": [{"id": -1, "x": 1, "y": 2}]}"#,
-                "bad_id",
-            ),
-            (
-                r#"{"stamp": 1, "objects": [{"id": 1.5, "x": 1, "y": 2}]}"#,
-                "bad_id",
-            ),
-            (
-                r#"{"stamp": 1, "objects": [{"id": 18446744073709551616, "x": 1, "y": 2}]}"#,
-                "bad_id",
-            ),
+            (r#"{"stamp": 1, "objects": [{"id": -1, "x": 1, "y": 2}]}"#, "bad_id"),
+            (r#"{"stamp": 1, "objects": [{"id": 1.5, "x": 1, "y": 2}]}"#, "bad_id"),
+            (r#"{"stamp": 1, "objects": [{"id": 18446744073709551616, "x": 1, "y": 2}]}"#, "bad_id"),
             (
                 r#"{"stamp": 1, "objects": [{"id": 1, "x": 1, "y": 2}, {"id": 1, "x": 3, "y": 4}]}"#,
                 "duplicate_id",
             ),
-            (
-                r#"{"stamp": 1, "frame": "map", "objects": []}"#,
-                "bad_frame",
-            ),
-            (
-                r#"{"stamp": 1, "objects": [{"id": 1, "x": NaN, "y": 2}]}"#,
-                "malformed",
-            ),
+            (r#"{"stamp": 1, "frame": "map", "objects": []}"#, "bad_frame"),
+            (r#"{"stamp": 1, "objects": [{"id": 1, "x": NaN, "y": 2}]}"#, "malformed"),
             (r#"{"stamp": 1, "objects": ["#, "malformed"),
             (
                 r#"{"stamp": 1, "objects": [{"id": 1, "x": 1, "y": 2, "cov": [1, 0, 0, -1]}]}"#,
@@ -697,40 +651,19 @@ mod tests {
             {"id": 2, "shape": "box", "x": 3.0, "y": 4.0, "yaw": 0.0, "length": 2.0, "width": 1.0},
             {"id": 3, "shape": "polygon", "points": [[0,0],[2,0],[2,1]]}]}"#;
         assert!(decode_json(MsgKind::Obstacles, ok, &l).is_ok());
-        let bad =
-            r#"{"stamp": 0, "obstacles": [{"id": 1, "shape": "circle", "x": 3.0, "y": 4.0}]}"#;
-        assert_eq!(
-            decode_json(MsgKind::Obstacles, bad, &l).unwrap_err().code(),
-            "bad_obstacle"
-        );
+        let bad = r#"{"stamp": 0, "obstacles": [{"id": 1, "shape": "circle", "x": 3.0, "y": 4.0}]}"#;
+        assert_eq!(decode_json(MsgKind::Obstacles, bad, &l).unwrap_err().code(), "bad_obstacle");
         let bad = r#"{"stamp": 0, "obstacles": [{"id": 1, "shape": "blob"}]}"#;
-        assert_eq!(
-            decode_json(MsgKind::Obstacles, bad, &l).unwrap_err().code(),
-            "bad_obstacle"
-        );
+        assert_eq!(decode_json(MsgKind::Obstacles, bad, &l).unwrap_err().code(), "bad_obstacle");
     }
 
     #[test]
     fn postcard_round_trip_and_nonfinite_rejected() {
         let l = Limits::default();
-        let m = Msg::Pose(Pose {
-            stamp: 1.5,
-            x: 1.0,
-            y: 2.0,
-            yaw: 0.5,
-            v: Some(3.0),
-            cov: None,
-        });
+        let m = Msg::Pose(Pose { stamp: 1.5, x: 1.0, y: 2.0, yaw: 0.5, v: Some(3.0), cov: None });
         let b = m.to_postcard();
         assert_eq!(decode_postcard(MsgKind::Pose, &b, &l).unwrap(), m);
-        let bad = Msg::Pose(Pose {
-            stamp: 1.5,
-            x: f64::NAN,
-            y: 2.0,
-            yaw: 0.5,
-            v: None,
-            cov: None,
-        });
+        let bad = Msg::Pose(Pose { stamp: 1.5, x: f64::NAN, y: 2.0, yaw: 0.5, v: None, cov: None });
         let e = decode_postcard(MsgKind::Pose, &bad.to_postcard(), &l).unwrap_err();
         assert_eq!(e.code(), "non_finite");
     }
@@ -738,11 +671,7 @@ mod tests {
     #[test]
     fn object_limit_applies() {
         let l = Limits { max_objects: 1 };
-        let t =
-            r#"{"stamp": 1, "objects": [{"id": 1, "x": 1, "y": 2}, {"id": 2, "x": 3, "y": 4}]}"#;
-        assert_eq!(
-            decode_json(MsgKind::Objects, t, &l).unwrap_err().code(),
-            "too_many_objects"
-        );
+        let t = r#"{"stamp": 1, "objects": [{"id": 1, "x": 1, "y": 2}, {"id": 2, "x": 3, "y": 4}]}"#;
+        assert_eq!(decode_json(MsgKind::Objects, t, &l).unwrap_err().code(), "too_many_objects");
     }
 }

@@ -10,10 +10,12 @@ use std::path::Path;
 use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
 
 use crate::config::Config;
-use crate::core::engine::{Engine, Input, Sample};
+use crate::core::engine::{Input, Sample};
 use crate::logio::chunks::{Frame, LineFramer, RecordFramer};
 use crate::logio::{jsonl, plb, Form, Item, LogError, Tail};
-use crate::report::{series_row, BadRecord, Report, RunInputs, RunStats, SERIES_HEADER};
+use crate::monitor::Monitor;
+use crate::report::{series_row, BadRecord, Report, RunInputs, SERIES_HEADER};
+use crate::rules::AlertEvent;
 
 /// Chunks in flight per decoding worker.
 const IN_FLIGHT: usize = 2;
@@ -24,14 +26,12 @@ pub const KEEP_BAD: usize = 100;
 pub struct Replayed {
     /// The report.
     pub report: Report,
-    /// The engine after the run (counters, transport).
-    pub engine: Engine,
-    /// Run statistics.
-    pub stats: RunStats,
+    /// The monitor after the run (engine counters, statistics, windows, rules).
+    pub monitor: Monitor,
 }
 
 /// A callback fed every batch of samples.
-pub type SampleHook<'a> = dyn FnMut(&[Sample]) + 'a;
+pub type SampleHook<'a> = dyn FnMut(&[Sample], &[AlertEvent]) + 'a;
 
 /// Options for one replay.
 pub struct ReplayOptions<'a> {
@@ -39,7 +39,7 @@ pub struct ReplayOptions<'a> {
     pub series: Option<&'a mut dyn Write>,
     /// Called with bytes read so far.
     pub progress: &'a (dyn Fn(u64) + Sync),
-    /// Called with every batch of samples (for windows and rules).
+    /// Called with every batch of samples and alert events.
     pub on_samples: Option<&'a mut SampleHook<'a>>,
 }
 
@@ -63,10 +63,10 @@ impl Source {
     fn open(path: &Path) -> Result<Source, LogError> {
         Ok(match Form::of(path) {
             Form::Jsonl => Source::Lines(
-                LineFramer::new(File::open(path).map_err(|source| LogError::Io {
-                    path: path.display().to_string(),
-                    source,
-                })?)
+                LineFramer::new(
+                    File::open(path)
+                        .map_err(|source| LogError::Io { path: path.display().to_string(), source })?,
+                )
                 .hashing(&[]),
             ),
             Form::Plb => {
@@ -89,12 +89,7 @@ impl Source {
             Source::Lines(f) => f.next_frame(),
             Source::Records(_, f) => f.next_frame(),
         };
-        r.unwrap_or_else(|e| {
-            Some(Frame::Tail(Tail {
-                offset: at,
-                reason: format!("read error: {e}"),
-            }))
-        })
+        r.unwrap_or_else(|e| Some(Frame::Tail(Tail { offset: at, reason: format!("read error: {e}") })))
     }
 
     /// The SHA-256 of the whole file (the rest is read if the replay stopped early).
@@ -114,23 +109,17 @@ struct Decoded {
 }
 
 fn workers() -> usize {
-    std::thread::available_parallelism()
-        .map_or(2, |n| n.get())
-        .clamp(1, 4)
+    std::thread::available_parallelism().map_or(2, |n| n.get()).clamp(1, 4)
 }
 
 /// Replays one log file.
 pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Replayed, ReplayError> {
-    let ReplayOptions {
-        mut series,
-        progress,
-        mut on_samples,
-    } = opts;
+    let ReplayOptions { mut series, progress, mut on_samples } = opts;
     let mut source = Source::open(path)?;
     let header_roles: Vec<(String, String)> = source.roles().to_vec();
     let limits = cfg.limits();
-    let mut engine = Engine::new(cfg.tracking, cfg.align);
-    let mut stats = RunStats::new(cfg);
+    let mut monitor = Monitor::new(cfg);
+    let mut events: Vec<AlertEvent> = Vec::new();
     let mut first_bad = Vec::new();
     let mut samples: Vec<Sample> = Vec::with_capacity(4096);
     let mut text = String::new();
@@ -138,8 +127,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     let mut tail = None;
     let mut write_err = None;
     if let Some(w) = series.as_mut() {
-        w.write_all(SERIES_HEADER.as_bytes())
-            .map_err(ReplayError::Series)?;
+        w.write_all(SERIES_HEADER.as_bytes()).map_err(ReplayError::Series)?;
     }
     let n = workers();
     let is_lines = matches!(source, Source::Lines(_));
@@ -192,26 +180,17 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             k += 1;
             for item in d.items {
                 match item {
-                    Item::Record { role, rec } => engine.push(
-                        Input::Message {
-                            role,
-                            recv: rec.recv,
-                            msg: rec.msg,
-                        },
-                        &mut samples,
-                    ),
+                    Item::Record { role, rec } => {
+                        let input = Input::Message { role, recv: rec.recv, msg: rec.msg };
+                        monitor.push(input, &mut samples, &mut events)
+                    }
                     Item::Bad { pos, role, reason } => {
                         tracing::debug!(%pos, role = role.map(|r| r.name()), reason = %reason, "rejected record");
                         if first_bad.len() < KEEP_BAD {
                             first_bad.push(BadRecord::new(pos, role, &reason));
                         }
-                        engine.push(
-                            Input::Rejected {
-                                role,
-                                reason: reason.code(),
-                            },
-                            &mut samples,
-                        );
+                        let input = Input::Rejected { role, reason: reason.code() };
+                        monitor.push(input, &mut samples, &mut events);
                     }
                 }
             }
@@ -219,7 +198,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             if write_err.is_none() {
                 write_err = emit(
                     &mut samples,
-                    &mut stats,
+                    &mut events,
                     &mut on_samples,
                     &mut series,
                     &mut text,
@@ -228,7 +207,6 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
                 )
                 .err();
             }
-            samples.clear();
             if d.tail.is_some() {
                 tail = d.tail;
                 break;
@@ -236,18 +214,11 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         }
         // Dropping the receivers stops the workers and the framer if we left early.
         drop(from_workers);
-        engine.finish(&mut samples);
+        monitor.finish(&mut samples, &mut events);
         if write_err.is_none() {
-            write_err = emit(
-                &mut samples,
-                &mut stats,
-                &mut on_samples,
-                &mut series,
-                &mut text,
-                &mut ryu_buf,
-                true,
-            )
-            .err();
+            write_err =
+                emit(&mut samples, &mut events, &mut on_samples, &mut series, &mut text, &mut ryu_buf, true)
+                    .err();
         }
         framer.join().unwrap_or_default()
     });
@@ -260,12 +231,8 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         first_rejected: first_bad,
         tail,
     };
-    let report = Report::build(cfg, &engine, &stats, inputs);
-    Ok(Replayed {
-        report,
-        engine,
-        stats,
-    })
+    let report = Report::build(cfg, &monitor, inputs);
+    Ok(Replayed { report, monitor })
 }
 
 /// Spawns a named scoped thread (names show in `top -H` and `perf`). Spawning fails only
@@ -275,25 +242,21 @@ fn spawn_named<'s, 'e, T: Send + 's>(
     name: &str,
     f: impl FnOnce() -> T + Send + 's,
 ) -> std::thread::ScopedJoinHandle<'s, T> {
-    std::thread::Builder::new()
-        .name(name.into())
-        .spawn_scoped(s, f)
-        .expect("spawn a replay thread")
+    std::thread::Builder::new().name(name.into()).spawn_scoped(s, f).expect("spawn a replay thread")
 }
 
 #[allow(clippy::too_many_arguments)]
 fn emit(
     samples: &mut Vec<Sample>,
-    stats: &mut RunStats,
+    events: &mut Vec<AlertEvent>,
     hook: &mut Option<&mut SampleHook<'_>>,
     series: &mut Option<&mut dyn Write>,
     text: &mut String,
     ryu_buf: &mut ryu::Buffer,
     force: bool,
 ) -> std::io::Result<()> {
-    stats.add(samples);
     if let Some(f) = hook.as_mut() {
-        f(samples);
+        f(samples, events);
     }
     if let Some(w) = series.as_mut() {
         for smp in samples.iter() {
@@ -308,5 +271,6 @@ fn emit(
         }
     }
     samples.clear();
+    events.clear();
     Ok(())
 }

@@ -6,12 +6,15 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use crate::config::Config;
-use crate::core::engine::{Counters, Engine, Sample, StepCounts};
+use crate::core::engine::{Counters, Sample, StepCounts};
 use crate::logio::{Position, Tail};
 use crate::metrics::nees::Consistency;
 use crate::metrics::Metric;
+use crate::monitor::Monitor;
 use crate::msg::Role;
+use crate::rules::{AlertEvent, Verdict};
 use crate::stats::{Stats, Summary};
+use crate::windows::Stat;
 
 const SLOTS: usize = Role::ALL.len() + 1;
 
@@ -49,9 +52,23 @@ impl RunStats {
 
     /// Statistics of one metric, if it has values.
     pub fn get(&self, metric: Metric, role: Option<Role>) -> Option<Stats> {
-        self.slots[Self::slot(metric, role)]
-            .as_ref()
-            .and_then(Summary::stats)
+        self.slots[Self::slot(metric, role)].as_ref().and_then(Summary::stats)
+    }
+
+    /// One statistic of the run (exact mean, min, max, count, last).
+    pub fn stat(&self, metric: Metric, role: Option<Role>, stat: Stat) -> Option<f64> {
+        let s = self.slots[Self::slot(metric, role)].as_ref()?;
+        let st = s.stats()?;
+        Some(match stat {
+            Stat::Count => st.count as f64,
+            Stat::Mean => st.mean,
+            Stat::Min => st.min,
+            Stat::Max => st.max,
+            Stat::P50 => st.p50,
+            Stat::P95 => st.p95,
+            Stat::P99 => st.p99,
+            Stat::Last => s.last()?,
+        })
     }
 
     /// Whether every percentile so far is exact.
@@ -141,38 +158,6 @@ pub struct PercentileMethod {
     pub histogram_digits: u8,
 }
 
-/// An alert event (filled by the rules engine).
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct AlertEvent {
-    /// Rule name.
-    pub rule: String,
-    /// `raised` or `cleared`.
-    pub kind: &'static str,
-    /// Event time (s).
-    pub t: f64,
-    /// The value.
-    pub value: f64,
-    /// The threshold.
-    pub threshold: f64,
-    /// Severity.
-    pub severity: String,
-}
-
-/// A rule's verdict.
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct Verdict {
-    /// Rule name.
-    pub rule: String,
-    /// `pass` or `fail`.
-    pub verdict: &'static str,
-    /// Worst value seen.
-    pub worst: Option<f64>,
-    /// Threshold.
-    pub threshold: f64,
-    /// Severity.
-    pub severity: String,
-}
-
 /// The report of one run.
 #[derive(Debug, Clone, Serialize)]
 pub struct Report {
@@ -202,8 +187,10 @@ pub struct Report {
     pub transport: BTreeMap<&'static str, RoleTransport>,
     /// Percentile method.
     pub percentiles: PercentileMethod,
-    /// Alert events.
+    /// Alert events (the first `monitor::KEEP_ALERTS`).
     pub alerts: Vec<AlertEvent>,
+    /// Alert events not kept.
+    pub alerts_dropped: u64,
     /// Rule verdicts.
     pub verdicts: Vec<Verdict>,
 }
@@ -223,7 +210,8 @@ pub struct RunInputs {
 
 impl Report {
     /// Builds the report.
-    pub fn build(cfg: &Config, engine: &Engine, stats: &RunStats, inputs: RunInputs) -> Report {
+    pub fn build(cfg: &Config, monitor: &Monitor, inputs: RunInputs) -> Report {
+        let (engine, stats) = (&monitor.engine, &monitor.stats);
         let c: &Counters = engine.counters();
         let mut metrics = BTreeMap::new();
         let mut totals = BTreeMap::new();
@@ -287,16 +275,13 @@ impl Report {
             nees_consistency: engine.nees_pool().consistency(),
             transport,
             percentiles: PercentileMethod {
-                method: if stats.all_exact() {
-                    "exact-linear"
-                } else {
-                    "hdr"
-                },
+                method: if stats.all_exact() { "exact-linear" } else { "hdr" },
                 exact_values: cfg.report.exact_values,
                 histogram_digits: cfg.report.histogram_digits,
             },
-            alerts: Vec::new(),
-            verdicts: Vec::new(),
+            alerts: monitor.alerts().to_vec(),
+            alerts_dropped: monitor.alerts_dropped,
+            verdicts: monitor.verdicts(),
         }
     }
 

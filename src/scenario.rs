@@ -40,14 +40,7 @@ pub struct ScenarioParams {
 
 impl Default for ScenarioParams {
     fn default() -> Self {
-        ScenarioParams {
-            seed: 1,
-            duration: 60.0,
-            objects: 14,
-            noise: 0.12,
-            rate_hz: 10.0,
-            minimal: false,
-        }
+        ScenarioParams { seed: 1, duration: 60.0, objects: 14, noise: 0.12, rate_hz: 10.0, minimal: false }
     }
 }
 
@@ -72,11 +65,7 @@ pub fn loop_pose(s: f64) -> (f64, f64, f64) {
         (STRAIGHT - (s - STRAIGHT - arc), BEND, PI)
     } else {
         let a = (s - 2.0 * STRAIGHT - arc) / BEND + PI / 2.0;
-        (
-            BEND * a.cos(),
-            BEND * a.sin(),
-            crate::metrics::ego::wrap_angle(a + PI / 2.0),
-        )
+        (BEND * a.cos(), BEND * a.sin(), crate::metrics::ego::wrap_angle(a + PI / 2.0))
     }
 }
 
@@ -102,11 +91,7 @@ impl Actor {
 }
 
 fn rec(cfg: &Config, role: Role, recv: f64, msg: Msg) -> LogRecord {
-    LogRecord {
-        key: cfg.key_of(role).to_string(),
-        recv: Some(round6(recv)),
-        msg,
-    }
+    LogRecord { key: cfg.key_of(role).to_string(), recv: Some(round6(recv)), msg }
 }
 
 /// Rounds to a microsecond so logs stay short and exact.
@@ -123,24 +108,13 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
     let mut rng = ChaCha8Rng::seed_from_u64(p.seed);
     let unit = Normal::new(0.0, 1.0).expect("unit normal");
     let mut actors = Vec::new();
-    let classes = [
-        ("pedestrian", 1.4, (0.5, 0.5)),
-        ("cart", 3.0, (2.4, 1.2)),
-        ("bike", 0.0, (1.8, 0.6)),
-    ];
+    let classes = [("pedestrian", 1.4, (0.5, 0.5)), ("cart", 3.0, (2.4, 1.2)), ("bike", 0.0, (1.8, 0.6))];
     for k in 0..p.objects {
         let (class, speed, size) = classes[k % classes.len()];
         let whole = k < p.objects / 2;
-        let born = if whole {
-            0.0
-        } else {
-            rng.random_range(0.0..p.duration * 0.7)
-        };
-        let dies = if whole {
-            p.duration + 1.0
-        } else {
-            (born + rng.random_range(8.0..30.0)).min(p.duration + 1.0)
-        };
+        let born = if whole { 0.0 } else { rng.random_range(0.0..p.duration * 0.7) };
+        let dies =
+            if whole { p.duration + 1.0 } else { (born + rng.random_range(8.0..30.0)).min(p.duration + 1.0) };
         let heading: f64 = rng.random_range(-std::f64::consts::PI..std::f64::consts::PI);
         let sp = speed * rng.random_range(0.6..1.2);
         actors.push(Actor {
@@ -149,10 +123,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             class,
             born,
             dies,
-            p0: (
-                rng.random_range(-10.0..STRAIGHT + 10.0),
-                rng.random_range(-BEND - 8.0..BEND + 8.0),
-            ),
+            p0: (rng.random_range(-10.0..STRAIGHT + 10.0), rng.random_range(-BEND - 8.0..BEND + 8.0)),
             v: (sp * heading.cos(), sp * heading.sin()),
             size,
             confirm: rng.random_range(0.15..0.45),
@@ -223,23 +194,10 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             radius: None,
             length: None,
             width: None,
-            points: Some(vec![
-                [-22.0, -4.0],
-                [-19.0, -4.0],
-                [-19.0, 4.0],
-                [-22.0, 4.0],
-            ]),
+            points: Some(vec![[-22.0, -4.0], [-19.0, -4.0], [-19.0, 4.0], [-22.0, 4.0]]),
         },
     ];
-    out.push(rec(
-        cfg,
-        Role::ReferenceObstacles,
-        0.0,
-        Msg::Obstacles(ObstacleSet {
-            stamp: 0.0,
-            obstacles,
-        }),
-    ));
+    out.push(rec(cfg, Role::ReferenceObstacles, 0.0, Msg::Obstacles(ObstacleSet { stamp: 0.0, obstacles })));
 
     // Reference ego at 50 Hz; estimated ego at 20 Hz with drift reset every 20 s.
     let n_ego = (p.duration * 50.0) as usize;
@@ -315,11 +273,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             cfg,
             Role::ReferenceObjects,
             recv,
-            Msg::Objects(ObjectSet {
-                stamp: round6(t),
-                frame: None,
-                objects,
-            }),
+            Msg::Objects(ObjectSet { stamp: round6(t), frame: None, objects }),
         ));
     }
 
@@ -357,12 +311,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             objects.push(Object {
                 vx: Some(round3(a.v.0 + 0.05 * unit.sample(&mut rng))),
                 vy: Some(round3(a.v.1 + 0.05 * unit.sample(&mut rng))),
-                cov: Some([
-                    round6(declared * declared),
-                    0.0,
-                    0.0,
-                    round6(declared * declared),
-                ]),
+                cov: Some([round6(declared * declared), 0.0, 0.0, round6(declared * declared)]),
                 class: Some(a.class.into()),
                 ..Object::at(
                     track,
@@ -385,11 +334,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             cfg,
             Role::EstimateObjects,
             recv,
-            Msg::Objects(ObjectSet {
-                stamp: round6(t),
-                frame: None,
-                objects,
-            }),
+            Msg::Objects(ObjectSet { stamp: round6(t), frame: None, objects }),
         ));
     }
     if p.minimal {
@@ -412,15 +357,9 @@ mod tests {
     #[test]
     fn same_seed_same_records() {
         let cfg = Config::defaults();
-        let p = ScenarioParams {
-            duration: 5.0,
-            ..Default::default()
-        };
+        let p = ScenarioParams { duration: 5.0, ..Default::default() };
         assert_eq!(generate(&cfg, &p), generate(&cfg, &p));
-        let q = ScenarioParams {
-            seed: 2,
-            ..p.clone()
-        };
+        let q = ScenarioParams { seed: 2, ..p.clone() };
         assert_ne!(generate(&cfg, &p), generate(&cfg, &q));
     }
 

@@ -41,6 +41,7 @@ pub struct Summary {
     count: u64,
     sum: f64,
     comp: f64,
+    last: Option<f64>,
     min: f64,
     max: f64,
     exact: Vec<f64>,
@@ -56,6 +57,7 @@ impl Summary {
             count: 0,
             sum: 0.0,
             comp: 0.0,
+            last: None,
             min: f64::INFINITY,
             max: f64::NEG_INFINITY,
             exact: Vec::new(),
@@ -68,6 +70,7 @@ impl Summary {
     /// Adds a value.
     pub fn add(&mut self, v: f64) {
         self.count += 1;
+        self.last = Some(v);
         // Neumaier's compensated summation.
         let t = self.sum + v;
         if self.sum.abs() >= v.abs() {
@@ -93,6 +96,11 @@ impl Summary {
         }
     }
 
+    /// The latest value added.
+    pub fn last(&self) -> Option<f64> {
+        self.last
+    }
+
     /// Values added.
     pub fn count(&self) -> u64 {
         self.count
@@ -113,17 +121,11 @@ impl Summary {
             None => {
                 let mut v = self.exact.clone();
                 v.sort_unstable_by(f64::total_cmp);
-                (
-                    quantile_sorted(&v, 0.5),
-                    quantile_sorted(&v, 0.95),
-                    quantile_sorted(&v, 0.99),
-                )
+                (quantile_sorted(&v, 0.5), quantile_sorted(&v, 0.95), quantile_sorted(&v, 0.99))
             }
-            Some((neg, pos)) => (
-                hist_quantile(neg, pos, 0.5),
-                hist_quantile(neg, pos, 0.95),
-                hist_quantile(neg, pos, 0.99),
-            ),
+            Some((neg, pos)) => {
+                (hist_quantile(neg, pos, 0.5), hist_quantile(neg, pos, 0.95), hist_quantile(neg, pos, 0.99))
+            }
         };
         let clamp = |x: f64| x.clamp(self.min, self.max);
         Some(Stats {
@@ -197,9 +199,7 @@ mod tests {
     #[test]
     fn histogram_mode_stays_within_stated_precision() {
         let mut s = Summary::new(1000, 3);
-        let vals: Vec<f64> = (0..20_000)
-            .map(|i| ((i * 7919) % 20_000) as f64 * 0.001 - 5.0)
-            .collect();
+        let vals: Vec<f64> = (0..20_000).map(|i| ((i * 7919) % 20_000) as f64 * 0.001 - 5.0).collect();
         for &v in &vals {
             s.add(v);
         }
@@ -210,10 +210,7 @@ mod tests {
         for (q, got) in [(0.5, st.p50), (0.95, st.p95), (0.99, st.p99)] {
             let want = quantile_sorted(&sorted, q);
             // 3 significant digits plus one rank of the data's spacing.
-            assert!(
-                (got - want).abs() <= want.abs() * 2e-3 + 2e-3,
-                "q={q}: {got} vs {want}"
-            );
+            assert!((got - want).abs() <= want.abs() * 2e-3 + 2e-3, "q={q}: {got} vs {want}");
         }
         assert_eq!(st.min, -5.0);
         assert!((st.mean - vals.iter().sum::<f64>() / vals.len() as f64).abs() < 1e-12);

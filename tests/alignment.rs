@@ -15,14 +15,7 @@ fn objs(stamp: f64, pts: &[(u64, f64, f64)]) -> Msg {
 }
 
 fn pose(stamp: f64, x: f64, y: f64, yaw: f64) -> Msg {
-    Msg::Pose(Pose {
-        stamp,
-        x,
-        y,
-        yaw,
-        v: None,
-        cov: None,
-    })
+    Msg::Pose(Pose { stamp, x, y, yaw, v: None, cov: None })
 }
 
 struct Run {
@@ -32,20 +25,10 @@ struct Run {
 
 impl Run {
     fn new(tp: TrackingParams) -> Run {
-        Run {
-            engine: Engine::new(tp, AlignParams::default()),
-            out: Vec::new(),
-        }
+        Run { engine: Engine::new(tp, AlignParams::default()), out: Vec::new() }
     }
     fn push(&mut self, role: Role, recv: f64, msg: Msg) {
-        self.engine.push(
-            Input::Message {
-                role,
-                recv: Some(recv),
-                msg,
-            },
-            &mut self.out,
-        );
+        self.engine.push(Input::Message { role, recv: Some(recv), msg }, &mut self.out);
     }
     fn finish(mut self) -> (Engine, Vec<Sample>) {
         self.engine.finish(&mut self.out);
@@ -54,10 +37,7 @@ impl Run {
 }
 
 fn values(out: &[Sample], m: Metric) -> Vec<(f64, f64)> {
-    out.iter()
-        .filter(|s| s.metric == m)
-        .map(|s| (s.t, s.value))
-        .collect()
+    out.iter().filter(|s| s.metric == m).map(|s| (s.t, s.value)).collect()
 }
 
 #[test]
@@ -78,11 +58,7 @@ fn exact_stamp_within_a_microsecond_is_used_as_is() {
     let mut r = Run::new(TrackingParams::default());
     r.push(Role::ReferenceObjects, 0.0, objs(0.0, &[(1, 0.0, 0.0)]));
     r.push(Role::ReferenceObjects, 0.1, objs(0.1, &[(1, 1.0, 0.0)]));
-    r.push(
-        Role::EstimateObjects,
-        0.15,
-        objs(0.1000004, &[(7, 1.5, 0.0)]),
-    );
+    r.push(Role::EstimateObjects, 0.15, objs(0.1000004, &[(7, 1.5, 0.0)]));
     let (e, out) = r.finish();
     // Against the 0.1 message as is: d = 0.5.
     assert_eq!(values(&out, Metric::Gospa), vec![(0.1000004, 0.5)]);
@@ -141,14 +117,7 @@ fn without_recv_the_wait_runs_on_stamps() {
         (Role::EstimateObjects, objs(0.05, &[(7, 0.4, 0.0)])),
         (Role::ReferenceObjects, objs(0.7, &[(1, 7.0, 0.0)])),
     ] {
-        e.push(
-            Input::Message {
-                role,
-                recv: None,
-                msg,
-            },
-            &mut out,
-        );
+        e.push(Input::Message { role, recv: None, msg }, &mut out);
     }
     e.finish(&mut out);
     assert_eq!(e.counters().tracking.fallback, 1);
@@ -161,22 +130,11 @@ fn region_selects_references_and_ignores_far_estimates() {
     // region 10 m around the reference ego at the origin, cutoff 2:
     // reference at 5 m (in), at 15 m (out); estimates at 5.5 m (assigned), 11.5 m (within
     // region + cutoff: a false estimate), 13 m (beyond: ignored).
-    let tp = TrackingParams {
-        region: 10.0,
-        ..TrackingParams::default()
-    };
+    let tp = TrackingParams { region: 10.0, ..TrackingParams::default() };
     let mut r = Run::new(tp);
     r.push(Role::ReferenceEgo, 0.0, pose(0.0, 0.0, 0.0, 0.0));
-    r.push(
-        Role::ReferenceObjects,
-        0.0,
-        objs(0.0, &[(1, 5.0, 0.0), (2, 15.0, 0.0)]),
-    );
-    r.push(
-        Role::EstimateObjects,
-        0.0,
-        objs(0.0, &[(7, 5.5, 0.0), (8, 11.5, 0.0), (9, 0.0, 13.0)]),
-    );
+    r.push(Role::ReferenceObjects, 0.0, objs(0.0, &[(1, 5.0, 0.0), (2, 15.0, 0.0)]));
+    r.push(Role::EstimateObjects, 0.0, objs(0.0, &[(7, 5.5, 0.0), (8, 11.5, 0.0), (9, 0.0, 13.0)]));
     let (_, out) = r.finish();
     assert_eq!(values(&out, Metric::AssignedCount), vec![(0.0, 1.0)]);
     assert_eq!(values(&out, Metric::MissedCount), vec![(0.0, 0.0)]);
@@ -189,16 +147,9 @@ fn region_selects_references_and_ignores_far_estimates() {
 fn ego_frame_estimates_are_moved_by_the_configured_pose() {
     // Ego at (10, 5) facing +y; an estimate 2 m ahead in the ego frame is at (10, 7).
     for source in [EgoSource::Reference, EgoSource::Estimate] {
-        let tp = TrackingParams {
-            ego_source: source,
-            ..TrackingParams::default()
-        };
+        let tp = TrackingParams { ego_source: source, ..TrackingParams::default() };
         let mut r = Run::new(tp);
-        let role = if source == EgoSource::Reference {
-            Role::ReferenceEgo
-        } else {
-            Role::EstimateEgo
-        };
+        let role = if source == EgoSource::Reference { Role::ReferenceEgo } else { Role::EstimateEgo };
         r.push(role, 0.0, pose(0.0, 10.0, 5.0, std::f64::consts::FRAC_PI_2));
         r.push(Role::ReferenceObjects, 0.0, objs(0.0, &[(1, 10.0, 7.0)]));
         let est = Msg::Objects(ObjectSet {

@@ -30,27 +30,15 @@ fn replay_of_the_shipped_log_prints_a_summary_and_writes_report_and_series() {
     ]);
     assert_eq!(out.status.code(), Some(0), "{}", text(&out.stderr));
     let stdout = text(&out.stdout);
-    for needle in [
-        "gospa",
-        "ospa",
-        "ego_position_error_m",
-        "tracking steps: 600 evaluated",
-        "estimate/objects",
-    ] {
+    for needle in
+        ["gospa", "ospa", "ego_position_error_m", "tracking steps: 600 evaluated", "estimate/objects"]
+    {
         assert!(stdout.contains(needle), "summary lacks {needle}:\n{stdout}");
     }
-    let r: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
-    for key in [
-        "version",
-        "config_digest",
-        "input_digest",
-        "duration_s",
-        "steps",
-        "metrics",
-        "alerts",
-        "verdicts",
-    ] {
+    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    for key in
+        ["version", "config_digest", "input_digest", "duration_s", "steps", "metrics", "alerts", "verdicts"]
+    {
         assert!(r.get(key).is_some(), "report lacks {key}");
     }
     let g = &r["metrics"]["gospa"];
@@ -87,24 +75,11 @@ fn config_errors_exit_2_and_name_file_and_key() {
     let dir = tempfile::tempdir().unwrap();
     let cfg = dir.path().join("bad.toml");
     std::fs::write(&cfg, "[tracking]\ncutof_m = 2.0\n").unwrap();
-    let out = plumbline(&[
-        "--config",
-        cfg.to_str().unwrap(),
-        "replay",
-        "replay-logs/campus-loop.jsonl",
-    ]);
+    let out = plumbline(&["--config", cfg.to_str().unwrap(), "replay", "replay-logs/campus-loop.jsonl"]);
     assert_eq!(out.status.code(), Some(2));
     let err = text(&out.stderr);
-    assert!(
-        err.contains("bad.toml") && err.contains("tracking.cutof_m"),
-        "{err}"
-    );
-    let out = plumbline(&[
-        "replay",
-        "replay-logs/campus-loop.jsonl",
-        "--set",
-        "tracking.order=0",
-    ]);
+    assert!(err.contains("bad.toml") && err.contains("tracking.cutof_m"), "{err}");
+    let out = plumbline(&["replay", "replay-logs/campus-loop.jsonl", "--set", "tracking.order=0"]);
     assert_eq!(out.status.code(), Some(2));
     assert!(text(&out.stderr).contains("tracking.order"));
 }
@@ -115,11 +90,7 @@ fn set_overrides_change_the_numbers() {
     let r1 = dir.path().join("a.json");
     let r2 = dir.path().join("b.json");
     let log = "replay-logs/campus-loop.jsonl";
-    assert!(
-        plumbline(&["replay", log, "--quiet", "--report", r1.to_str().unwrap()])
-            .status
-            .success()
-    );
+    assert!(plumbline(&["replay", log, "--quiet", "--report", r1.to_str().unwrap()]).status.success());
     assert!(plumbline(&[
         "replay",
         log,
@@ -131,10 +102,8 @@ fn set_overrides_change_the_numbers() {
     ])
     .status
     .success());
-    let a: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(&r1).unwrap()).unwrap();
-    let b: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(&r2).unwrap()).unwrap();
+    let a: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&r1).unwrap()).unwrap();
+    let b: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&r2).unwrap()).unwrap();
     assert_ne!(a["config_digest"], b["config_digest"]);
     // alpha != 2: the total only (SPEC §6).
     assert!(b["metrics"].get("gospa").is_some());
@@ -147,35 +116,50 @@ fn set_overrides_change_the_numbers() {
 fn convert_round_trips_and_scenario_regenerates_the_shipped_logs() {
     let dir = tempfile::tempdir().unwrap();
     let gen = dir.path().join("gen.jsonl");
-    let out = plumbline(&[
-        "scenario",
-        "--out",
-        gen.to_str().unwrap(),
-        "--seed",
-        "1",
-        "--duration",
-        "60",
-    ]);
+    let out = plumbline(&["scenario", "--out", gen.to_str().unwrap(), "--seed", "1", "--duration", "60"]);
     assert!(out.status.success(), "{}", text(&out.stderr));
     let shipped =
-        std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl"))
-            .unwrap();
-    assert_eq!(
-        std::fs::read(&gen).unwrap(),
-        shipped,
-        "the shipped log is what the command makes"
-    );
+        std::fs::read(Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl")).unwrap();
+    assert_eq!(std::fs::read(&gen).unwrap(), shipped, "the shipped log is what the command makes");
     let plb = dir.path().join("x.plb");
     let back = dir.path().join("back.jsonl");
-    assert!(
-        plumbline(&["convert", gen.to_str().unwrap(), plb.to_str().unwrap()])
-            .status
-            .success()
-    );
-    assert!(
-        plumbline(&["convert", plb.to_str().unwrap(), back.to_str().unwrap()])
-            .status
-            .success()
-    );
+    assert!(plumbline(&["convert", gen.to_str().unwrap(), plb.to_str().unwrap()]).status.success());
+    assert!(plumbline(&["convert", plb.to_str().unwrap(), back.to_str().unwrap()]).status.success());
     assert_eq!(std::fs::read(&back).unwrap(), shipped);
+}
+
+#[test]
+fn rig_profile_raises_alerts_journals_them_and_exits_1_on_a_critical_failure() {
+    let dir = tempfile::tempdir().unwrap();
+    let journal = dir.path().join("alerts.jsonl");
+    let report = dir.path().join("r.json");
+    let out = plumbline(&[
+        "--config",
+        "config/rig.toml",
+        "replay",
+        "replay-logs/campus-loop.jsonl",
+        "--journal",
+        journal.to_str().unwrap(),
+        "--report",
+        report.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out.stderr));
+    let stdout = text(&out.stdout);
+    assert!(stdout.contains("localisation-error") && stdout.contains("critical"), "{stdout}");
+    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    let alerts = r["alerts"].as_array().unwrap();
+    assert!(!alerts.is_empty());
+    let lines: Vec<serde_json::Value> = std::fs::read_to_string(&journal)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    assert_eq!(&lines, alerts, "the journal holds exactly the report's events");
+    let v = r["verdicts"].as_array().unwrap();
+    let loc = v.iter().find(|v| v["rule"] == "localisation-error").unwrap();
+    assert_eq!(loc["verdict"], "fail");
+    // The field profile also loads and runs.
+    let out =
+        plumbline(&["--config", "config/field.toml", "replay", "replay-logs/campus-loop.jsonl", "--quiet"]);
+    assert!(matches!(out.status.code(), Some(0) | Some(1)), "{}", text(&out.stderr));
 }

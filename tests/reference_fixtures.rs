@@ -17,11 +17,7 @@ fn f(v: &Value) -> f64 {
 }
 
 fn points(v: &Value) -> Vec<[f64; 2]> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|p| [f(&p[0]), f(&p[1])])
-        .collect()
+    v.as_array().unwrap().iter().map(|p| [f(&p[0]), f(&p[1])]).collect()
 }
 
 /// Source: scipy.optimize.linear_sum_assignment on random rectangular matrices.
@@ -35,10 +31,7 @@ fn assignment_matches_scipy_linear_sum_assignment() {
         let cost: Vec<f64> = case["cost"].as_array().unwrap().iter().map(f).collect();
         let got = solver.solve(rows, cols, &cost, &mut out);
         let want = f(&case["optimum"]);
-        assert!(
-            (got - want).abs() < 1e-9,
-            "{rows}x{cols}: {got} vs scipy {want}"
-        );
+        assert!((got - want).abs() < 1e-9, "{rows}x{cols}: {got} vs scipy {want}");
     }
 }
 
@@ -60,28 +53,11 @@ fn gospa_and_ospa_match_the_scipy_reference() {
             g.total,
             case["gospa"]
         );
-        assert!(
-            (g.localization - f(&case["loc"])).abs() < 1e-9 * (1.0 + g.localization),
-            "case {k}: loc"
-        );
-        assert!(
-            (g.missed - f(&case["missed"])).abs() < 1e-9,
-            "case {k}: missed"
-        );
-        assert!(
-            (g.false_ - f(&case["false"])).abs() < 1e-9,
-            "case {k}: false"
-        );
-        assert_eq!(
-            g.assigned as u64,
-            case["assigned"].as_u64().unwrap(),
-            "case {k}: assigned"
-        );
-        assert!(
-            (o - f(&case["ospa"])).abs() < 1e-9,
-            "case {k}: ospa {o} vs {}",
-            case["ospa"]
-        );
+        assert!((g.localization - f(&case["loc"])).abs() < 1e-9 * (1.0 + g.localization), "case {k}: loc");
+        assert!((g.missed - f(&case["missed"])).abs() < 1e-9, "case {k}: missed");
+        assert!((g.false_ - f(&case["false"])).abs() < 1e-9, "case {k}: false");
+        assert_eq!(g.assigned as u64, case["assigned"].as_u64().unwrap(), "case {k}: assigned");
+        assert!((o - f(&case["ospa"])).abs() < 1e-9, "case {k}: ospa {o} vs {}", case["ospa"]);
     }
 }
 
@@ -108,10 +84,7 @@ fn exact_percentiles_match_numpy() {
         let st = s.stats().unwrap();
         for (got, key) in [(st.p50, "p50"), (st.p95, "p95"), (st.p99, "p99")] {
             let want = f(&case[key]);
-            assert!(
-                (got - want).abs() < 1e-12 * (1.0 + want.abs()),
-                "{key}: {got} vs numpy {want}"
-            );
+            assert!((got - want).abs() < 1e-12 * (1.0 + want.abs()), "{key}: {got} vs numpy {want}");
         }
     }
 }

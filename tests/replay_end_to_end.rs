@@ -16,17 +16,9 @@ fn repo(p: &str) -> PathBuf {
 
 fn run(cfg: &Config, path: &Path) -> (Replayed, Vec<Sample>) {
     let mut samples = Vec::new();
-    let mut hook = |s: &[Sample]| samples.extend_from_slice(s);
-    let r = replay(
-        cfg,
-        path,
-        ReplayOptions {
-            series: None,
-            progress: &|_| {},
-            on_samples: Some(&mut hook),
-        },
-    )
-    .expect("replay");
+    let mut hook = |s: &[Sample], _: &[plumbline::rules::AlertEvent]| samples.extend_from_slice(s);
+    let r = replay(cfg, path, ReplayOptions { series: None, progress: &|_| {}, on_samples: Some(&mut hook) })
+        .expect("replay");
     (r, samples)
 }
 
@@ -53,13 +45,8 @@ fn shipped_log_matches_the_independent_evaluator() {
                     continue;
                 }
                 let w = v.as_f64().unwrap();
-                let g = got
-                    .get(&(k.clone(), t.to_bits()))
-                    .unwrap_or_else(|| panic!("no {k} at {t}"));
-                assert!(
-                    (g - w).abs() <= 1e-9 * (1.0 + w.abs()),
-                    "{k} at {t}: {g} vs reference {w}"
-                );
+                let g = got.get(&(k.clone(), t.to_bits())).unwrap_or_else(|| panic!("no {k} at {t}"));
+                assert!((g - w).abs() <= 1e-9 * (1.0 + w.abs()), "{k} at {t}: {g} vs reference {w}");
                 checked += 1;
             }
         }
@@ -89,10 +76,7 @@ fn jsonl_and_binary_forms_give_the_same_report() {
     assert_eq!(strip(&a), strip(&b));
     assert_eq!(strip(&a), strip(&c));
     // The round trip keeps every record exactly.
-    assert_eq!(
-        records(&cfg, &repo("replay-logs/campus-loop.jsonl")),
-        records(&cfg, &back)
-    );
+    assert_eq!(records(&cfg, &repo("replay-logs/campus-loop.jsonl")), records(&cfg, &back));
 }
 
 fn convert(cfg: &Config, from: &Path, to: &Path) {
@@ -140,11 +124,7 @@ fn torn_binary_tail_is_reported_and_everything_before_replays() {
     let (r, _) = run(&cfg, &plb);
     let tail = r.report.records.tail.clone().expect("tail reported");
     assert!(tail.offset <= at as u64);
-    assert!(
-        tail.reason.contains("checksum") || tail.reason.contains("range"),
-        "{}",
-        tail.reason
-    );
+    assert!(tail.reason.contains("checksum") || tail.reason.contains("range"), "{}", tail.reason);
 }
 
 #[test]
@@ -178,24 +158,14 @@ fn bad_records_are_counted_with_line_and_reason_and_valid_ones_score_the_same() 
     std::fs::write(&dirty, mixed.join("\n") + "\n").unwrap();
     let (a, sa) = run(&cfg, &clean);
     let (b, sb) = run(&cfg, &dirty);
-    assert_eq!(
-        sa, sb,
-        "valid records must score exactly as without the bad ones"
-    );
+    assert_eq!(sa, sb, "valid records must score exactly as without the bad ones");
     assert_eq!(b.report.records.rejected, 7);
     assert_eq!(a.report.records.rejected, 0);
     let first = &b.report.records.first_rejected[0];
     assert_eq!(first.at, "line 7");
     assert_eq!(first.reason, "malformed");
     let reasons = &b.report.records.rejected_by_reason;
-    for r in [
-        "malformed",
-        "non_finite",
-        "duplicate_id",
-        "missing_field",
-        "unbound_key",
-        "bad_frame",
-    ] {
+    for r in ["malformed", "non_finite", "duplicate_id", "missing_field", "unbound_key", "bad_frame"] {
         assert!(reasons.contains_key(r), "{r} missing from {reasons:?}");
     }
     assert!(b.report.transport["estimate/objects"].decode_errors >= 3);

@@ -36,10 +36,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         }
         Item::Bad { pos, reason, .. } => {
             bad += 1;
-            eprintln!(
-                "plumbline convert: {}: {pos}: skipped: {reason}",
-                a.input.display()
-            );
+            eprintln!("plumbline convert: {}: {pos}: skipped: {reason}", a.input.display());
         }
     });
     let outcome = match read {
@@ -61,9 +58,6 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
             t.reason
         );
     }
-    eprintln!(
-        "plumbline convert: {n} records written to {}, {bad} skipped",
-        a.output.display()
-    );
+    eprintln!("plumbline convert: {n} records written to {}, {bad} skipped", a.output.display());
     super::EXIT_OK
 }

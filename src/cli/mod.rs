@@ -2,6 +2,7 @@
 //! file; metric logic stays in the library.
 
 mod convert;
+mod journal;
 mod replay;
 mod scenario;
 
@@ -89,14 +90,7 @@ pub fn load_config(path: Option<&PathBuf>, sets: &[String]) -> Result<Config, St
 
 fn init_tracing(json: bool) {
     use tracing_subscriber::EnvFilter;
-    let filter =
-        EnvFilter::try_from_env("PLUMBLINE_LOG").unwrap_or_else(|_| EnvFilter::new("warn"));
-    let b = tracing_subscriber::fmt()
-        .with_env_filter(filter)
-        .with_writer(std::io::stderr);
-    let _ = if json {
-        b.json().try_init()
-    } else {
-        b.try_init()
-    };
+    let filter = EnvFilter::try_from_env("PLUMBLINE_LOG").unwrap_or_else(|_| EnvFilter::new("warn"));
+    let b = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr);
+    let _ = if json { b.json().try_init() } else { b.try_init() };
 }

@@ -12,6 +12,9 @@ use crate::metrics::Metric;
 use crate::msg::Role;
 use crate::replay::{replay, ReplayOptions};
 use crate::report::Report;
+use crate::rules::{critical_failed, AlertEvent};
+
+use super::journal::Journal;
 
 /// Arguments.
 #[derive(Debug, clap::Args)]
@@ -24,6 +27,9 @@ pub struct Args {
     /// Write the long-form series (t,metric,value) here.
     #[arg(long, value_name = "FILE")]
     pub series: Option<PathBuf>,
+    /// Append alert events here as JSON lines, flushed on every event.
+    #[arg(long, value_name = "FILE")]
+    pub journal: Option<PathBuf>,
     /// Print nothing on stdout.
     #[arg(long)]
     pub quiet: bool,
@@ -33,9 +39,7 @@ pub struct Args {
 pub fn run(cfg: &Config, a: &Args) -> u8 {
     let size = std::fs::metadata(&a.log).map(|m| m.len()).unwrap_or(0);
     let bar = ProgressBar::with_draw_target(Some(size), ProgressDrawTarget::stderr());
-    if let Ok(style) =
-        ProgressStyle::with_template("{bar:40} {bytes}/{total_bytes} {bytes_per_sec} {eta}")
-    {
+    if let Ok(style) = ProgressStyle::with_template("{bar:40} {bytes}/{total_bytes} {bytes_per_sec} {eta}") {
         bar.set_style(style);
     }
     let progress = |b: u64| bar.set_position(b);
@@ -49,10 +53,27 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
             }
         },
     };
+    let mut journal = match &a.journal {
+        None => None,
+        Some(p) => match Journal::open(p) {
+            Ok(j) => Some(j),
+            Err(e) => {
+                eprintln!("plumbline replay: {}: {e}", p.display());
+                return super::EXIT_INPUT;
+            }
+        },
+    };
+    let mut hook = |_: &[crate::core::Sample], events: &[AlertEvent]| {
+        if let Some(j) = journal.as_mut() {
+            for e in events {
+                j.append(e);
+            }
+        }
+    };
     let opts = ReplayOptions {
         series: series_file.as_mut().map(|w| w as &mut dyn Write),
         progress: &progress,
-        on_samples: None,
+        on_samples: Some(&mut hook),
     };
     let out = match replay(cfg, &a.log, opts) {
         Ok(o) => o,
@@ -72,7 +93,11 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     if !a.quiet {
         print!("{}", summary(&out.report));
     }
-    super::EXIT_OK
+    if critical_failed(&out.report.verdicts) {
+        super::EXIT_FAIL
+    } else {
+        super::EXIT_OK
+    }
 }
 
 fn num(v: f64) -> String {
@@ -86,48 +111,29 @@ fn num(v: f64) -> String {
 }
 
 fn counts(m: &std::collections::BTreeMap<&'static str, u64>) -> String {
-    m.iter()
-        .map(|(k, v)| format!("{k} {v}"))
-        .collect::<Vec<_>>()
-        .join(", ")
+    m.iter().map(|(k, v)| format!("{k} {v}")).collect::<Vec<_>>().join(", ")
 }
 
 /// The readable summary printed on stdout.
 pub fn summary(r: &Report) -> String {
     let mut s = String::new();
-    let _ = writeln!(
-        s,
-        "plumbline replay of {} ({:.1} s of stamps)",
-        r.input, r.duration_s
-    );
+    let _ = writeln!(s, "plumbline replay of {} ({:.1} s of stamps)", r.input, r.duration_s);
     let rec = &r.records;
-    let _ = write!(
-        s,
-        "records: {} accepted, {} rejected",
-        rec.accepted, rec.rejected
-    );
+    let _ = write!(s, "records: {} accepted, {} rejected", rec.accepted, rec.rejected);
     if rec.rejected > 0 {
         let _ = write!(s, " ({})", counts(&rec.rejected_by_reason));
     }
     s.push('\n');
     for b in rec.first_rejected.iter().take(5) {
-        let _ = writeln!(
-            s,
-            "  {}: {}{}",
-            b.at,
-            b.detail,
-            b.role.map(|r| format!(" [{r}]")).unwrap_or_default()
-        );
+        let _ =
+            writeln!(s, "  {}: {}{}", b.at, b.detail, b.role.map(|r| format!(" [{r}]")).unwrap_or_default());
     }
     if rec.first_rejected.len() > 5 {
         let _ = writeln!(s, "  ... {} more in the report", rec.rejected as usize - 5);
     }
     if let Some(t) = &rec.tail {
-        let _ = writeln!(
-            s,
-            "damaged tail at byte {}: {} (everything before it replayed)",
-            t.offset, t.reason
-        );
+        let _ =
+            writeln!(s, "damaged tail at byte {}: {} (everything before it replayed)", t.offset, t.reason);
     }
     for (name, st) in [("tracking", &r.steps.tracking), ("ego", &r.steps.ego)] {
         let _ = write!(
@@ -140,11 +146,7 @@ pub fn summary(r: &Report) -> String {
         }
         s.push('\n');
     }
-    let _ = writeln!(
-        s,
-        "\n{:<26} {:>8} {:>11} {:>11} {:>11}",
-        "metric", "count", "mean", "p95", "max"
-    );
+    let _ = writeln!(s, "\n{:<26} {:>8} {:>11} {:>11} {:>11}", "metric", "count", "mean", "p95", "max");
     for m in Metric::ALL {
         if let Some(st) = r.metrics.get(m.name()) {
             let _ = writeln!(
@@ -170,11 +172,7 @@ pub fn summary(r: &Report) -> String {
             c.n,
             c.lower,
             c.upper,
-            if c.inside {
-                "consistent"
-            } else {
-                "inconsistent"
-            }
+            if c.inside { "consistent" } else { "inconsistent" }
         );
     }
     if !r.transport.is_empty() {
@@ -200,6 +198,52 @@ pub fn summary(r: &Report) -> String {
                 t.stamp_regressions
             );
         }
+    }
+    if !r.alerts.is_empty() {
+        let _ = writeln!(s, "\nalerts ({} events):", r.alerts.len() as u64 + r.alerts_dropped);
+        for e in r.alerts.iter().take(20) {
+            let role = e.role.map(|x| format!(" [{x}]")).unwrap_or_default();
+            let _ = writeln!(
+                s,
+                "  t={:>9.3} {:<8} {:<9} {}{}: {} {} over {} = {} (threshold {})",
+                e.t,
+                e.kind,
+                e.severity,
+                e.rule,
+                role,
+                e.stat,
+                e.metric,
+                e.window,
+                num(e.value),
+                num(e.threshold)
+            );
+        }
+        if r.alerts.len() > 20 {
+            let _ = writeln!(s, "  ... {} more in the report", r.alerts.len() - 20);
+        }
+    }
+    if !r.verdicts.is_empty() {
+        let _ = writeln!(
+            s,
+            "\n{:<28} {:<9} {:<8} {:>11} {:>11} {:>7}",
+            "rule", "severity", "verdict", "worst", "threshold", "raised"
+        );
+        for v in &r.verdicts {
+            let worst = v.worst.map(num).unwrap_or_else(|| "-".into());
+            let _ = writeln!(
+                s,
+                "{:<28} {:<9} {:<8} {:>11} {:>11} {:>7}",
+                v.rule,
+                v.severity,
+                v.verdict,
+                worst,
+                num(v.threshold),
+                v.raised
+            );
+        }
+        let failed = r.verdicts.iter().filter(|v| v.verdict == "fail").count();
+        let critical = r.verdicts.iter().filter(|v| v.verdict == "fail" && v.severity == "critical").count();
+        let _ = writeln!(s, "{failed} rule(s) failed, {critical} critical");
     }
     s
 }

@@ -34,11 +34,8 @@ pub struct Args {
 /// Runs the command.
 pub fn run(cfg: &Config, a: &Args) -> u8 {
     let ok = |x: f64| x.is_finite() && x > 0.0;
-    if !(ok(a.duration) && ok(a.rate) && a.rate <= 1000.0 && a.noise.is_finite() && a.noise >= 0.0)
-    {
-        eprintln!(
-            "plumbline scenario: --duration and --rate must be > 0 (rate <= 1000), --noise >= 0"
-        );
+    if !(ok(a.duration) && ok(a.rate) && a.rate <= 1000.0 && a.noise.is_finite() && a.noise >= 0.0) {
+        eprintln!("plumbline scenario: --duration and --rate must be > 0 (rate <= 1000), --noise >= 0");
         return super::EXIT_INPUT;
     }
     let p = ScenarioParams {
@@ -67,10 +64,6 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         eprintln!("plumbline scenario: {}: {e}", a.out.display());
         return super::EXIT_INPUT;
     }
-    eprintln!(
-        "plumbline scenario: {} records written to {}",
-        records.len(),
-        a.out.display()
-    );
+    eprintln!("plumbline scenario: {} records written to {}", records.len(), a.out.display());
     super::EXIT_OK
 }

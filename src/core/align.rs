@@ -60,11 +60,7 @@ pub enum How {
 impl<T> Timeline<T> {
     /// An empty buffer holding at most `cap` items.
     pub fn new(cap: usize) -> Timeline<T> {
-        Timeline {
-            items: VecDeque::new(),
-            cap: cap.max(2),
-            evicted: 0,
-        }
+        Timeline { items: VecDeque::new(), cap: cap.max(2), evicted: 0 }
     }
 
     /// Inserts in stamp order (appends in the common case).
@@ -115,11 +111,7 @@ impl<T> Timeline<T> {
         let near_a = after.filter(|(s, _)| (s - t).abs() <= EXACT_S);
         match (near_b, near_a) {
             (Some(b), Some(a)) => {
-                let pick = if (a.0 - t).abs() <= (t - b.0).abs() {
-                    a
-                } else {
-                    b
-                };
+                let pick = if (a.0 - t).abs() <= (t - b.0).abs() { a } else { b };
                 return Lookup::Exact(&pick.1);
             }
             (Some(x), None) | (None, Some(x)) => return Lookup::Exact(&x.1),
@@ -150,9 +142,7 @@ pub fn resolve<T>(tl: &Timeline<T>, t: f64, tolerance: f64) -> Result<Resolved<'
     match tl.lookup(t) {
         Lookup::Exact(x) => Ok(Resolved::One(x, How::Exact)),
         Lookup::Between(b, a) => Ok(Resolved::Two(b, a)),
-        Lookup::OnlyBefore(b) if t - b.0 <= tolerance + EXACT_S => {
-            Ok(Resolved::One(&b.1, How::Fallback))
-        }
+        Lookup::OnlyBefore(b) if t - b.0 <= tolerance + EXACT_S => Ok(Resolved::One(&b.1, How::Fallback)),
         Lookup::OnlyBefore(_) => Err(Miss::TooOld),
         Lookup::OnlyAfter => Err(Miss::NoneBefore),
         Lookup::Empty => Err(Miss::NoReference),
@@ -223,15 +213,7 @@ pub struct Point {
 impl Point {
     /// The metric part of an object.
     pub fn of(o: &Object) -> Point {
-        Point {
-            id: o.id,
-            x: o.x,
-            y: o.y,
-            yaw: o.yaw,
-            length: o.length,
-            width: o.width,
-            cov: o.cov,
-        }
+        Point { id: o.id, x: o.x, y: o.y, yaw: o.yaw, length: o.length, width: o.width, cov: o.cov }
     }
 }
 
@@ -294,12 +276,7 @@ pub fn to_world(o: &mut Point, ego: &Pose) {
         let r01 = c * b - s * d;
         let r10 = s * a + c * cc;
         let r11 = s * b + c * d;
-        o.cov = Some([
-            r00 * c - r01 * s,
-            r00 * s + r01 * c,
-            r10 * c - r11 * s,
-            r10 * s + r11 * c,
-        ]);
+        o.cov = Some([r00 * c - r01 * s, r00 * s + r01 * c, r10 * c - r11 * s, r10 * s + r11 * c]);
     }
 }
 
@@ -349,10 +326,7 @@ mod tests {
         assert!(matches!(tl.lookup(0.15), Lookup::Between((_, 1), (_, 2))));
         assert!(matches!(tl.lookup(0.25), Lookup::OnlyBefore((_, 2))));
         assert!(matches!(tl.lookup(-1.0), Lookup::OnlyAfter));
-        assert!(matches!(
-            resolve(&tl, 0.25, 0.1),
-            Ok(Resolved::One(2, How::Fallback))
-        ));
+        assert!(matches!(resolve(&tl, 0.25, 0.1), Ok(Resolved::One(2, How::Fallback))));
         assert!(matches!(resolve(&tl, 0.35, 0.1), Err(Miss::TooOld)));
         // Out-of-order insert keeps stamp order.
         tl.insert(0.05, 9);
@@ -363,37 +337,13 @@ mod tests {
 
     #[test]
     fn pose_yaw_takes_shorter_arc_and_frames_rotate() {
-        let a = Pose {
-            stamp: 0.0,
-            x: 0.0,
-            y: 0.0,
-            yaw: 3.0,
-            v: None,
-            cov: None,
-        };
-        let b = Pose {
-            stamp: 1.0,
-            x: 2.0,
-            y: 0.0,
-            yaw: -3.0,
-            v: None,
-            cov: None,
-        };
+        let a = Pose { stamp: 0.0, x: 0.0, y: 0.0, yaw: 3.0, v: None, cov: None };
+        let b = Pose { stamp: 1.0, x: 2.0, y: 0.0, yaw: -3.0, v: None, cov: None };
         let p = interpolate_pose(&a, &b, 0.5);
         assert!((p.yaw.abs() - std::f64::consts::PI).abs() < 1e-12);
         assert_eq!(p.x, 1.0);
-        let ego = Pose {
-            stamp: 0.0,
-            x: 10.0,
-            y: 5.0,
-            yaw: std::f64::consts::FRAC_PI_2,
-            v: None,
-            cov: None,
-        };
-        let o = Object {
-            cov: Some([4.0, 0.0, 0.0, 1.0]),
-            ..Object::at(1, 2.0, 0.0)
-        };
+        let ego = Pose { stamp: 0.0, x: 10.0, y: 5.0, yaw: std::f64::consts::FRAC_PI_2, v: None, cov: None };
+        let o = Object { cov: Some([4.0, 0.0, 0.0, 1.0]), ..Object::at(1, 2.0, 0.0) };
         let mut o = Point::of(&o);
         to_world(&mut o, &ego);
         assert!((o.x - 10.0).abs() < 1e-12 && (o.y - 7.0).abs() < 1e-12);

@@ -23,13 +23,7 @@ pub trait Assigner {
     /// `cost` is row-major `rows x cols`, all finite. Writes into `row_to_col` the column
     /// assigned to each row (`None` for rows left over when `rows > cols`) and returns the
     /// total cost of the assignment.
-    fn solve(
-        &mut self,
-        rows: usize,
-        cols: usize,
-        cost: &[f64],
-        row_to_col: &mut Vec<Option<usize>>,
-    ) -> f64;
+    fn solve(&mut self, rows: usize, cols: usize, cost: &[f64], row_to_col: &mut Vec<Option<usize>>) -> f64;
 }
 
 /// Shortest augmenting path solver (see the module note). Keeps its scratch buffers
@@ -51,13 +45,7 @@ pub struct ShortestPath {
 const NONE: usize = usize::MAX;
 
 impl Assigner for ShortestPath {
-    fn solve(
-        &mut self,
-        rows: usize,
-        cols: usize,
-        cost: &[f64],
-        row_to_col: &mut Vec<Option<usize>>,
-    ) -> f64 {
+    fn solve(&mut self, rows: usize, cols: usize, cost: &[f64], row_to_col: &mut Vec<Option<usize>>) -> f64 {
         row_to_col.clear();
         row_to_col.resize(rows, None);
         if rows == 0 || cols == 0 {
@@ -166,9 +154,7 @@ impl ShortestPath {
                     self.path[j] = i;
                     self.shortest[j] = r;
                 }
-                if self.shortest[j] < lowest
-                    || (self.shortest[j] == lowest && self.row4col[j] == NONE)
-                {
+                if self.shortest[j] < lowest || (self.shortest[j] == lowest && self.row4col[j] == NONE) {
                     lowest = self.shortest[j];
                     index = it;
                 }
@@ -296,11 +282,7 @@ pub fn match_with_cutoff(
     // Group edges by component root; components with a single edge are trivial.
     s.order.clear();
     s.order.extend(0..s.edges.len());
-    let roots: Vec<usize> = s
-        .edges
-        .iter()
-        .map(|&(i, _, _)| find(&mut s.parent, i))
-        .collect();
+    let roots: Vec<usize> = s.edges.iter().map(|&(i, _, _)| find(&mut s.parent, i)).collect();
     s.order.sort_unstable_by_key(|&e| roots[e]);
     s.local_row.clear();
     s.local_row.resize(m, NONE);
@@ -438,15 +420,9 @@ mod tests {
         for _ in 0..400 {
             let rows = rng.random_range(0..7);
             let cols = rng.random_range(0..7);
-            let cost: Vec<f64> = (0..rows * cols)
-                .map(|_| rng.random_range(0.0..10.0))
-                .collect();
+            let cost: Vec<f64> = (0..rows * cols).map(|_| rng.random_range(0.0..10.0)).collect();
             let got = solver.solve(rows, cols, &cost, &mut out);
-            let want = if rows == 0 || cols == 0 {
-                0.0
-            } else {
-                brute(rows, cols, &cost)
-            };
+            let want = if rows == 0 || cols == 0 { 0.0 } else { brute(rows, cols, &cost) };
             assert!((got - want).abs() < 1e-9, "{rows}x{cols}: {got} vs {want}");
             let assigned = out.iter().flatten().count();
             assert_eq!(assigned, rows.min(cols));
@@ -464,9 +440,7 @@ mod tests {
             let n = rng.random_range(0..25);
             let side = rng.random_range(2.0..40.0);
             let pts = |rng: &mut rand_chacha::ChaCha8Rng, k| -> Vec<[f64; 2]> {
-                (0..k)
-                    .map(|_| [rng.random_range(0.0..side), rng.random_range(0.0..side)])
-                    .collect()
+                (0..k).map(|_| [rng.random_range(0.0..side), rng.random_range(0.0..side)]).collect()
             };
             let xs = pts(&mut rng, m);
             let ys = pts(&mut rng, n);
@@ -476,12 +450,7 @@ mod tests {
                 let cost = |mm: &Matching| {
                     mm.localization + 2f64.powf(p) / 2.0 * (m + n - 2 * mm.pairs.len()) as f64
                 };
-                assert!(
-                    (cost(&a) - cost(&b)).abs() < 1e-9,
-                    "{} vs {}",
-                    cost(&a),
-                    cost(&b)
-                );
+                assert!((cost(&a) - cost(&b)).abs() < 1e-9, "{} vs {}", cost(&a), cost(&b));
             }
         }
     }
@@ -490,25 +459,9 @@ mod tests {
     fn pair_at_exactly_the_cutoff_is_unassigned() {
         let mut solver = ShortestPath::default();
         let mut s = MatchScratch::default();
-        let m = match_with_cutoff(
-            &[[0.0, 0.0]],
-            &[[2.0, 0.0]],
-            2.0,
-            1.0,
-            true,
-            &mut solver,
-            &mut s,
-        );
+        let m = match_with_cutoff(&[[0.0, 0.0]], &[[2.0, 0.0]], 2.0, 1.0, true, &mut solver, &mut s);
         assert!(m.pairs.is_empty());
-        let m = match_with_cutoff(
-            &[[0.0, 0.0]],
-            &[[1.999, 0.0]],
-            2.0,
-            1.0,
-            true,
-            &mut solver,
-            &mut s,
-        );
+        let m = match_with_cutoff(&[[0.0, 0.0]], &[[1.999, 0.0]], 2.0, 1.0, true, &mut solver, &mut s);
         assert_eq!(m.pairs.len(), 1);
     }
 
@@ -523,9 +476,7 @@ mod tests {
         for _ in 0..200 {
             let rows = rng.random_range(1..9);
             let cols = rng.random_range(rows..10);
-            let ints: Vec<i64> = (0..rows * cols)
-                .map(|_| rng.random_range(0..1000))
-                .collect();
+            let ints: Vec<i64> = (0..rows * cols).map(|_| rng.random_range(0..1000)).collect();
             let cost: Vec<f64> = ints.iter().map(|&v| v as f64).collect();
             let got = solver.solve(rows, cols, &cost, &mut out);
             let w = Matrix::from_vec(rows, cols, ints).unwrap();

@@ -140,11 +140,7 @@ impl RefSet {
     fn new(set: &ObjectSet) -> RefSet {
         let mut points = Vec::with_capacity(set.objects.len());
         align::points_of(set, None, &mut points);
-        RefSet {
-            stamp: set.stamp,
-            ego_frame: align::is_ego_frame(set),
-            points,
-        }
+        RefSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points }
     }
 }
 
@@ -268,26 +264,14 @@ impl Engine {
         c.last_stamp = Some(c.last_stamp.map_or(stamp, |s| s.max(stamp)));
         let ts = self.transport[role.index()].accept(stamp, recv);
         if let Some(v) = ts.latency {
-            out.push(Sample {
-                t: stamp,
-                metric: Metric::Latency,
-                role: Some(role),
-                value: v,
-            });
+            out.push(Sample { t: stamp, metric: Metric::Latency, role: Some(role), value: v });
         }
         if let Some(v) = ts.interarrival {
-            out.push(Sample {
-                t: stamp,
-                metric: Metric::Interarrival,
-                role: Some(role),
-                value: v,
-            });
+            out.push(Sample { t: stamp, metric: Metric::Interarrival, role: Some(role), value: v });
         }
         let deadline = arrival + self.ap.max_wait;
         match (role, msg) {
-            (Role::ReferenceObjects, Msg::Objects(set)) => {
-                self.ref_objects.insert(stamp, RefSet::new(&set))
-            }
+            (Role::ReferenceObjects, Msg::Objects(set)) => self.ref_objects.insert(stamp, RefSet::new(&set)),
             (Role::EstimateObjects, Msg::Objects(set)) => {
                 if self.tracks.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
@@ -295,11 +279,7 @@ impl Engine {
                         self.eval_tracking(p.t, &p.item, out);
                     }
                 }
-                self.tracks.push_back(Pending {
-                    t: stamp,
-                    deadline,
-                    item: set,
-                });
+                self.tracks.push_back(Pending { t: stamp, deadline, item: set });
             }
             (Role::ReferenceEgo, Msg::Pose(p)) => self.ref_ego.insert(stamp, p),
             (Role::EstimateEgo, Msg::Pose(p)) => {
@@ -310,11 +290,7 @@ impl Engine {
                         self.eval_ego(q.t, &q.item, out);
                     }
                 }
-                self.egos.push_back(Pending {
-                    t: stamp,
-                    deadline,
-                    item: p,
-                });
+                self.egos.push_back(Pending { t: stamp, deadline, item: p });
             }
             // Paths and obstacle maps are accepted and counted; their metrics live elsewhere.
             _ => {}
@@ -335,12 +311,7 @@ impl Engine {
         self.drain(true, out);
         let t = self.tracklife.last_t();
         for d in self.tracklife.finish() {
-            out.push(Sample {
-                t,
-                metric: Metric::DeletionDelay,
-                role: None,
-                value: d,
-            });
+            out.push(Sample { t, metric: Metric::DeletionDelay, role: None, value: d });
         }
     }
 
@@ -385,14 +356,11 @@ impl Engine {
 
     fn prune(&mut self) {
         let mut low = f64::INFINITY;
-        for t in [
-            self.tracks.front().map(|p| p.t),
-            self.egos.front().map(|p| p.t),
-        ]
-        .into_iter()
-        .flatten()
-        .chain(self.last_track_t)
-        .chain(self.last_ego_t)
+        for t in [self.tracks.front().map(|p| p.t), self.egos.front().map(|p| p.t)]
+            .into_iter()
+            .flatten()
+            .chain(self.last_track_t)
+            .chain(self.last_ego_t)
         {
             low = low.min(t);
         }
@@ -411,27 +379,15 @@ impl Engine {
             .map_err(|m| miss_reason(m, "frame"))
     }
 
-    fn world_points(
-        &self,
-        set: &ObjectSet,
-        at: f64,
-        out: &mut Vec<Point>,
-    ) -> Result<(), &'static str> {
-        let ego = if align::is_ego_frame(set) {
-            Some(self.frame_pose(at)?)
-        } else {
-            None
-        };
+    fn world_points(&self, set: &ObjectSet, at: f64, out: &mut Vec<Point>) -> Result<(), &'static str> {
+        let ego = if align::is_ego_frame(set) { Some(self.frame_pose(at)?) } else { None };
         align::points_of(set, ego.as_ref(), out);
         Ok(())
     }
 
     fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
-        let (mut xs, mut wa, mut wb) = (
-            std::mem::take(&mut self.xs),
-            std::mem::take(&mut self.wa),
-            std::mem::take(&mut self.wb),
-        );
+        let (mut xs, mut wa, mut wb) =
+            (std::mem::take(&mut self.xs), std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
         let mut index = std::mem::take(&mut self.index);
         xs.clear();
         let res = match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
@@ -503,25 +459,10 @@ impl Engine {
         self.xp.extend(self.xs.iter().map(|o| [o.x, o.y]));
         self.yp.clear();
         self.yp.extend(self.ys.iter().map(|o| [o.x, o.y]));
-        let m = match_with_cutoff(
-            &self.xp,
-            &self.yp,
-            c,
-            p,
-            true,
-            &mut self.solver,
-            &mut self.scratch,
-        );
+        let m = match_with_cutoff(&self.xp, &self.yp, c, p, true, &mut self.solver, &mut self.scratch);
         let (nx, ny) = (self.xp.len(), self.yp.len());
         let g = gospa::from_matching(nx, ny, &m, c, p, alpha);
-        let mut push = |metric, value| {
-            out.push(Sample {
-                t,
-                metric,
-                role: None,
-                value,
-            })
-        };
+        let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
         push(Metric::Gospa, g.total);
         if alpha == 2.0 {
             push(Metric::GospaLocalization, g.localization);
@@ -553,11 +494,7 @@ impl Engine {
         ests.clear();
         ests.extend(self.ys.iter().map(|o| o.id));
         pairs.clear();
-        pairs.extend(
-            m.pairs
-                .iter()
-                .map(|&(i, j, _)| (self.xs[i].id, self.ys[j].id)),
-        );
+        pairs.extend(m.pairs.iter().map(|&(i, j, _)| (self.xs[i].id, self.ys[j].id)));
         self.tracklife.step(t, refs, ests, pairs, &mut self.tl_step);
         push(Metric::TrackSwitches, self.tl_step.switches as f64);
         push(Metric::Fragmentations, self.tl_step.fragmentations as f64);
@@ -576,22 +513,14 @@ impl Engine {
             Err(m) => return self.counters.ego.skip(miss_reason(m, "ego")),
         };
         self.counters.ego.hit(how);
-        let e = ego::ego_error(
-            [est.x, est.y, est.yaw],
-            [reference.x, reference.y, reference.yaw],
-        );
+        let e = ego::ego_error([est.x, est.y, est.yaw], [reference.x, reference.y, reference.yaw]);
         for (metric, value) in [
             (Metric::EgoPositionError, e.position),
             (Metric::EgoHeadingError, e.heading),
             (Metric::EgoLongitudinalError, e.longitudinal),
             (Metric::EgoLateralError, e.lateral),
         ] {
-            out.push(Sample {
-                t,
-                metric,
-                role: None,
-                value,
-            });
+            out.push(Sample { t, metric, role: None, value });
         }
     }
 }

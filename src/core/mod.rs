@@ -24,10 +24,7 @@ pub struct ParamError {
 }
 
 fn perr(key: &str, expected: &str) -> ParamError {
-    ParamError {
-        key: key.to_string(),
-        expected: expected.to_string(),
-    }
+    ParamError { key: key.to_string(), expected: expected.to_string() }
 }
 
 /// Which ego pose transforms ego-frame object sets.
@@ -81,14 +78,7 @@ impl TrackingParams {
         if forget_after.is_nan() || forget_after <= 0.0 {
             return Err(perr("forget_after", "a positive duration"));
         }
-        Ok(TrackingParams {
-            cutoff,
-            order,
-            alpha,
-            region,
-            ego_source,
-            forget_after,
-        })
+        Ok(TrackingParams { cutoff, order, alpha, region, ego_source, forget_after })
     }
 }
 
@@ -144,24 +134,12 @@ impl AlignParams {
         if buffer_messages < 2 {
             return Err(perr("limits.buffer_messages", "at least 2"));
         }
-        Ok(AlignParams {
-            max_wait,
-            tolerance,
-            retain,
-            pending_steps,
-            buffer_messages,
-        })
+        Ok(AlignParams { max_wait, tolerance, retain, pending_steps, buffer_messages })
     }
 }
 
 impl Default for AlignParams {
     fn default() -> Self {
-        AlignParams {
-            max_wait: 0.5,
-            tolerance: 0.1,
-            retain: 2.0,
-            pending_steps: 4096,
-            buffer_messages: 4096,
-        }
+        AlignParams { max_wait: 0.5, tolerance: 0.1, retain: 2.0, pending_steps: 4096, buffer_messages: 4096 }
     }
 }

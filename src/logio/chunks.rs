@@ -99,14 +99,7 @@ pub struct LineFramer<R> {
 impl<R: Read> LineFramer<R> {
     /// Frames `r` from its start.
     pub fn new(r: R) -> Self {
-        LineFramer {
-            r,
-            hash: None,
-            carry: Vec::new(),
-            line: 0,
-            off: 0,
-            eof: false,
-        }
+        LineFramer { r, hash: None, carry: Vec::new(), line: 0, off: 0, eof: false }
     }
 
     /// Also hashes every byte read (SHA-256), starting with `prefix` (bytes already read).
@@ -137,11 +130,7 @@ impl<R: Read> LineFramer<R> {
                 let first = self.line + 1;
                 self.line += memchr::memchr_iter(b'\n', &bytes).count() as u64;
                 self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk {
-                    bytes,
-                    first,
-                    end: self.off,
-                })));
+                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off })));
             }
             if self.eof {
                 if self.carry.is_empty() {
@@ -150,11 +139,7 @@ impl<R: Read> LineFramer<R> {
                 let bytes = std::mem::take(&mut self.carry);
                 self.line += 1;
                 self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk {
-                    bytes,
-                    first: self.line,
-                    end: self.off,
-                })));
+                return Ok(Some(Frame::Chunk(Chunk { bytes, first: self.line, end: self.off })));
             }
             if self.carry.len() > MAX_LINE {
                 return self.skip_long_line().map(Some);
@@ -181,10 +166,7 @@ impl<R: Read> LineFramer<R> {
             self.carry.clear();
         }
         self.line += 1;
-        Ok(Frame::LongLine {
-            line: self.line,
-            end: self.off,
-        })
+        Ok(Frame::LongLine { line: self.line, end: self.off })
     }
 }
 
@@ -202,15 +184,7 @@ pub struct RecordFramer<R> {
 impl<R: Read> RecordFramer<R> {
     /// Frames records starting at file offset `off`.
     pub fn new(r: R, off: u64, max_record: u32) -> Self {
-        RecordFramer {
-            r,
-            hash: None,
-            carry: Vec::new(),
-            off,
-            eof: false,
-            done: false,
-            max_record,
-        }
+        RecordFramer { r, hash: None, carry: Vec::new(), off, eof: false, done: false, max_record }
     }
 
     /// Also hashes every byte read (SHA-256), starting with `prefix` (the header bytes).
@@ -255,19 +229,12 @@ impl<R: Read> RecordFramer<R> {
                 let bytes = std::mem::replace(&mut self.carry, rest);
                 let first = self.off;
                 self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk {
-                    bytes,
-                    first,
-                    end: self.off,
-                })));
+                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off })));
             }
             if let Some(len) = bad_len {
                 self.done = true;
                 let reason = format!("record length {len} out of range");
-                return Ok(Some(Frame::Tail(Tail {
-                    offset: self.off,
-                    reason,
-                })));
+                return Ok(Some(Frame::Tail(Tail { offset: self.off, reason })));
             }
             if self.eof {
                 self.done = true;
@@ -279,10 +246,7 @@ impl<R: Read> RecordFramer<R> {
                 } else {
                     format!("record cut short: {} bytes of a record", self.carry.len())
                 };
-                return Ok(Some(Frame::Tail(Tail {
-                    offset: self.off,
-                    reason,
-                })));
+                return Ok(Some(Frame::Tail(Tail { offset: self.off, reason })));
             }
         }
     }
@@ -296,14 +260,10 @@ mod tests {
     fn lines_split_at_newlines_with_numbers() {
         let text = b"a\nbb\n\nccc".to_vec();
         let mut f = LineFramer::new(&text[..]);
-        let Some(Frame::Chunk(c)) = f.next_frame().unwrap() else {
-            panic!()
-        };
+        let Some(Frame::Chunk(c)) = f.next_frame().unwrap() else { panic!() };
         assert_eq!(c.bytes, b"a\nbb\n\n");
         assert_eq!(c.first, 1);
-        let Some(Frame::Chunk(c)) = f.next_frame().unwrap() else {
-            panic!()
-        };
+        let Some(Frame::Chunk(c)) = f.next_frame().unwrap() else { panic!() };
         assert_eq!((c.bytes.as_slice(), c.first, c.end), (&b"ccc"[..], 4, 9));
         assert!(f.next_frame().unwrap().is_none());
     }
@@ -318,13 +278,9 @@ mod tests {
         }
         data.extend_from_slice(&[9, 0, 0]);
         let mut f = RecordFramer::new(&data[..], 100, 1 << 20);
-        let Some(Frame::Chunk(c)) = f.next_frame().unwrap() else {
-            panic!()
-        };
+        let Some(Frame::Chunk(c)) = f.next_frame().unwrap() else { panic!() };
         assert_eq!((c.first, c.bytes.len()), (100, 34));
-        let Some(Frame::Tail(t)) = f.next_frame().unwrap() else {
-            panic!()
-        };
+        let Some(Frame::Tail(t)) = f.next_frame().unwrap() else { panic!() };
         assert_eq!(t.offset, 134);
         assert!(f.next_frame().unwrap().is_none());
     }

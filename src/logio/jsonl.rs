@@ -86,11 +86,7 @@ impl<'de> Visitor<'de> for LineSeed<'_> {
         f.write_str("a record object with key, recv and msg")
     }
     fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Self::Value, A::Error> {
-        let mut out = Parsed {
-            key: None,
-            recv: None,
-            body: None,
-        };
+        let mut out = Parsed { key: None, recv: None, body: None };
         while let Some(k) = map.next_key::<Text<'de>>()? {
             match &*k.0 {
                 "key" => out.key = Some(map.next_value()?),
@@ -125,20 +121,12 @@ pub fn decode_line(
     let text = std::str::from_utf8(line).map_err(|e| (None, Reject::Malformed(e.to_string())))?;
     let decoding = Cell::new(None);
     let mut de = serde_json::Deserializer::from_str(text);
-    let parsed = LineSeed {
-        cfg,
-        decoding: &decoding,
-    }
-    .deserialize(&mut de)
-    .and_then(|p| de.end().map(|_| p))
-    .map_err(|e| (decoding.get(), Reject::from_json(&e)))?;
-    let key = parsed
-        .key
-        .ok_or_else(|| (None, Reject::MissingField("key".into())))?
-        .0;
-    let body = parsed
-        .body
-        .ok_or_else(|| (None, Reject::MissingField("msg".into())))?;
+    let parsed = LineSeed { cfg, decoding: &decoding }
+        .deserialize(&mut de)
+        .and_then(|p| de.end().map(|_| p))
+        .map_err(|e| (decoding.get(), Reject::from_json(&e)))?;
+    let key = parsed.key.ok_or_else(|| (None, Reject::MissingField("key".into())))?.0;
+    let body = parsed.body.ok_or_else(|| (None, Reject::MissingField("msg".into())))?;
     if let Some(r) = parsed.recv {
         if !r.is_finite() {
             return Err((None, Reject::NonFinite("recv".into())));
@@ -147,28 +135,13 @@ pub fn decode_line(
     let (role, msg) = match body {
         Body::Typed(role, msg) => (role, msg),
         Body::Raw(raw) => {
-            let role = role_for(cfg, &[], &key)
-                .ok_or_else(|| (None, Reject::UnboundKey(key.to_string())))?;
+            let role = role_for(cfg, &[], &key).ok_or_else(|| (None, Reject::UnboundKey(key.to_string())))?;
             let msg = decode_json(role.kind(), raw.get(), limits).map_err(|e| (Some(role), e))?;
-            return Ok((
-                role,
-                LogRecord {
-                    key: key.into_owned(),
-                    recv: parsed.recv,
-                    msg,
-                },
-            ));
+            return Ok((role, LogRecord { key: key.into_owned(), recv: parsed.recv, msg }));
         }
     };
     validate(&msg, limits).map_err(|e| (Some(role), e))?;
-    Ok((
-        role,
-        LogRecord {
-            key: key.into_owned(),
-            recv: parsed.recv,
-            msg,
-        },
-    ))
+    Ok((role, LogRecord { key: key.into_owned(), recv: parsed.recv, msg }))
 }
 
 /// Decodes a chunk of whole lines.
@@ -182,22 +155,14 @@ pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<
         if !line.iter().all(u8::is_ascii_whitespace) {
             out.push(match decode_line(cfg, limits, line) {
                 Ok((role, rec)) => Item::Record { role, rec },
-                Err((role, reason)) => Item::Bad {
-                    pos: Position::Line(line_no),
-                    role,
-                    reason,
-                },
+                Err((role, reason)) => Item::Bad { pos: Position::Line(line_no), role, reason },
             });
         }
     }
 }
 
 /// Reads a JSON Lines log on the calling thread.
-pub fn read(
-    cfg: &Config,
-    path: &Path,
-    each: &mut dyn FnMut(Item, u64),
-) -> Result<ReadOutcome, LogError> {
+pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
     let f = File::open(path).map_err(io_err(path))?;
     let mut framer = LineFramer::new(f);
     let limits = cfg.limits();
@@ -220,11 +185,7 @@ pub fn decode_frame(cfg: &Config, limits: &Limits, frame: Frame, out: &mut Vec<I
             c.end
         }
         Frame::LongLine { line, end } => {
-            out.push(Item::Bad {
-                pos: Position::Line(line),
-                role: None,
-                reason: Reject::TooLong(MAX_LINE),
-            });
+            out.push(Item::Bad { pos: Position::Line(line), role: None, reason: Reject::TooLong(MAX_LINE) });
             end
         }
         // Lines have no tail; a framer of lines never yields one.
@@ -237,10 +198,7 @@ pub fn format_line(rec: &LogRecord) -> String {
     let key = serde_json::to_string(&rec.key).unwrap_or_default();
     let body = rec.msg.to_json();
     match rec.recv {
-        Some(r) => format!(
-            "{{\"key\":{key},\"recv\":{},\"msg\":{body}}}\n",
-            ryu::Buffer::new().format(r)
-        ),
+        Some(r) => format!("{{\"key\":{key},\"recv\":{},\"msg\":{body}}}\n", ryu::Buffer::new().format(r)),
         None => format!("{{\"key\":{key},\"msg\":{body}}}\n"),
     }
 }

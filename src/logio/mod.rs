@@ -113,12 +113,8 @@ impl Form {
 
 /// Resolves a key to a role: the config's bindings first, then the log's own header.
 pub fn role_for(cfg: &Config, header_roles: &[(String, String)], key: &str) -> Option<Role> {
-    cfg.role_of(key).or_else(|| {
-        header_roles
-            .iter()
-            .find(|(_, k)| k == key)
-            .and_then(|(r, _)| Role::from_name(r))
-    })
+    cfg.role_of(key)
+        .or_else(|| header_roles.iter().find(|(_, k)| k == key).and_then(|(r, _)| Role::from_name(r)))
 }
 
 /// What reading a whole log found besides its items.
@@ -132,11 +128,7 @@ pub struct ReadOutcome {
 
 /// Opens either form and calls `each` for every item, in file order, with the bytes read
 /// so far.
-pub fn read_all(
-    cfg: &Config,
-    path: &Path,
-    each: &mut dyn FnMut(Item, u64),
-) -> Result<ReadOutcome, LogError> {
+pub fn read_all(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
     match Form::of(path) {
         Form::Jsonl => jsonl::read(cfg, path, each),
         Form::Plb => plb::read(cfg, path, each),
@@ -144,10 +136,7 @@ pub fn read_all(
 }
 
 fn io_err(path: &Path) -> impl FnOnce(std::io::Error) -> LogError + '_ {
-    move |source| LogError::Io {
-        path: path.display().to_string(),
-        source,
-    }
+    move |source| LogError::Io { path: path.display().to_string(), source }
 }
 
 /// A writer of either form, picked by the path's extension.

@@ -45,11 +45,7 @@ impl Header {
         Header {
             created_unix_s,
             tool: format!("plumbline {}", env!("CARGO_PKG_VERSION")),
-            roles: cfg
-                .roles
-                .iter()
-                .map(|(r, k)| (r.name().to_string(), k.clone()))
-                .collect(),
+            roles: cfg.roles.iter().map(|(r, k)| (r.name().to_string(), k.clone())).collect(),
         }
     }
 }
@@ -72,21 +68,16 @@ impl<W: Write> PlbWriter<W> {
         out.write_all(&(h.len() as u32).to_le_bytes())?;
         out.write_all(&h)?;
         out.write_all(&crc32fast::hash(&h).to_le_bytes())?;
-        Ok(PlbWriter {
-            out,
-            buf: Vec::new(),
-            bytes: 16 + h.len() as u64 + 4,
-        })
+        Ok(PlbWriter { out, buf: Vec::new(), bytes: 16 + h.len() as u64 + 4 })
     }
 
     /// Appends one record.
     pub fn write(&mut self, rec: &LogRecord) -> std::io::Result<()> {
         self.buf.clear();
-        let payload = postcard::to_extend(rec, std::mem::take(&mut self.buf))
-            .map_err(std::io::Error::other)?;
+        let payload =
+            postcard::to_extend(rec, std::mem::take(&mut self.buf)).map_err(std::io::Error::other)?;
         self.out.write_all(&(payload.len() as u32).to_le_bytes())?;
-        self.out
-            .write_all(&crc32fast::hash(&payload).to_le_bytes())?;
+        self.out.write_all(&crc32fast::hash(&payload).to_le_bytes())?;
         self.out.write_all(&payload)?;
         self.bytes += 8 + payload.len() as u64;
         self.buf = payload;
@@ -107,10 +98,7 @@ impl<W: Write> PlbWriter<W> {
 
 /// Creates a binary log file.
 pub fn create(path: &Path, header: &Header) -> std::io::Result<PlbWriter<BufWriter<File>>> {
-    PlbWriter::new(
-        BufWriter::with_capacity(1 << 20, File::create(path)?),
-        header,
-    )
+    PlbWriter::new(BufWriter::with_capacity(1 << 20, File::create(path)?), header)
 }
 
 /// Reads as many bytes as are there, up to `buf.len()`.
@@ -131,10 +119,7 @@ fn read_full(r: &mut impl Read, buf: &mut [u8]) -> std::io::Result<usize> {
 ///
 /// Returns the header and the raw bytes it took.
 pub fn read_header(r: &mut impl Read, path: &Path) -> Result<(Header, Vec<u8>), LogError> {
-    let bad = |why: &str| LogError::BadHeader {
-        path: path.display().to_string(),
-        why: why.to_string(),
-    };
+    let bad = |why: &str| LogError::BadHeader { path: path.display().to_string(), why: why.to_string() };
     let mut fixed = [0u8; 16];
     if read_full(r, &mut fixed).map_err(io_err(path))? < 16 {
         return Err(bad("shorter than the fixed header"));
@@ -144,9 +129,7 @@ pub fn read_header(r: &mut impl Read, path: &Path) -> Result<(Header, Vec<u8>), 
     }
     let version = u16::from_le_bytes([fixed[8], fixed[9]]);
     if version != VERSION {
-        return Err(bad(&format!(
-            "format version {version}, this build reads {VERSION}"
-        )));
+        return Err(bad(&format!("format version {version}, this build reads {VERSION}")));
     }
     let len = u32::from_le_bytes([fixed[12], fixed[13], fixed[14], fixed[15]]);
     if len > MAX_RECORD {
@@ -184,18 +167,9 @@ pub fn decode_chunk(
         let payload = &b[pos + 8..pos + 8 + len];
         pos += 8 + len;
         if crc32fast::hash(payload) != crc {
-            return Some(Tail {
-                offset: off,
-                reason: "record checksum mismatch".into(),
-            });
+            return Some(Tail { offset: off, reason: "record checksum mismatch".into() });
         }
-        out.push(decode_record(
-            cfg,
-            header_roles,
-            limits,
-            payload,
-            Position::Offset(off),
-        ));
+        out.push(decode_record(cfg, header_roles, limits, payload, Position::Offset(off)));
     }
     None
 }
@@ -208,32 +182,15 @@ fn decode_record(
     pos: Position,
 ) -> Item {
     let rec = match postcard::from_bytes::<LogRecord>(payload) {
-        Err(e) => {
-            return Item::Bad {
-                pos,
-                role: None,
-                reason: Reject::Malformed(e.to_string()),
-            }
-        }
+        Err(e) => return Item::Bad { pos, role: None, reason: Reject::Malformed(e.to_string()) },
         Ok(rec) => rec,
     };
     let Some(role) = role_for(cfg, header_roles, &rec.key) else {
-        return Item::Bad {
-            pos,
-            role: None,
-            reason: Reject::UnboundKey(rec.key),
-        };
+        return Item::Bad { pos, role: None, reason: Reject::UnboundKey(rec.key) };
     };
-    let bad = |reason| Item::Bad {
-        pos,
-        role: Some(role),
-        reason,
-    };
+    let bad = |reason| Item::Bad { pos, role: Some(role), reason };
     if role.kind() != rec.msg.kind() {
-        return bad(Reject::WrongType(format!(
-            "message kind does not match role {}",
-            role.name()
-        )));
+        return bad(Reject::WrongType(format!("message kind does not match role {}", role.name())));
     }
     if let Err(reason) = validate(&rec.msg, limits) {
         return bad(reason);
@@ -271,11 +228,7 @@ pub fn decode_frame(
 }
 
 /// Reads a binary log on the calling thread.
-pub fn read(
-    cfg: &Config,
-    path: &Path,
-    each: &mut dyn FnMut(Item, u64),
-) -> Result<ReadOutcome, LogError> {
+pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
     let (header, mut framer) = open(path, false)?;
     let limits = cfg.limits();
     let mut items = Vec::new();

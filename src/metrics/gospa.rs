@@ -67,15 +67,8 @@ mod tests {
     use crate::core::assign::{match_with_cutoff, MatchScratch, ShortestPath};
 
     fn gospa(xs: &[[f64; 2]], ys: &[[f64; 2]], c: f64, p: f64, alpha: f64) -> Gospa {
-        let m = match_with_cutoff(
-            xs,
-            ys,
-            c,
-            p,
-            true,
-            &mut ShortestPath::default(),
-            &mut MatchScratch::default(),
-        );
+        let m =
+            match_with_cutoff(xs, ys, c, p, true, &mut ShortestPath::default(), &mut MatchScratch::default());
         from_matching(xs.len(), ys.len(), &m, c, p, alpha)
     }
 

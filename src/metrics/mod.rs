@@ -118,6 +118,12 @@ impl Metric {
     }
 }
 
+impl serde::Serialize for Metric {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.name())
+    }
+}
+
 /// `d^p`, with the common orders computed without `powf`.
 #[inline]
 pub fn pow_p(d: f64, p: f64) -> f64 {
@@ -144,23 +150,9 @@ pub fn root_p(x: f64, p: f64) -> f64 {
 
 /// GOSPA and OSPA of two point sets in one call (a fresh solver; for tests and tools —
 /// the engine keeps its solver and scratch between steps).
-pub fn gospa_ospa(
-    xs: &[[f64; 2]],
-    ys: &[[f64; 2]],
-    c: f64,
-    p: f64,
-    alpha: f64,
-) -> (gospa::Gospa, f64) {
+pub fn gospa_ospa(xs: &[[f64; 2]], ys: &[[f64; 2]], c: f64, p: f64, alpha: f64) -> (gospa::Gospa, f64) {
     use crate::core::assign::{match_with_cutoff, MatchScratch, ShortestPath};
-    let m = match_with_cutoff(
-        xs,
-        ys,
-        c,
-        p,
-        true,
-        &mut ShortestPath::default(),
-        &mut MatchScratch::default(),
-    );
+    let m = match_with_cutoff(xs, ys, c, p, true, &mut ShortestPath::default(), &mut MatchScratch::default());
     (
         gospa::from_matching(xs.len(), ys.len(), &m, c, p, alpha),
         ospa::from_matching(xs.len(), ys.len(), &m, c, p),

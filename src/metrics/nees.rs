@@ -33,10 +33,7 @@ pub fn interval95(n: u64) -> Option<(f64, f64)> {
     }
     let k = 2.0 * n as f64;
     let chi = ChiSquared::new(k).ok()?;
-    Some((
-        chi.inverse_cdf(0.025) / n as f64,
-        chi.inverse_cdf(0.975) / n as f64,
-    ))
+    Some((chi.inverse_cdf(0.025) / n as f64, chi.inverse_cdf(0.975) / n as f64))
 }
 
 /// Pooled NEES over a window, with the consistency verdict.
@@ -72,13 +69,7 @@ impl NeesPool {
     pub fn consistency(&self) -> Option<Consistency> {
         let (lower, upper) = interval95(self.n)?;
         let mean = self.sum / self.n as f64;
-        Some(Consistency {
-            n: self.n,
-            mean,
-            lower,
-            upper,
-            inside: mean >= lower && mean <= upper,
-        })
+        Some(Consistency { n: self.n, mean, lower, upper, inside: mean >= lower && mean <= upper })
     }
 }
 
@@ -89,10 +80,7 @@ mod tests {
     #[test]
     fn nees_by_hand() {
         // e = (1, 2), P = diag(1, 4): 1/1 + 4/4 = 2.
-        assert_eq!(
-            nees([1.0, 2.0], [0.0, 0.0], &[1.0, 0.0, 0.0, 4.0]),
-            Some(2.0)
-        );
+        assert_eq!(nees([1.0, 2.0], [0.0, 0.0], &[1.0, 0.0, 0.0, 4.0]), Some(2.0));
         // Correlated: P = [[2, 1], [1, 2]], e = (1, 1): P^-1 = [[2,-1],[-1,2]]/3 -> 2/3.
         let v = nees([1.0, 1.0], [0.0, 0.0], &[2.0, 1.0, 1.0, 2.0]).unwrap();
         assert!((v - 2.0 / 3.0).abs() < 1e-15);

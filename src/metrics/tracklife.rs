@@ -127,11 +127,8 @@ impl TrackLife {
                 }
                 st.last_est = Some(e);
             }
-            let es = self.ests.entry(e).or_insert(EstState {
-                last_seen: t,
-                owner: None,
-                owner_left_at: None,
-            });
+            let es =
+                self.ests.entry(e).or_insert(EstState { last_seen: t, owner: None, owner_left_at: None });
             es.owner = Some(r);
             es.owner_left_at = None;
         }
@@ -145,11 +142,8 @@ impl TrackLife {
             }
         }
         for &e in ests_present {
-            let es = self.ests.entry(e).or_insert(EstState {
-                last_seen: t,
-                owner: None,
-                owner_left_at: None,
-            });
+            let es =
+                self.ests.entry(e).or_insert(EstState { last_seen: t, owner: None, owner_left_at: None });
             es.last_seen = t;
             if let Some(owner) = es.owner {
                 if self.cur_refs.contains(&owner) {
@@ -267,11 +261,8 @@ mod tests {
     fn absence_is_not_a_fragmentation() {
         // Ref leaves the region (absent) and returns: re-acquisition by the same track is
         // neither a switch nor a fragmentation.
-        let (o, _) = run(&[
-            (0.0, &[1], &[10], &[(1, 10)]),
-            (0.1, &[], &[], &[]),
-            (0.2, &[1], &[10], &[(1, 10)]),
-        ]);
+        let (o, _) =
+            run(&[(0.0, &[1], &[10], &[(1, 10)]), (0.1, &[], &[], &[]), (0.2, &[1], &[10], &[(1, 10)])]);
         assert_eq!((o[2].switches, o[2].fragmentations), (0, 0));
     }
 

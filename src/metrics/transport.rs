@@ -49,11 +49,7 @@ impl Transport {
         if recv.is_some() {
             self.last_recv = recv;
         }
-        TransportSample {
-            latency,
-            interarrival,
-            regression,
-        }
+        TransportSample { latency, interarrival, regression }
     }
 
     /// Seconds since the last arrival at `now`, if anything arrived.

@@ -1,0 +1,329 @@
+//! Threshold rules over windowed statistics: alerts with sustain and hysteresis, and the
+//! run's verdicts.
+//!
+//! A rule reads one statistic of one metric (optionally one role) in one window and
+//! compares it `above` or `below` a threshold. On a sliding window the rule is checked at
+//! every value of its metric:
+//! - it **raises** at the first check at which the condition has held for `sustain`
+//!   seconds of event time (at once when `sustain` is 0);
+//! - once raised it **clears** at the first check at which the condition has been false
+//!   for `clear_after` seconds (at once when 0).
+//!
+//! Its verdict fails when it raised at least once; its worst value is the largest (above)
+//! or smallest (below) statistic seen. A rule on the window `run` is a requirement judged
+//! at the end on the whole run's exact statistics. A rule without a role on a per-role
+//! metric applies to every role separately. Durations are compared with the 1 µs slack of
+//! the alignment rule, so 0.3 s of 10 Hz samples counts as 0.3 s despite rounding.
+//! Pure: times are event times passed in.
+
+use serde::Serialize;
+
+use crate::core::align::EXACT_S;
+use crate::metrics::Metric;
+use crate::msg::Role;
+use crate::report::RunStats;
+use crate::windows::{Stat, WindowSet};
+
+/// How bad a failure is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Severity {
+    /// For the record.
+    Info,
+    /// Look at it.
+    Warning,
+    /// Fails the run (exit code 1).
+    Critical,
+}
+
+impl Severity {
+    /// Parses `info`, `warning`, `critical`.
+    pub fn from_name(s: &str) -> Option<Severity> {
+        Some(match s {
+            "info" => Severity::Info,
+            "warning" => Severity::Warning,
+            "critical" => Severity::Critical,
+            _ => return None,
+        })
+    }
+
+    /// The name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Severity::Info => "info",
+            Severity::Warning => "warning",
+            Severity::Critical => "critical",
+        }
+    }
+}
+
+/// Which window a rule reads.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum RuleWindow {
+    /// Index into the window set's lengths.
+    Sliding(usize),
+    /// The whole run, judged at the end.
+    Run,
+}
+
+/// One rule, validated.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Rule {
+    /// Name (unique).
+    pub name: String,
+    /// Metric read.
+    pub metric: Metric,
+    /// Role filter.
+    pub role: Option<Role>,
+    /// Window read.
+    pub window: RuleWindow,
+    /// The window as written (`10s`, `run`).
+    pub window_label: String,
+    /// Statistic read.
+    pub stat: Stat,
+    /// `true`: fails above the threshold; `false`: below.
+    pub above: bool,
+    /// Threshold.
+    pub threshold: f64,
+    /// How long the condition must hold before raising (s).
+    pub sustain: f64,
+    /// How long it must be false before clearing (s).
+    pub clear_after: f64,
+    /// Severity.
+    pub severity: Severity,
+}
+
+impl Rule {
+    fn breaches(&self, v: f64) -> bool {
+        if self.above {
+            v > self.threshold
+        } else {
+            v < self.threshold
+        }
+    }
+
+    fn worse(&self, a: f64, b: f64) -> f64 {
+        if self.above {
+            a.max(b)
+        } else {
+            a.min(b)
+        }
+    }
+}
+
+/// An alert event.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct AlertEvent {
+    /// Rule name.
+    pub rule: String,
+    /// `raised` or `cleared`.
+    pub kind: &'static str,
+    /// Event time (s).
+    pub t: f64,
+    /// The statistic's value.
+    pub value: f64,
+    /// The threshold.
+    pub threshold: f64,
+    /// Severity.
+    pub severity: &'static str,
+    /// Metric.
+    pub metric: &'static str,
+    /// Statistic.
+    pub stat: &'static str,
+    /// Window.
+    pub window: String,
+    /// Role, for per-role metrics.
+    pub role: Option<&'static str>,
+}
+
+/// A rule's verdict.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Verdict {
+    /// Rule name.
+    pub rule: String,
+    /// `pass`, `fail` or `no_data`.
+    pub verdict: &'static str,
+    /// Worst value seen.
+    pub worst: Option<f64>,
+    /// Threshold.
+    pub threshold: f64,
+    /// `above` or `below`.
+    pub direction: &'static str,
+    /// Severity.
+    pub severity: &'static str,
+    /// Metric.
+    pub metric: &'static str,
+    /// Statistic.
+    pub stat: &'static str,
+    /// Window.
+    pub window: String,
+    /// Times raised.
+    pub raised: u32,
+}
+
+#[derive(Debug, Clone, Copy, Default)]
+struct State {
+    raised: bool,
+    pending_since: Option<f64>,
+    clear_since: Option<f64>,
+    worst: Option<f64>,
+    raised_count: u32,
+}
+
+const SLOTS: usize = Role::ALL.len() + 1;
+
+fn slot(role: Option<Role>) -> usize {
+    role.map_or(0, |r| r.index() + 1)
+}
+
+/// Every rule with its state.
+#[derive(Debug, Clone)]
+pub struct RuleSet {
+    rules: Vec<Rule>,
+    states: Vec<[State; SLOTS]>,
+    by_key: Vec<Vec<usize>>,
+}
+
+fn is_per_role(m: Metric) -> bool {
+    matches!(m, Metric::Latency | Metric::Interarrival)
+}
+
+impl RuleSet {
+    /// Builds the index of rules by metric key.
+    pub fn new(rules: Vec<Rule>) -> RuleSet {
+        let mut by_key = vec![Vec::new(); Metric::ALL.len() * SLOTS];
+        for (i, r) in rules.iter().enumerate() {
+            if !matches!(r.window, RuleWindow::Sliding(_)) {
+                continue;
+            }
+            let roles: Vec<Option<Role>> = match (r.role, is_per_role(r.metric)) {
+                (Some(role), _) => vec![Some(role)],
+                (None, true) => Role::ALL.iter().map(|&x| Some(x)).collect(),
+                (None, false) => vec![None],
+            };
+            for role in roles {
+                by_key[crate::windows::key_index(r.metric, role)].push(i);
+            }
+        }
+        let states = vec![[State::default(); SLOTS]; rules.len()];
+        RuleSet { rules, states, by_key }
+    }
+
+    /// The rules.
+    pub fn rules(&self) -> &[Rule] {
+        &self.rules
+    }
+
+    /// Whether a rule is raised now (for a role, or for any role).
+    pub fn is_raised(&self, i: usize) -> bool {
+        self.states[i].iter().any(|s| s.raised)
+    }
+
+    /// Checks the rules of `metric`/`role` after a value at `t` entered the windows.
+    pub fn observe(
+        &mut self,
+        t: f64,
+        metric: Metric,
+        role: Option<Role>,
+        windows: &WindowSet,
+        out: &mut Vec<AlertEvent>,
+    ) {
+        let key = crate::windows::key_index(metric, role);
+        let Some(ws) = windows.get(metric, role) else { return };
+        for &i in &self.by_key[key] {
+            let r = &self.rules[i];
+            let RuleWindow::Sliding(w) = r.window else { continue };
+            let Some(v) = ws.get(w).and_then(|w| w.stat(r.stat)) else { continue };
+            if v.is_nan() {
+                continue;
+            }
+            let st = &mut self.states[i][slot(role)];
+            st.worst = Some(st.worst.map_or(v, |x| r.worse(x, v)));
+            let event = |kind| AlertEvent {
+                rule: r.name.clone(),
+                kind,
+                t,
+                value: v,
+                threshold: r.threshold,
+                severity: r.severity.name(),
+                metric: r.metric.name(),
+                stat: r.stat.name(),
+                window: r.window_label.clone(),
+                role: role.map(Role::name),
+            };
+            if r.breaches(v) {
+                st.clear_since = None;
+                if !st.raised {
+                    let since = *st.pending_since.get_or_insert(t);
+                    if t - since >= r.sustain - EXACT_S {
+                        st.raised = true;
+                        st.raised_count += 1;
+                        st.pending_since = None;
+                        out.push(event("raised"));
+                    }
+                }
+            } else {
+                st.pending_since = None;
+                if st.raised {
+                    let since = *st.clear_since.get_or_insert(t);
+                    if t - since >= r.clear_after - EXACT_S {
+                        st.raised = false;
+                        st.clear_since = None;
+                        out.push(event("cleared"));
+                    }
+                }
+            }
+        }
+    }
+
+    /// The verdict of every rule; run-window rules are judged on `run`.
+    pub fn verdicts(&self, run: &RunStats) -> Vec<Verdict> {
+        self.rules
+            .iter()
+            .enumerate()
+            .map(|(i, r)| {
+                let (worst, failed) = match r.window {
+                    RuleWindow::Sliding(_) => {
+                        let worst =
+                            self.states[i].iter().filter_map(|s| s.worst).reduce(|a, b| r.worse(a, b));
+                        (worst, self.states[i].iter().any(|s| s.raised_count > 0))
+                    }
+                    RuleWindow::Run => {
+                        let roles: Vec<Option<Role>> = match (r.role, is_per_role(r.metric)) {
+                            (Some(role), _) => vec![Some(role)],
+                            (None, true) => Role::ALL.iter().map(|&x| Some(x)).collect(),
+                            (None, false) => vec![None],
+                        };
+                        let worst = roles
+                            .into_iter()
+                            .filter_map(|role| run.stat(r.metric, role, r.stat))
+                            .reduce(|a, b| r.worse(a, b));
+                        (worst, worst.is_some_and(|v| r.breaches(v)))
+                    }
+                };
+                let raised = self.states[i].iter().map(|s| s.raised_count).sum();
+                Verdict {
+                    rule: r.name.clone(),
+                    verdict: match (worst, failed) {
+                        (_, true) => "fail",
+                        (None, false) => "no_data",
+                        (Some(_), false) => "pass",
+                    },
+                    worst,
+                    threshold: r.threshold,
+                    direction: if r.above { "above" } else { "below" },
+                    severity: r.severity.name(),
+                    metric: r.metric.name(),
+                    stat: r.stat.name(),
+                    window: r.window_label.clone(),
+                    raised,
+                }
+            })
+            .collect()
+    }
+}
+
+/// Whether any critical rule failed.
+pub fn critical_failed(verdicts: &[Verdict]) -> bool {
+    verdicts.iter().any(|v| v.verdict == "fail" && v.severity == "critical")
+}
