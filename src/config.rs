@@ -15,7 +15,8 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 use thiserror::Error;
 
-use crate::core::{AlignParams, EgoSource, TrackingParams};
+use crate::core::{AlignParams, ClearanceParams, EgoSource, TrackingParams};
+use crate::geometry::Footprint;
 use crate::metrics::Metric;
 use crate::msg::{Limits, Role};
 use crate::rules::{Rule, RuleWindow, Severity};
@@ -65,12 +66,48 @@ pub struct RawConfig {
     /// `[monitor]`
     #[serde(default)]
     pub monitor: RawMonitor,
+    /// `[clearance]`
+    #[serde(default)]
+    pub clearance: RawClearance,
+    /// `[path]`
+    #[serde(default)]
+    pub path: RawPath,
     /// `[windows]`
     #[serde(default)]
     pub windows: RawWindows,
     /// `[[rule]]`
     #[serde(default)]
     pub rule: Vec<RawRule>,
+}
+
+/// `[clearance]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawClearance {
+    /// radius of reference objects without a size (m)
+    pub object_radius_m: Option<f64>,
+    /// densification step of planned paths (m)
+    pub path_step_m: Option<f64>,
+    /// the margin the planner must keep (m)
+    pub inflation_m: Option<f64>,
+    /// site-map file (ObstacleSet JSON)
+    pub map_file: Option<String>,
+}
+
+/// `[path]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawPath {
+    /// arc length of the chord-deviation window (m)
+    pub deviation_window_m: Option<f64>,
+    /// occupancy grid resolution (m)
+    pub grid_m: Option<f64>,
+    /// grid margin around the path (m)
+    pub grid_margin_m: Option<f64>,
+    /// largest grid (cells)
+    pub max_grid_cells: Option<i64>,
+    /// evaluate the length excess at most this often
+    pub excess_every: Option<toml::Value>,
 }
 
 /// `[windows]`
@@ -198,8 +235,10 @@ pub struct Config {
     pub tracking: TrackingParams,
     /// alignment parameters
     pub align: AlignParams,
-    /// ego footprint
-    pub vehicle: Vehicle,
+    /// clearance and path parameters (the ego footprint among them)
+    pub clearance: ClearanceParams,
+    /// site-map file to load before the input, if any
+    pub map_file: Option<String>,
     /// HTTP listen address
     pub http_listen: String,
     /// message size limit
@@ -216,17 +255,6 @@ pub struct Config {
     pub window_buckets: usize,
     /// the rules
     pub rules: Vec<Rule>,
-}
-
-/// The ego footprint rectangle relative to the pose origin.
-#[derive(Debug, Clone, Copy, Serialize)]
-pub struct Vehicle {
-    /// length (m)
-    pub length: f64,
-    /// width (m)
-    pub width: f64,
-    /// origin to rear edge (m)
-    pub origin_to_rear: f64,
 }
 
 /// How the report computes percentiles.
@@ -320,14 +348,26 @@ impl Config {
         .map_err(|e| err(source, &e.key, e.expected))?;
 
         let v = &raw.vehicle;
-        let vehicle = Vehicle {
+        let footprint = Footprint {
             length: positive(source, "vehicle.length", v.length, 4.0)?,
             width: positive(source, "vehicle.width", v.width, 1.8)?,
             origin_to_rear: v.origin_to_rear.unwrap_or(1.0),
         };
-        if !vehicle.origin_to_rear.is_finite() {
+        if !footprint.origin_to_rear.is_finite() {
             return Err(err(source, "vehicle.origin_to_rear", "a finite number of metres"));
         }
+        let (c, p) = (&raw.clearance, &raw.path);
+        let clearance = ClearanceParams {
+            footprint,
+            object_radius: positive(source, "clearance.object_radius_m", c.object_radius_m, 0.5)?,
+            path_step: positive(source, "clearance.path_step_m", c.path_step_m, 0.5)?,
+            inflation: nonneg(source, "clearance.inflation_m", c.inflation_m, 0.5)?,
+            deviation_window: positive(source, "path.deviation_window_m", p.deviation_window_m, 10.0)?,
+            grid_res: positive(source, "path.grid_m", p.grid_m, 0.2)?,
+            grid_margin: nonneg(source, "path.grid_margin_m", p.grid_margin_m, 10.0)?,
+            max_grid_cells: count(source, "path.max_grid_cells", p.max_grid_cells, 2_000_000)?,
+            excess_every: duration(source, "path.excess_every", &p.excess_every, 1.0)?,
+        };
         let http_listen = raw.http.listen.clone().unwrap_or_else(|| "127.0.0.1:9464".into());
         if http_listen.parse::<std::net::SocketAddr>().is_err() {
             return Err(err(source, "http.listen", "an address such as \"127.0.0.1:9464\""));
@@ -370,7 +410,8 @@ impl Config {
             roles,
             tracking,
             align,
-            vehicle,
+            clearance,
+            map_file: raw.clearance.map_file.clone(),
             http_listen,
             max_objects,
             report,
@@ -549,6 +590,14 @@ fn count(source: &str, key: &str, v: Option<i64>, default: usize) -> Result<usiz
         None => Ok(default),
         Some(n) if n > 0 => Ok(n as usize),
         Some(n) => Err(err(source, key, format!("a positive whole number, found {n}"))),
+    }
+}
+
+fn nonneg(source: &str, key: &str, v: Option<f64>, default: f64) -> Result<f64, ConfigError> {
+    match v {
+        None => Ok(default),
+        Some(x) if x.is_finite() && x >= 0.0 => Ok(x),
+        Some(x) => Err(err(source, key, format!("a number of metres >= 0, found {x}"))),
     }
 }
 

@@ -4,6 +4,7 @@
 //! - [`msg`]: the messages of the interchange contract and their validation (no I/O);
 //! - [`config`]: two-stage configuration (no I/O; the caller passes file text);
 //! - [`core`]: time alignment, assignment and the evaluation engine (no I/O, no clock);
+//! - [`geometry`]: footprint, obstacles, distances, spatial index (pure);
 //! - [`metrics`]: one module per metric family (pure);
 //! - [`stats`]: run statistics with bounded memory (pure);
 //! - [`windows`]: sliding event-time windows with O(1) updates (pure);
@@ -19,6 +20,7 @@
 pub mod cli;
 pub mod config;
 pub mod core;
+pub mod geometry;
 pub mod logio;
 pub mod metrics;
 pub mod monitor;

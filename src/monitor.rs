@@ -30,7 +30,7 @@ impl Monitor {
     /// A monitor for a config.
     pub fn new(cfg: &Config) -> Monitor {
         Monitor {
-            engine: Engine::new(cfg.tracking, cfg.align),
+            engine: Engine::new(cfg.tracking, cfg.align, cfg.clearance),
             stats: RunStats::new(cfg),
             windows: WindowSet::new(&cfg.windows, cfg.window_buckets),
             rules: RuleSet::new(cfg.rules.clone()),

@@ -6,7 +6,7 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use crate::config::Config;
-use crate::core::engine::{Counters, Sample, StepCounts};
+use crate::core::engine::{Collision, Counters, Sample, StepCounts};
 use crate::logio::{Position, Tail};
 use crate::metrics::nees::Consistency;
 use crate::metrics::Metric;
@@ -193,6 +193,10 @@ pub struct Report {
     pub alerts_dropped: u64,
     /// Rule verdicts.
     pub verdicts: Vec<Verdict>,
+    /// Contacts between the footprint and an obstacle.
+    pub collisions: Vec<Collision>,
+    /// Contacts not kept.
+    pub collisions_dropped: u64,
 }
 
 /// What the report is built from besides the engine.
@@ -282,6 +286,8 @@ impl Report {
             alerts: monitor.alerts().to_vec(),
             alerts_dropped: monitor.alerts_dropped,
             verdicts: monitor.verdicts(),
+            collisions: engine.collisions().0.to_vec(),
+            collisions_dropped: engine.collisions().1,
         }
     }
 

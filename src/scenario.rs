@@ -4,13 +4,18 @@
 //!
 //! What it plants, so every metric has something to find:
 //! - simulator truth for objects and tracker output at 10 Hz (configurable), the tracker
-//!   offset by 20 ms (so the
-//!   reference is interpolated), reference ego at 50 Hz, estimated ego at 20 Hz;
+//!   offset by 20 ms (so the reference is interpolated), reference ego at 50 Hz, estimated
+//!   ego at 20 Hz, plans at 5 Hz;
 //! - tracker noise (0.12 m, declared covariance a little optimistic), missed detections,
 //!   a confirmation delay before each track appears, coasting after an object leaves;
 //! - short-lived false tracks around the shuttle;
 //! - one identity switch: two pedestrians cross and their track ids swap;
 //! - localisation drift that grows between corrections every 20 s;
+//! - a site map (a hall inside the loop, bollards, a planter, a delivery van parked on the
+//!   north straight that the shuttle detours around);
+//! - close passes (a pedestrian walking along the road edge) and one brief contact (a cart
+//!   crossing just behind the shuttle clips its rear corner from about 7.6 s to 8.0 s);
+//! - a planner outage: empty plans for one second at 40 s;
 //! - arrival times with per-topic pipeline latency.
 
 use rand::{Rng, SeedableRng};
@@ -19,7 +24,7 @@ use rand_distr::{Distribution, Normal};
 
 use crate::config::Config;
 use crate::logio::LogRecord;
-use crate::msg::{Msg, Object, ObjectSet, Obstacle, ObstacleSet, Pose, Role, Shape};
+use crate::msg::{Msg, Object, ObjectSet, Obstacle, ObstacleSet, Path, PathPose, Pose, Role, Shape};
 
 /// Scenario knobs.
 #[derive(Debug, Clone)]
@@ -69,6 +74,33 @@ pub fn loop_pose(s: f64) -> (f64, f64, f64) {
     }
 }
 
+/// The parked van the route detours around (north straight, x = 30).
+const VAN: (f64, f64, f64, f64) = (30.0, BEND + 0.3, 5.0, 2.2);
+/// Detour: lateral offset (m), half length of its flat top and length of each ramp (m of
+/// arc length).
+const DETOUR: (f64, f64, f64) = (2.6, 6.0, 12.0);
+
+/// The shuttle's route: the loop with the detour around the van on the north straight.
+pub fn route(s: f64) -> (f64, f64, f64) {
+    use std::f64::consts::PI;
+    let per = 2.0 * STRAIGHT + 2.0 * PI * BEND;
+    let sv = STRAIGHT + PI * BEND + (STRAIGHT - VAN.0);
+    let d = s.rem_euclid(per) - sv;
+    let (x, y, yaw) = loop_pose(s);
+    let (a, flat, ramp) = DETOUR;
+    if d.abs() >= flat + ramp {
+        return (x, y, yaw);
+    }
+    // Offset outward (+y): a flat top with raised-cosine ramps; the route runs towards -x.
+    let (off, slope) = if d.abs() <= flat {
+        (a, 0.0)
+    } else {
+        let ph = PI * (d.abs() - flat) / ramp;
+        (a * 0.5 * (1.0 + ph.cos()), -a * 0.5 * ph.sin() * PI / ramp * d.signum())
+    };
+    (x, y + off, slope.atan2(-1.0))
+}
+
 #[derive(Debug, Clone)]
 struct Actor {
     id: u64,
@@ -81,12 +113,26 @@ struct Actor {
     size: (f64, f64),
     confirm: f64,
     coast: f64,
+    /// Walks back and forth between x = 0 and x = STRAIGHT instead of straight on.
+    bounce: bool,
 }
 
 impl Actor {
-    fn at(&self, t: f64) -> (f64, f64) {
+    /// Position and velocity at `t`.
+    fn at(&self, t: f64) -> ((f64, f64), (f64, f64)) {
         let dt = t - self.born;
-        (self.p0.0 + self.v.0 * dt, self.p0.1 + self.v.1 * dt)
+        let (x, y) = (self.p0.0 + self.v.0 * dt, self.p0.1 + self.v.1 * dt);
+        if !self.bounce {
+            return ((x, y), self.v);
+        }
+        // Reflect x into [0, STRAIGHT]: a triangle wave.
+        let per = 2.0 * STRAIGHT;
+        let u = x.rem_euclid(per);
+        if u <= STRAIGHT {
+            ((u, y), self.v)
+        } else {
+            ((per - u, y), (-self.v.0, self.v.1))
+        }
     }
 }
 
@@ -108,50 +154,97 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
     let mut rng = ChaCha8Rng::seed_from_u64(p.seed);
     let unit = Normal::new(0.0, 1.0).expect("unit normal");
     let mut actors = Vec::new();
-    let classes = [("pedestrian", 1.4, (0.5, 0.5)), ("cart", 3.0, (2.4, 1.2)), ("bike", 0.0, (1.8, 0.6))];
+    // Random actors keep to footpaths and lawns beside the road (bands clear of the road and
+    // the hall) and stroll back and forth along them.
+    let bands = [(-11.5, -8.0), (8.0, 11.5), (19.0, 23.0), (-23.0, -19.0)];
+    let classes = [("pedestrian", 0.9, (0.5, 0.5)), ("cart", 1.8, (2.4, 1.2)), ("bike", 0.0, (1.8, 0.6))];
     for k in 0..p.objects {
         let (class, speed, size) = classes[k % classes.len()];
         let whole = k < p.objects / 2;
         let born = if whole { 0.0 } else { rng.random_range(0.0..p.duration * 0.7) };
         let dies =
             if whole { p.duration + 1.0 } else { (born + rng.random_range(8.0..30.0)).min(p.duration + 1.0) };
-        let heading: f64 = rng.random_range(-std::f64::consts::PI..std::f64::consts::PI);
+        let dir = if rng.random_bool(0.5) { 1.0 } else { -1.0 };
         let sp = speed * rng.random_range(0.6..1.2);
+        let band = bands[rng.random_range(0..bands.len())];
         actors.push(Actor {
             id: k as u64 + 1,
             track: 101 + k as u64,
             class,
             born,
             dies,
-            p0: (rng.random_range(-10.0..STRAIGHT + 10.0), rng.random_range(-BEND - 8.0..BEND + 8.0)),
-            v: (sp * heading.cos(), sp * heading.sin()),
+            p0: (rng.random_range(0.0..STRAIGHT), rng.random_range(band.0..band.1)),
+            v: (dir * sp, 0.0),
             size,
             confirm: rng.random_range(0.15..0.45),
             coast: rng.random_range(0.1..0.6),
+            bounce: true,
         });
     }
-    // Two pedestrians that cross at mid-run; their tracks swap ids after the crossing.
+    // Two pedestrians that cross at mid-run on the inner footpath; their tracks swap ids
+    // after the crossing.
     let tx = (p.duration * 0.5).floor();
-    let cross = (25.0, 0.0);
+    let cross = (25.0, 9.5);
     let mk = |id: u64, dir: f64| Actor {
         id,
         track: 100 + id,
         class: "pedestrian",
         born: 0.0,
         dies: p.duration + 1.0,
-        p0: (cross.0 - dir * 1.3 * tx, cross.1 + 0.2 * dir),
-        v: (dir * 1.3, 0.0),
+        p0: (cross.0 - dir * 0.5 * tx, cross.1 + 0.2 * dir),
+        v: (dir * 0.5, 0.0),
         size: (0.5, 0.5),
         confirm: 0.2,
         coast: 0.3,
+        bounce: false,
     };
     let (cross_a, cross_b) = (p.objects as u64 + 1, p.objects as u64 + 2);
     actors.push(mk(cross_a, 1.0));
     actors.push(mk(cross_b, -1.0));
+    // A pedestrian walking along the south road edge towards the shuttle: close passes.
+    actors.push(Actor {
+        id: p.objects as u64 + 3,
+        track: 100 + p.objects as u64 + 3,
+        class: "pedestrian",
+        born: 0.0,
+        dies: p.duration + 1.0,
+        p0: (STRAIGHT, -BEND - 1.65),
+        v: (-0.8, 0.0),
+        size: (0.5, 0.5),
+        confirm: 0.2,
+        coast: 0.3,
+        bounce: true,
+    });
+    // A cart crossing the south straight just behind the shuttle: it clips the rear corner
+    // from about 7.6 s to 8.0 s.
+    actors.push(Actor {
+        id: p.objects as u64 + 4,
+        track: 100 + p.objects as u64 + 4,
+        class: "cart",
+        born: 6.0,
+        dies: 10.0,
+        p0: (30.5, -5.0),
+        v: (0.0, -5.0),
+        size: (2.4, 1.2),
+        confirm: 0.2,
+        coast: 0.3,
+        bounce: false,
+    });
 
     let mut out = Vec::new();
     // Static site map: buildings, bollards, a planter.
     let obstacles = vec![
+        Obstacle {
+            id: 5,
+            shape: Shape::Box,
+            x: Some(VAN.0),
+            y: Some(VAN.1),
+            yaw: Some(0.0),
+            radius: None,
+            length: Some(VAN.2),
+            width: Some(VAN.3),
+            points: None,
+        },
         Obstacle {
             id: 1,
             shape: Shape::Box,
@@ -203,7 +296,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
     let n_ego = (p.duration * 50.0) as usize;
     for k in 0..=n_ego {
         let t = k as f64 * 0.02;
-        let (x, y, yaw) = loop_pose(SHUTTLE_SPEED * t);
+        let (x, y, yaw) = route(SHUTTLE_SPEED * t);
         let recv = t + 0.002 + rng.random_range(0.0..0.002);
         out.push(rec(
             cfg,
@@ -229,7 +322,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
         }
         bx += 0.01 * unit.sample(&mut rng) + 0.0015;
         by += 0.01 * unit.sample(&mut rng);
-        let (x, y, yaw) = loop_pose(SHUTTLE_SPEED * t);
+        let (x, y, yaw) = route(SHUTTLE_SPEED * t);
         let yaw_e = crate::metrics::ego::wrap_angle(yaw + 0.01 * unit.sample(&mut rng) + 0.004);
         let recv = t + 0.012 + rng.random_range(0.0..0.008);
         out.push(rec(
@@ -247,6 +340,29 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
         ));
     }
 
+    // Plans at 5 Hz: the next 30 m of the route, a pose every metre; an outage (empty
+    // plans with the goal kept) for one second at 40 s.
+    let n_plan = (p.duration * 5.0) as usize;
+    for k in 0..n_plan {
+        let t = k as f64 * 0.2 + 0.005;
+        let s0 = SHUTTLE_SPEED * t;
+        let pose = |s: f64| {
+            let (x, y, yaw) = route(s);
+            PathPose { x: round3(x), y: round3(y), yaw: Some(round6(yaw)) }
+        };
+        let outage = (40.0..41.0).contains(&t);
+        let poses = if outage { Vec::new() } else { (0..=30).map(|m| pose(s0 + m as f64)).collect() };
+        let compute = round6(rng.random_range(0.02..0.06));
+        let recv = t + compute + rng.random_range(0.001..0.004);
+        let msg = Msg::Path(Path {
+            stamp: round6(t),
+            poses,
+            goal: Some(pose(s0 + 30.0)),
+            compute_s: Some(compute),
+        });
+        out.push(rec(cfg, Role::PlanPath, recv, msg));
+    }
+
     // Reference objects at rate_hz (10 Hz by default).
     let dt = 1.0 / p.rate_hz;
     let n_obj = (p.duration * p.rate_hz) as usize;
@@ -256,11 +372,11 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             .iter()
             .filter(|a| t >= a.born && t < a.dies)
             .map(|a| {
-                let (x, y) = a.at(t);
+                let ((x, y), v) = a.at(t);
                 Object {
-                    vx: Some(round3(a.v.0)),
-                    vy: Some(round3(a.v.1)),
-                    yaw: Some(round6(a.v.1.atan2(a.v.0))),
+                    vx: Some(round3(v.0)),
+                    vy: Some(round3(v.1)),
+                    yaw: Some(round6(v.1.atan2(v.0))),
                     length: Some(a.size.0),
                     width: Some(a.size.1),
                     class: Some(a.class.into()),
@@ -284,7 +400,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
     for k in 0..n_obj {
         let t = k as f64 * dt + 0.02;
         if rng.random_bool(0.3 * dt) {
-            let (ex, ey, _) = loop_pose(SHUTTLE_SPEED * t);
+            let (ex, ey, _) = route(SHUTTLE_SPEED * t);
             clutter.push((
                 next_false,
                 t,
@@ -302,15 +418,15 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             if t < a.dies && rng.random_bool(0.015) {
                 continue; // missed detection
             }
-            let (x, y) = a.at(t.min(a.dies));
+            let ((x, y), v) = a.at(t.min(a.dies));
             let track = match a.id {
                 id if t > tx && id == cross_a => 100 + cross_b,
                 id if t > tx && id == cross_b => 100 + cross_a,
                 _ => a.track,
             };
             objects.push(Object {
-                vx: Some(round3(a.v.0 + 0.05 * unit.sample(&mut rng))),
-                vy: Some(round3(a.v.1 + 0.05 * unit.sample(&mut rng))),
+                vx: Some(round3(v.0 + 0.05 * unit.sample(&mut rng))),
+                vy: Some(round3(v.1 + 0.05 * unit.sample(&mut rng))),
                 cov: Some([round6(declared * declared), 0.0, 0.0, round6(declared * declared)]),
                 class: Some(a.class.into()),
                 ..Object::at(

@@ -2,7 +2,7 @@
 //! out by hand from the rule: exact match, interpolation, the wait measured on arrival
 //! times, the fallback within tolerance, and the evaluation region.
 
-use plumbline::core::{AlignParams, EgoSource, Engine, Input, Sample, TrackingParams};
+use plumbline::core::{AlignParams, ClearanceParams, EgoSource, Engine, Input, Sample, TrackingParams};
 use plumbline::metrics::Metric;
 use plumbline::msg::{Frame, Msg, Object, ObjectSet, Pose, Role};
 
@@ -25,7 +25,7 @@ struct Run {
 
 impl Run {
     fn new(tp: TrackingParams) -> Run {
-        Run { engine: Engine::new(tp, AlignParams::default()), out: Vec::new() }
+        Run { engine: Engine::new(tp, AlignParams::default(), ClearanceParams::default()), out: Vec::new() }
     }
     fn push(&mut self, role: Role, recv: f64, msg: Msg) {
         self.engine.push(Input::Message { role, recv: Some(recv), msg }, &mut self.out);
@@ -110,7 +110,7 @@ fn too_old_reference_skips_the_step_with_its_reason() {
 fn without_recv_the_wait_runs_on_stamps() {
     // No recv: arrival = stamp. Reference 0.0, estimate 0.05, reference 0.7 (arrives at
     // 0.7 > 0.55): fallback to 0.0.
-    let mut e = Engine::new(TrackingParams::default(), AlignParams::default());
+    let mut e = Engine::new(TrackingParams::default(), AlignParams::default(), ClearanceParams::default());
     let mut out = Vec::new();
     for (role, msg) in [
         (Role::ReferenceObjects, objs(0.0, &[(1, 0.0, 0.0)])),

@@ -199,6 +199,12 @@ pub fn summary(r: &Report) -> String {
             );
         }
     }
+    if !r.collisions.is_empty() {
+        let _ = writeln!(s, "\ncollisions ({}):", r.collisions.len() as u64 + r.collisions_dropped);
+        for c in r.collisions.iter().take(10) {
+            let _ = writeln!(s, "  {:.3} s to {:.3} s with {}", c.start, c.end, c.obstacle);
+        }
+    }
     if !r.alerts.is_empty() {
         let _ = writeln!(s, "\nalerts ({} events):", r.alerts.len() as u64 + r.alerts_dropped);
         for e in r.alerts.iter().take(20) {

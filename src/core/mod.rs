@@ -11,7 +11,7 @@ pub mod engine;
 use serde::Serialize;
 use thiserror::Error;
 
-pub use engine::{Engine, Input, Sample};
+pub use engine::{Collision, Engine, Input, Sample};
 
 /// A bad parameter, with the config key it came from.
 #[derive(Debug, Clone, Error, PartialEq)]
@@ -91,6 +91,45 @@ impl Default for TrackingParams {
             region: 0.0,
             ego_source: EgoSource::Reference,
             forget_after: 300.0,
+        }
+    }
+}
+
+/// Clearance and path-quality parameters (SPEC §5).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ClearanceParams {
+    /// The ego footprint.
+    pub footprint: crate::geometry::Footprint,
+    /// Radius of reference objects that carry no size (m).
+    pub object_radius: f64,
+    /// Planned paths are densified to this step (m).
+    pub path_step: f64,
+    /// The margin the planner is meant to keep (m).
+    pub inflation: f64,
+    /// Arc length of the chord-deviation window (m).
+    pub deviation_window: f64,
+    /// Occupancy grid resolution (m).
+    pub grid_res: f64,
+    /// Grid margin around the path's box (m).
+    pub grid_margin: f64,
+    /// Largest grid; beyond, the resolution is coarsened.
+    pub max_grid_cells: usize,
+    /// The length excess is evaluated at most this often (s of event time).
+    pub excess_every: f64,
+}
+
+impl Default for ClearanceParams {
+    fn default() -> Self {
+        ClearanceParams {
+            footprint: crate::geometry::Footprint { length: 4.0, width: 1.8, origin_to_rear: 1.0 },
+            object_radius: 0.5,
+            path_step: 0.5,
+            inflation: 0.5,
+            deviation_window: 10.0,
+            grid_res: 0.2,
+            grid_margin: 10.0,
+            max_grid_cells: 2_000_000,
+            excess_every: 1.0,
         }
     }
 }

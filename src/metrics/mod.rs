@@ -5,6 +5,7 @@ pub mod ego;
 pub mod gospa;
 pub mod nees;
 pub mod ospa;
+pub mod path;
 pub mod tracklife;
 pub mod transport;
 
@@ -45,6 +46,46 @@ pub enum Metric {
     EgoLongitudinalError,
     /// Ego lateral error (m).
     EgoLateralError,
+    /// Footprint clearance to the nearest reference obstacle (m).
+    Clearance,
+    /// 1 while the footprint overlaps an obstacle, else 0.
+    Collision,
+    /// Clearance as the stack believes it (estimated pose and objects) (m).
+    BelievedClearance,
+    /// Planned minus true clearance (m).
+    ClearanceLoss,
+    /// Localisation part of the clearance loss (m).
+    ClearanceLossLocalization,
+    /// Perception part of the clearance loss (m).
+    ClearanceLossPerception,
+    /// Path-following part of the clearance loss (m).
+    ClearanceLossPathFollowing,
+    /// Smallest clearance along a plan (m).
+    PathClearance,
+    /// Path clearance minus the required inflation (m).
+    PathMargin,
+    /// Signed distance of the reference ego from the plan, left positive (m).
+    CrossTrack,
+    /// Reference heading minus the plan's tangent (rad).
+    PathHeadingError,
+    /// Plan length (m).
+    PathLength,
+    /// Plan length over the shortest feasible path.
+    PathLengthExcess,
+    /// Largest three-point curvature of a plan (1/m).
+    PathCurvatureMax,
+    /// Largest departure from the chord over the deviation window (m).
+    PathDeviation,
+    /// 1 for an empty plan while a path exists, else 0.
+    PathMissing,
+    /// Time between plans (s).
+    PlanInterval,
+    /// Planner compute time (s).
+    PlanCompute,
+    /// Lateral acceleration of the reference ego (m/s^2).
+    LateralAccel,
+    /// Lateral jerk of the reference ego (m/s^3).
+    LateralJerk,
     /// Arrival minus stamp (s), per role.
     Latency,
     /// Time between arrivals (s), per role.
@@ -53,7 +94,7 @@ pub enum Metric {
 
 impl Metric {
     /// Every metric, in report order.
-    pub const ALL: [Metric; 19] = [
+    pub const ALL: [Metric; 39] = [
         Metric::Gospa,
         Metric::GospaLocalization,
         Metric::GospaMissed,
@@ -71,6 +112,26 @@ impl Metric {
         Metric::EgoHeadingError,
         Metric::EgoLongitudinalError,
         Metric::EgoLateralError,
+        Metric::Clearance,
+        Metric::Collision,
+        Metric::BelievedClearance,
+        Metric::ClearanceLoss,
+        Metric::ClearanceLossLocalization,
+        Metric::ClearanceLossPerception,
+        Metric::ClearanceLossPathFollowing,
+        Metric::PathClearance,
+        Metric::PathMargin,
+        Metric::CrossTrack,
+        Metric::PathHeadingError,
+        Metric::PathLength,
+        Metric::PathLengthExcess,
+        Metric::PathCurvatureMax,
+        Metric::PathDeviation,
+        Metric::PathMissing,
+        Metric::PlanInterval,
+        Metric::PlanCompute,
+        Metric::LateralAccel,
+        Metric::LateralJerk,
         Metric::Latency,
         Metric::Interarrival,
     ];
@@ -95,6 +156,26 @@ impl Metric {
             Metric::EgoHeadingError => "ego_heading_error_rad",
             Metric::EgoLongitudinalError => "ego_longitudinal_error_m",
             Metric::EgoLateralError => "ego_lateral_error_m",
+            Metric::Clearance => "clearance_m",
+            Metric::Collision => "collision",
+            Metric::BelievedClearance => "believed_clearance_m",
+            Metric::ClearanceLoss => "clearance_loss_m",
+            Metric::ClearanceLossLocalization => "clearance_loss_localization_m",
+            Metric::ClearanceLossPerception => "clearance_loss_perception_m",
+            Metric::ClearanceLossPathFollowing => "clearance_loss_path_following_m",
+            Metric::PathClearance => "path_clearance_m",
+            Metric::PathMargin => "path_margin_m",
+            Metric::CrossTrack => "cross_track_m",
+            Metric::PathHeadingError => "path_heading_error_rad",
+            Metric::PathLength => "path_length_m",
+            Metric::PathLengthExcess => "path_length_excess",
+            Metric::PathCurvatureMax => "path_curvature_max",
+            Metric::PathDeviation => "path_deviation_m",
+            Metric::PathMissing => "path_missing",
+            Metric::PlanInterval => "plan_interval_s",
+            Metric::PlanCompute => "plan_compute_s",
+            Metric::LateralAccel => "lateral_accel_mps2",
+            Metric::LateralJerk => "lateral_jerk_mps3",
             Metric::Latency => "latency_s",
             Metric::Interarrival => "interarrival_s",
         }
@@ -114,6 +195,8 @@ impl Metric {
                 | Metric::AssignedCount
                 | Metric::MissedCount
                 | Metric::FalseCount
+                | Metric::Collision
+                | Metric::PathMissing
         )
     }
 }

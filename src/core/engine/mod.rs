@@ -12,12 +12,15 @@ use serde::Serialize;
 
 use super::align::{self, How, Miss, Point, Resolved, Timeline};
 use super::assign::{match_with_cutoff, MatchScratch, ShortestPath};
-use super::{AlignParams, EgoSource, TrackingParams};
+use super::{AlignParams, ClearanceParams, EgoSource, TrackingParams};
+
+mod clearance;
 use crate::metrics::nees::{nees, NeesPool};
 use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
 use crate::metrics::transport::Transport;
 use crate::metrics::{ego, gospa, ospa, Metric};
 use crate::msg::{Msg, ObjectSet, Pose, Role};
+pub use clearance::Collision;
 
 /// One input to the engine.
 #[derive(Debug, Clone)]
@@ -130,7 +133,7 @@ fn miss_reason(m: Miss, what: &'static str) -> &'static str {
 
 /// A reference set as buffered: its points, converted once on arrival.
 #[derive(Debug)]
-struct RefSet {
+pub(super) struct RefSet {
     stamp: f64,
     ego_frame: bool,
     points: Vec<Point>,
@@ -145,7 +148,7 @@ impl RefSet {
 }
 
 #[derive(Debug)]
-struct Pending<T> {
+pub(super) struct Pending<T> {
     t: f64,
     deadline: f64,
     item: T,
@@ -179,11 +182,12 @@ pub struct Engine {
     yp: Vec<[f64; 2]>,
     index: Vec<(u64, usize)>,
     ids: (Vec<u64>, Vec<u64>, Vec<(u64, u64)>),
+    clear: clearance::ClearState,
 }
 
 impl Engine {
     /// A new engine.
-    pub fn new(tp: TrackingParams, ap: AlignParams) -> Engine {
+    pub fn new(tp: TrackingParams, ap: AlignParams, cp: ClearanceParams) -> Engine {
         Engine {
             tp,
             ap,
@@ -210,6 +214,7 @@ impl Engine {
             yp: Vec::new(),
             index: Vec::new(),
             ids: Default::default(),
+            clear: clearance::ClearState::new(cp),
         }
     }
 
@@ -273,6 +278,7 @@ impl Engine {
         match (role, msg) {
             (Role::ReferenceObjects, Msg::Objects(set)) => self.ref_objects.insert(stamp, RefSet::new(&set)),
             (Role::EstimateObjects, Msg::Objects(set)) => {
+                self.clear.est_sets.insert(stamp, RefSet::new(&set));
                 if self.tracks.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
                     if let Some(p) = self.tracks.pop_front() {
@@ -281,7 +287,18 @@ impl Engine {
                 }
                 self.tracks.push_back(Pending { t: stamp, deadline, item: set });
             }
-            (Role::ReferenceEgo, Msg::Pose(p)) => self.ref_ego.insert(stamp, p),
+            (Role::ReferenceEgo, Msg::Pose(p)) => {
+                self.ref_ego.insert(stamp, p.clone());
+                if self.clear.clears.len() >= self.ap.pending_steps {
+                    self.counters.pending_overflow += 1;
+                    if let Some(q) = self.clear.clears.pop_front() {
+                        self.eval_clearance(q.t, &q.item, out);
+                    }
+                }
+                self.clear.clears.push_back(Pending { t: stamp, deadline, item: p });
+            }
+            (Role::PlanPath, Msg::Path(p)) => self.on_plan(&p, out),
+            (Role::ReferenceObstacles, Msg::Obstacles(o)) => self.on_obstacles(&o),
             (Role::EstimateEgo, Msg::Pose(p)) => {
                 self.est_ego.insert(stamp, p.clone());
                 if self.egos.len() >= self.ap.pending_steps {
@@ -292,7 +309,7 @@ impl Engine {
                 }
                 self.egos.push_back(Pending { t: stamp, deadline, item: p });
             }
-            // Paths and obstacle maps are accepted and counted; their metrics live elsewhere.
+            // A message of the wrong kind for its role cannot be decoded, so cannot reach here.
             _ => {}
         }
         self.drain(false, out);
@@ -309,6 +326,7 @@ impl Engine {
     /// End of input: every waiting step is resolved as if its wait ran out.
     pub fn finish(&mut self, out: &mut Vec<Sample>) {
         self.drain(true, out);
+        self.finish_clearance();
         let t = self.tracklife.last_t();
         for d in self.tracklife.finish() {
             out.push(Sample { t, metric: Metric::DeletionDelay, role: None, value: d });
@@ -351,16 +369,29 @@ impl Engine {
             let p = self.egos.pop_front().expect("front exists");
             self.eval_ego(p.t, &p.item, out);
         }
+        while let Some(p) = self.clear.clears.front() {
+            if !(all || p.deadline < self.now || self.clearance_ready(p.t)) {
+                break;
+            }
+            let p = self.clear.clears.pop_front().expect("front exists");
+            self.eval_clearance(p.t, &p.item, out);
+        }
         self.prune();
     }
 
     fn prune(&mut self) {
         let mut low = f64::INFINITY;
-        for t in [self.tracks.front().map(|p| p.t), self.egos.front().map(|p| p.t)]
+        let fronts = [
+            self.tracks.front().map(|p| p.t),
+            self.egos.front().map(|p| p.t),
+            self.clear.clears.front().map(|p| p.t),
+        ];
+        for t in fronts
             .into_iter()
             .flatten()
             .chain(self.last_track_t)
             .chain(self.last_ego_t)
+            .chain(self.clear.last_clear_t)
         {
             low = low.min(t);
         }
@@ -369,6 +400,7 @@ impl Engine {
             self.ref_objects.prune(h);
             self.ref_ego.prune(h - self.ap.tolerance);
             self.est_ego.prune(h - self.ap.tolerance);
+            self.clear.est_sets.prune(h);
         }
     }
 
@@ -522,5 +554,11 @@ impl Engine {
         ] {
             out.push(Sample { t, metric, role: None, value });
         }
+        self.eval_budget(t, est, &reference, out);
+    }
+
+    /// Collisions so far (the first [`clearance::KEEP_COLLISIONS`]) and how many more.
+    pub fn collisions(&self) -> (&[Collision], u64) {
+        (&self.clear.collisions, self.clear.collisions_dropped)
     }
 }

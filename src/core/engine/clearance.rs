@@ -1,0 +1,332 @@
+//! Clearance, the clearance-loss budget, path following, path quality and comfort: the
+//! engine's geometric steps. Same alignment rules as the tracking steps; pure.
+//!
+//! Clearance steps run at each `reference/ego` stamp t: the footprint at the reference pose
+//! against the site map (the latest map stamped at or before t) and the reference objects
+//! at t (interpolated; boxes when they carry length and width, else discs of
+//! `object_radius_m`). A step waits for reference objects at or after t like a tracking
+//! step does. Overlap gives 0 and a collision, recorded with its start, end and obstacle.
+//!
+//! The clearance-loss budget runs at each ego step, with C(pose, objects) the clearance
+//! of the footprint at `pose` against the map and `objects`:
+//! - true = C(reference pose, reference objects)
+//! - believed = C(estimated pose, estimated objects)
+//! - planned = C(plan point nearest the estimated pose, estimated objects), the pose the
+//!   plan meant the vehicle to be at (heading: the plan's tangent); planned = believed when
+//!   no plan is known.
+//! - `clearance_loss_m` = planned - true
+//!   = path following  [planned - believed]
+//!   + perception      [C(estimated pose, estimated objects) - C(estimated pose, reference objects)]
+//!   + localisation    [C(estimated pose, reference objects) - true]
+//!
+//! The three parts telescope, so they add up to the total exactly (up to rounding).
+//! Positive means clearance lost. The estimated objects are the latest estimate set at or
+//! before t.
+
+use std::collections::VecDeque;
+
+use serde::Serialize;
+
+use super::{Engine, Pending, RefSet};
+use crate::core::align::{self, Point, Resolved, Timeline};
+use crate::core::engine::Sample;
+use crate::core::ClearanceParams;
+use crate::geometry::{nearer, nearest_of, Body, Nearest, ObstacleId, ObstacleIndex};
+use crate::metrics::ego::wrap_angle;
+use crate::metrics::path::{self, Grid};
+use crate::metrics::Metric;
+use crate::msg::{ObstacleSet, Path, Pose};
+
+/// Collisions kept for the report; later ones are counted.
+pub const KEEP_COLLISIONS: usize = 1000;
+
+/// A stretch of time with the footprint overlapping an obstacle.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Collision {
+    /// First clearance step in contact (s).
+    pub start: f64,
+    /// Last clearance step in contact (s).
+    pub end: f64,
+    /// The obstacle touched first.
+    pub obstacle: ObstacleId,
+}
+
+#[derive(Debug)]
+pub(super) struct Plan {
+    dense: Vec<[f64; 2]>,
+}
+
+/// Clearance state inside the engine.
+#[derive(Debug)]
+pub(super) struct ClearState {
+    pub(super) cp: ClearanceParams,
+    map: Timeline<ObstacleIndex>,
+    plans: Timeline<Plan>,
+    pub(super) est_sets: Timeline<RefSet>,
+    pub(super) clears: VecDeque<Pending<Pose>>,
+    pub(super) last_clear_t: Option<f64>,
+    prev_ego: Option<(f64, Pose, Option<f64>)>,
+    open: Option<Collision>,
+    pub(super) collisions: Vec<Collision>,
+    pub(super) collisions_dropped: u64,
+    last_excess_t: f64,
+    prev_plan: Option<(f64, [f64; 2], [f64; 2])>,
+}
+
+impl ClearState {
+    pub(super) fn new(cp: ClearanceParams) -> ClearState {
+        ClearState {
+            cp,
+            map: Timeline::new(8),
+            plans: Timeline::new(8),
+            est_sets: Timeline::new(64),
+            clears: VecDeque::new(),
+            last_clear_t: None,
+            prev_ego: None,
+            open: None,
+            collisions: Vec::new(),
+            collisions_dropped: 0,
+            last_excess_t: f64::NEG_INFINITY,
+            prev_plan: None,
+        }
+    }
+}
+
+fn bodies_of(points: &[Point], radius: f64, out: &mut Vec<Body>) {
+    for p in points {
+        let id = ObstacleId::Object(p.id);
+        out.push(match (p.length, p.width) {
+            (Some(l), Some(w)) if l > 0.0 && w > 0.0 => {
+                Body::poly(id, &crate::geometry::box_corners(p.x, p.y, p.yaw.unwrap_or(0.0), l, w))
+            }
+            _ => Body::disc(id, [p.x, p.y], radius),
+        });
+    }
+}
+
+impl Engine {
+    pub(super) fn on_obstacles(&mut self, set: &ObstacleSet) {
+        self.clear.map.insert(set.stamp, ObstacleIndex::from_map(&set.obstacles));
+    }
+
+    pub(super) fn clearance_ready(&self, t: f64) -> bool {
+        self.ref_objects.has_at_or_after(t)
+    }
+
+    /// Reference objects at `t` as bodies (none when the alignment finds nothing).
+    fn reference_bodies(&self, t: f64) -> Vec<Body> {
+        let mut pts = Vec::new();
+        let mut scratch = (Vec::new(), Vec::new(), Vec::new());
+        match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
+            Ok(Resolved::One(set, _)) => {
+                if let Ok(p) = self.ref_points(set, &mut scratch.0) {
+                    pts.extend_from_slice(p);
+                }
+            }
+            Ok(Resolved::Two(a, b)) => {
+                if let (Ok(pa), Ok(pb)) =
+                    (self.ref_points(&a.1, &mut scratch.0), self.ref_points(&b.1, &mut scratch.1))
+                {
+                    align::interpolate_points(pa, a.0, pb, b.0, t, &mut scratch.2, &mut pts);
+                }
+            }
+            Err(_) => {}
+        }
+        let mut out = Vec::with_capacity(pts.len());
+        bodies_of(&pts, self.clear.cp.object_radius, &mut out);
+        out
+    }
+
+    /// Estimated objects (latest set at or before `t`) as bodies.
+    fn estimate_bodies(&self, t: f64) -> Vec<Body> {
+        let mut out = Vec::new();
+        if let Some((_, set)) = self.clear.est_sets.latest_at_or_before(t) {
+            let mut scratch = Vec::new();
+            if let Ok(p) = self.ref_points(set, &mut scratch) {
+                bodies_of(p, self.clear.cp.object_radius, &mut out);
+            }
+        }
+        out
+    }
+
+    fn map_at(&self, t: f64) -> Option<&ObstacleIndex> {
+        self.clear.map.latest_at_or_before(t).map(|(_, m)| m)
+    }
+
+    /// Clearance of the footprint at a pose against the map at `t` and `bodies`.
+    fn clearance_of(&self, t: f64, x: f64, y: f64, yaw: f64, bodies: &[Body]) -> Option<Nearest> {
+        let fp = &self.clear.cp.footprint;
+        let poly = fp.polygon(x, y, yaw);
+        let r = fp.circumradius();
+        let from_map = self.map_at(t).and_then(|m| m.nearest(&poly, [x, y], r));
+        nearer(from_map, nearest_of(bodies, &poly, [x, y], r))
+    }
+
+    pub(super) fn eval_clearance(&mut self, t: f64, pose: &Pose, out: &mut Vec<Sample>) {
+        self.clear.last_clear_t = Some(t);
+        let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
+        let bodies = self.reference_bodies(t);
+        if let Some(n) = self.clearance_of(t, pose.x, pose.y, pose.yaw, &bodies) {
+            push(Metric::Clearance, n.distance);
+            let touching = n.distance <= 0.0;
+            push(Metric::Collision, if touching { 1.0 } else { 0.0 });
+            match (&mut self.clear.open, touching) {
+                (Some(c), true) => c.end = t,
+                (None, true) => self.clear.open = Some(Collision { start: t, end: t, obstacle: n.id }),
+                (Some(_), false) => self.close_collision(),
+                (None, false) => {}
+            }
+        }
+        if let Some((_, plan)) = self.clear.plans.latest_at_or_before(t) {
+            if let Some(p) = path::project(&plan.dense, pose.x, pose.y) {
+                push(Metric::CrossTrack, p.lateral);
+                push(Metric::PathHeadingError, path::heading_error(pose.yaw, &p));
+            }
+        }
+        // Comfort from successive reference poses: lateral acceleration v * yaw rate, and
+        // its rate of change.
+        if let Some((t0, p0, a0)) = &self.clear.prev_ego {
+            let dt = t - t0;
+            if dt > 1e-6 {
+                let v = pose.v.unwrap_or_else(|| (pose.x - p0.x).hypot(pose.y - p0.y) / dt);
+                let acc = v * wrap_angle(pose.yaw - p0.yaw) / dt;
+                push(Metric::LateralAccel, acc);
+                if let Some(a0) = a0 {
+                    push(Metric::LateralJerk, (acc - a0) / dt);
+                }
+                self.clear.prev_ego = Some((t, pose.clone(), Some(acc)));
+                return;
+            }
+        }
+        self.clear.prev_ego = Some((t, pose.clone(), None));
+    }
+
+    fn close_collision(&mut self) {
+        if let Some(c) = self.clear.open.take() {
+            if self.clear.collisions.len() < KEEP_COLLISIONS {
+                self.clear.collisions.push(c);
+            } else {
+                self.clear.collisions_dropped += 1;
+            }
+        }
+    }
+
+    pub(super) fn finish_clearance(&mut self) {
+        self.close_collision();
+    }
+
+    /// The clearance-loss budget at an ego step (see the module note).
+    pub(super) fn eval_budget(&mut self, t: f64, est: &Pose, reference: &Pose, out: &mut Vec<Sample>) {
+        let ref_bodies = self.reference_bodies(t);
+        let est_bodies = self.estimate_bodies(t);
+        let c = |s: &Self, p: (f64, f64, f64), b: &[Body]| {
+            s.clearance_of(t, p.0, p.1, p.2, b).map(|n| n.distance)
+        };
+        let (e, r) = ((est.x, est.y, est.yaw), (reference.x, reference.y, reference.yaw));
+        let (Some(truth), Some(believed), Some(est_ref)) =
+            (c(self, r, &ref_bodies), c(self, e, &est_bodies), c(self, e, &ref_bodies))
+        else {
+            return;
+        };
+        let planned = self
+            .clear
+            .plans
+            .latest_at_or_before(t)
+            .and_then(|(_, plan)| path::project(&plan.dense, est.x, est.y))
+            .and_then(|p| c(self, (p.point[0], p.point[1], p.yaw), &est_bodies))
+            .unwrap_or(believed);
+        let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
+        push(Metric::BelievedClearance, believed);
+        push(Metric::ClearanceLoss, planned - truth);
+        push(Metric::ClearanceLossPathFollowing, planned - believed);
+        push(Metric::ClearanceLossPerception, believed - est_ref);
+        push(Metric::ClearanceLossLocalization, est_ref - truth);
+    }
+
+    /// Path quality of one plan, evaluated when it arrives.
+    pub(super) fn on_plan(&mut self, path: &Path, out: &mut Vec<Sample>) {
+        let t = path.stamp;
+        let cp = self.clear.cp;
+        let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
+        if let Some((t0, _, _)) = self.clear.prev_plan {
+            push(Metric::PlanInterval, t - t0);
+        }
+        if let Some(c) = path.compute_s {
+            push(Metric::PlanCompute, c);
+        }
+        let pts: Vec<[f64; 2]> = path.poses.iter().map(|p| [p.x, p.y]).collect();
+        let bodies = self.reference_bodies(t);
+        if pts.is_empty() {
+            // No path: was there one? Search from the reference ego (else the previous
+            // plan's start) to the goal (else the previous plan's end).
+            let start = align::resolve(&self.ref_ego, t, self.ap.tolerance)
+                .ok()
+                .map(|r| align::pose_at(r, t).0)
+                .map(|p| [p.x, p.y])
+                .or(self.clear.prev_plan.map(|p| p.1));
+            let goal = path.goal.as_ref().map(|g| [g.x, g.y]).or(self.clear.prev_plan.map(|p| p.2));
+            if let (Some(s), Some(g)) = (start, goal) {
+                let exists = self.grid_for(t, &[s, g], &bodies).shortest(s, g).is_some();
+                push(Metric::PathMissing, if exists { 1.0 } else { 0.0 });
+            }
+            return;
+        }
+        push(Metric::PathMissing, 0.0);
+        let dense = path::densify(&pts, cp.path_step);
+        let len = path::length(&pts);
+        push(Metric::PathLength, len);
+        push(Metric::PathCurvatureMax, path::curvature_max(&dense));
+        push(Metric::PathDeviation, path::deviation_max(&dense, cp.deviation_window));
+        // Swept footprint: the footprint at every densified pose, heading from the pose or
+        // the tangent.
+        let mut min_clear: Option<f64> = None;
+        for (i, p) in dense.iter().enumerate() {
+            let yaw = tangent(&dense, i);
+            if let Some(n) = self.clearance_of(t, p[0], p[1], yaw, &bodies) {
+                min_clear = Some(min_clear.map_or(n.distance, |m: f64| m.min(n.distance)));
+            }
+        }
+        if let Some(m) = min_clear {
+            push(Metric::PathClearance, m);
+            push(Metric::PathMargin, m - cp.inflation);
+        }
+        if t - self.clear.last_excess_t >= cp.excess_every - align::EXACT_S && pts.len() >= 2 {
+            self.clear.last_excess_t = t;
+            let (s, g) = (pts[0], pts[pts.len() - 1]);
+            if let Some(best) = self.grid_for(t, &pts, &bodies).shortest(s, g) {
+                if best > cp.grid_res {
+                    out.push(Sample { t, metric: Metric::PathLengthExcess, role: None, value: len / best });
+                }
+            }
+        }
+        self.clear.prev_plan = Some((t, pts[0], pts[pts.len() - 1]));
+        self.clear.plans.insert(t, Plan { dense });
+    }
+
+    fn grid_for(&self, t: f64, pts: &[[f64; 2]], bodies: &[Body]) -> Grid {
+        let cp = &self.clear.cp;
+        let mut lo = [f64::INFINITY; 2];
+        let mut hi = [f64::NEG_INFINITY; 2];
+        for p in pts {
+            for k in 0..2 {
+                lo[k] = lo[k].min(p[k] - cp.grid_margin);
+                hi[k] = hi[k].max(p[k] + cp.grid_margin);
+            }
+        }
+        let half = cp.footprint.width / 2.0;
+        let map = self.map_at(t);
+        let near_map = map.into_iter().flat_map(|m| m.near_box(lo, hi, half));
+        Grid::build(lo, hi, cp.grid_res, cp.max_grid_cells, near_map.chain(bodies.iter()), half)
+    }
+}
+
+fn tangent(pts: &[[f64; 2]], i: usize) -> f64 {
+    let (a, b) = if i + 1 < pts.len() {
+        (pts[i], pts[i + 1])
+    } else if i > 0 {
+        (pts[i - 1], pts[i])
+    } else {
+        return 0.0;
+    };
+    (b[1] - a[1]).atan2(b[0] - a[0])
+}

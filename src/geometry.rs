@@ -1,0 +1,321 @@
+//! Planar geometry for clearance: the ego footprint, obstacle shapes, distances, and a
+//! spatial index over a site map. Distances go through the `geo` crate (exact for
+//! non-convex polygons, 0 on overlap or containment); the index is an `rstar` R-tree of
+//! obstacle bounding boxes. Pure computation.
+
+use geo::{Coord, Distance, Euclidean, Intersects, LineString, Point as GeoPoint, Polygon};
+use rstar::{primitives::GeomWithData, primitives::Rectangle, RTree, AABB};
+use serde::Serialize;
+
+use crate::msg::{Obstacle, Shape};
+
+/// The ego footprint rectangle relative to the pose origin (x forward, y left).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Footprint {
+    /// Length (m).
+    pub length: f64,
+    /// Width (m).
+    pub width: f64,
+    /// From the pose origin back to the rear edge (m).
+    pub origin_to_rear: f64,
+}
+
+impl Footprint {
+    /// The rectangle's corners at a pose, counter-clockwise from rear right.
+    pub fn corners(&self, x: f64, y: f64, yaw: f64) -> [[f64; 2]; 4] {
+        let (s, c) = yaw.sin_cos();
+        let (r, f, h) = (-self.origin_to_rear, self.length - self.origin_to_rear, self.width / 2.0);
+        [[r, -h], [f, -h], [f, h], [r, h]].map(|[u, v]| [x + c * u - s * v, y + s * u + c * v])
+    }
+
+    /// The footprint as a polygon at a pose.
+    pub fn polygon(&self, x: f64, y: f64, yaw: f64) -> Polygon<f64> {
+        polygon(&self.corners(x, y, yaw))
+    }
+
+    /// Distance from the pose origin to the farthest corner.
+    pub fn circumradius(&self) -> f64 {
+        let f = (self.length - self.origin_to_rear).abs().max(self.origin_to_rear.abs());
+        f.hypot(self.width / 2.0)
+    }
+}
+
+fn polygon(pts: &[[f64; 2]]) -> Polygon<f64> {
+    let ring: Vec<Coord<f64>> = pts.iter().map(|p| Coord { x: p[0], y: p[1] }).collect();
+    Polygon::new(LineString::from(ring), vec![])
+}
+
+/// Where an obstacle comes from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(tag = "source", content = "id", rename_all = "lowercase")]
+pub enum ObstacleId {
+    /// The static site map.
+    Map(u64),
+    /// A reference object.
+    Object(u64),
+}
+
+impl std::fmt::Display for ObstacleId {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            ObstacleId::Map(id) => write!(f, "map:{id}"),
+            ObstacleId::Object(id) => write!(f, "object:{id}"),
+        }
+    }
+}
+
+/// An obstacle's shape, ready for distance queries.
+#[derive(Debug, Clone)]
+pub enum Solid {
+    /// A disc.
+    Disc {
+        /// Centre.
+        c: [f64; 2],
+        /// Radius.
+        r: f64,
+    },
+    /// A polygon (boxes included).
+    Poly(Polygon<f64>),
+    /// A point or segment (degenerate polygons).
+    Line(LineString<f64>),
+}
+
+/// One obstacle with its bounding box.
+#[derive(Debug, Clone)]
+pub struct Body {
+    /// Where it comes from.
+    pub id: ObstacleId,
+    /// Its shape.
+    pub solid: Solid,
+    /// Bounding box min corner.
+    pub lo: [f64; 2],
+    /// Bounding box max corner.
+    pub hi: [f64; 2],
+}
+
+/// Corners of a box centred at (x, y), `length` along `yaw`.
+pub fn box_corners(x: f64, y: f64, yaw: f64, length: f64, width: f64) -> [[f64; 2]; 4] {
+    let (s, c) = yaw.sin_cos();
+    let (l, w) = (length / 2.0, width / 2.0);
+    [[-l, -w], [l, -w], [l, w], [-l, w]].map(|[u, v]| [x + c * u - s * v, y + s * u + c * v])
+}
+
+fn bounds(pts: &[[f64; 2]]) -> ([f64; 2], [f64; 2]) {
+    let mut lo = [f64::INFINITY; 2];
+    let mut hi = [f64::NEG_INFINITY; 2];
+    for p in pts {
+        for k in 0..2 {
+            lo[k] = lo[k].min(p[k]);
+            hi[k] = hi[k].max(p[k]);
+        }
+    }
+    (lo, hi)
+}
+
+impl Body {
+    /// A disc obstacle.
+    pub fn disc(id: ObstacleId, c: [f64; 2], r: f64) -> Body {
+        Body { id, solid: Solid::Disc { c, r }, lo: [c[0] - r, c[1] - r], hi: [c[0] + r, c[1] + r] }
+    }
+
+    /// A polygon obstacle from its vertices.
+    pub fn poly(id: ObstacleId, pts: &[[f64; 2]]) -> Body {
+        let (lo, hi) = bounds(pts);
+        let solid = if pts.len() >= 3 {
+            Solid::Poly(polygon(pts))
+        } else {
+            let mut v: Vec<Coord<f64>> = pts.iter().map(|p| Coord { x: p[0], y: p[1] }).collect();
+            if v.len() == 1 {
+                v.push(v[0]);
+            }
+            Solid::Line(LineString::from(v))
+        };
+        Body { id, solid, lo, hi }
+    }
+
+    /// A site-map obstacle (validated by `msg::validate`).
+    pub fn from_map(o: &Obstacle) -> Option<Body> {
+        let id = ObstacleId::Map(o.id);
+        Some(match o.shape {
+            Shape::Circle => Body::disc(id, [o.x?, o.y?], o.radius?),
+            Shape::Box => Body::poly(id, &box_corners(o.x?, o.y?, o.yaw.unwrap_or(0.0), o.length?, o.width?)),
+            Shape::Polygon => Body::poly(id, o.points.as_ref()?),
+        })
+    }
+
+    /// Distance from a footprint polygon to this obstacle; 0 on overlap.
+    pub fn distance(&self, fp: &Polygon<f64>) -> f64 {
+        match &self.solid {
+            Solid::Disc { c, r } => {
+                let p = GeoPoint::new(c[0], c[1]);
+                (Euclidean::distance(fp, &p) - r).max(0.0)
+            }
+            Solid::Poly(p) => {
+                if fp.intersects(p) {
+                    0.0
+                } else {
+                    Euclidean::distance(fp, p)
+                }
+            }
+            Solid::Line(l) => Euclidean::distance(fp, l),
+        }
+    }
+
+    /// Distance from a point to this obstacle; 0 inside.
+    pub fn point_distance(&self, x: f64, y: f64) -> f64 {
+        let q = GeoPoint::new(x, y);
+        match &self.solid {
+            Solid::Disc { c, r } => ((x - c[0]).hypot(y - c[1]) - r).max(0.0),
+            Solid::Poly(p) => Euclidean::distance(&q, p),
+            Solid::Line(l) => Euclidean::distance(&q, l),
+        }
+    }
+
+    fn aabb_distance(&self, x: f64, y: f64) -> f64 {
+        let dx = (self.lo[0] - x).max(0.0).max(x - self.hi[0]);
+        let dy = (self.lo[1] - y).max(0.0).max(y - self.hi[1]);
+        dx.hypot(dy)
+    }
+}
+
+/// The nearest obstacle and its distance.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Nearest {
+    /// Distance (m), 0 on overlap.
+    pub distance: f64,
+    /// Which obstacle.
+    pub id: ObstacleId,
+}
+
+type Entry = GeomWithData<Rectangle<[f64; 2]>, usize>;
+
+/// An R-tree over a set of obstacles (a site map).
+#[derive(Debug, Clone, Default)]
+pub struct ObstacleIndex {
+    bodies: Vec<Body>,
+    tree: RTree<Entry>,
+}
+
+impl ObstacleIndex {
+    /// Indexes the bodies.
+    pub fn new(bodies: Vec<Body>) -> ObstacleIndex {
+        let entries: Vec<Entry> = bodies
+            .iter()
+            .enumerate()
+            .map(|(i, b)| GeomWithData::new(Rectangle::from_corners(b.lo, b.hi), i))
+            .collect();
+        ObstacleIndex { bodies, tree: RTree::bulk_load(entries) }
+    }
+
+    /// Indexes a site map's obstacles.
+    pub fn from_map(obstacles: &[Obstacle]) -> ObstacleIndex {
+        ObstacleIndex::new(obstacles.iter().filter_map(Body::from_map).collect())
+    }
+
+    /// The bodies.
+    pub fn bodies(&self) -> &[Body] {
+        &self.bodies
+    }
+
+    /// Bodies whose box comes within `d` of the box `lo..hi`.
+    pub fn near_box(&self, lo: [f64; 2], hi: [f64; 2], d: f64) -> impl Iterator<Item = &Body> {
+        let env = AABB::from_corners([lo[0] - d, lo[1] - d], [hi[0] + d, hi[1] + d]);
+        self.tree.locate_in_envelope_intersecting(&env).map(|e| &self.bodies[e.data])
+    }
+
+    /// The nearest obstacle to a footprint centred near `centre` with circumradius
+    /// `radius`. Candidates come in order of their box's distance from the centre; the
+    /// search stops once that lower bound (minus the radius) exceeds the best distance.
+    pub fn nearest(&self, fp: &Polygon<f64>, centre: [f64; 2], radius: f64) -> Option<Nearest> {
+        let mut best: Option<Nearest> = None;
+        for (e, d2) in self.tree.nearest_neighbor_iter_with_distance_2(&centre) {
+            if let Some(b) = best {
+                if d2.sqrt() - radius > b.distance {
+                    break;
+                }
+            }
+            let body = &self.bodies[e.data];
+            let d = body.distance(fp);
+            if best.is_none_or(|b| d < b.distance) {
+                best = Some(Nearest { distance: d, id: body.id });
+            }
+            if d == 0.0 {
+                break;
+            }
+        }
+        best
+    }
+}
+
+/// The nearest of a few loose bodies (brute force with a box bound).
+pub fn nearest_of(bodies: &[Body], fp: &Polygon<f64>, centre: [f64; 2], radius: f64) -> Option<Nearest> {
+    let mut best: Option<Nearest> = None;
+    for b in bodies {
+        if best.is_some_and(|n| b.aabb_distance(centre[0], centre[1]) - radius > n.distance) {
+            continue;
+        }
+        let d = b.distance(fp);
+        if best.is_none_or(|n| d < n.distance) {
+            best = Some(Nearest { distance: d, id: b.id });
+        }
+    }
+    best
+}
+
+/// The nearer of two answers.
+pub fn nearer(a: Option<Nearest>, b: Option<Nearest>) -> Option<Nearest> {
+    match (a, b) {
+        (Some(x), Some(y)) => Some(if y.distance < x.distance { y } else { x }),
+        (x, None) => x,
+        (None, y) => y,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fp() -> Footprint {
+        Footprint { length: 4.0, width: 2.0, origin_to_rear: 1.0 }
+    }
+
+    #[test]
+    fn footprint_corners_follow_the_pose() {
+        let c = fp().corners(0.0, 0.0, 0.0);
+        assert_eq!(c, [[-1.0, -1.0], [3.0, -1.0], [3.0, 1.0], [-1.0, 1.0]]);
+        let c = fp().corners(10.0, 0.0, std::f64::consts::FRAC_PI_2);
+        assert!((c[1][0] - 11.0).abs() < 1e-12 && (c[1][1] - 3.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn circle_to_rectangle_in_closed_form() {
+        // Footprint [-1, 3] x [-1, 1]. A disc of radius 0.5 at (6, 0): 6 - 3 - 0.5 = 2.5.
+        // At (5, 4): nearest corner (3, 1): sqrt(4 + 9) - 0.5. Overlapping at (3.2, 0): 0.
+        let poly = fp().polygon(0.0, 0.0, 0.0);
+        let d = |x, y| Body::disc(ObstacleId::Map(1), [x, y], 0.5).distance(&poly);
+        assert!((d(6.0, 0.0) - 2.5).abs() < 1e-12);
+        assert!((d(5.0, 4.0) - (13f64.sqrt() - 0.5)).abs() < 1e-12);
+        assert_eq!(d(3.2, 0.0), 0.0);
+        assert_eq!(d(0.0, 0.0), 0.0);
+    }
+
+    #[test]
+    fn index_finds_the_nearest_among_many() {
+        let bodies: Vec<Body> = (0..500)
+            .map(|i| {
+                let (x, y) = ((i % 25) as f64 * 8.0 - 100.0, (i / 25) as f64 * 8.0 - 80.0);
+                Body::disc(ObstacleId::Map(i), [x, y], 0.4)
+            })
+            .collect();
+        let idx = ObstacleIndex::new(bodies.clone());
+        for (x, y, yaw) in [(3.3, 1.7, 0.3), (-55.0, 20.0, 2.0), (90.0, 70.0, -1.0)] {
+            let f = fp();
+            let poly = f.polygon(x, y, yaw);
+            let a = idx.nearest(&poly, [x, y], f.circumradius()).unwrap();
+            let b = nearest_of(&bodies, &poly, [x, y], f.circumradius()).unwrap();
+            let brute = bodies.iter().map(|b| b.distance(&poly)).fold(f64::INFINITY, f64::min);
+            assert_eq!(a.distance, brute);
+            assert_eq!(b.distance, brute);
+        }
+    }
+}
