@@ -12,9 +12,11 @@ Sources:
   (Rahmathullah, Garcia-Fernandez, Svensson, FUSION 2017; Schuhmacher, Vo, Vo, IEEE TSP
   2008) on top of scipy's assignment: cost min(d, c)^p, pairs at d >= c unassigned;
 - scipy.stats.chi2.ppf for the NEES consistency interval;
-- numpy.percentile (default "linear" method).
+- numpy.percentile (default "linear" method);
+- shapely distances between the ego footprint rectangle and circles, boxes and polygons.
 """
 import json
+import math
 import os
 
 import numpy as np
@@ -95,10 +97,56 @@ def percentile_cases():
     return out
 
 
+def footprint(x, y, yaw, length=4.0, width=1.8, rear=1.0):
+    from shapely.geometry import Polygon
+    c, s_ = math.cos(yaw), math.sin(yaw)
+    pts = [(-rear, -width / 2), (length - rear, -width / 2), (length - rear, width / 2), (-rear, width / 2)]
+    return Polygon([(x + c * u - s_ * v, y + s_ * u + c * v) for u, v in pts])
+
+
+def box(x, y, yaw, length, width):
+    from shapely.geometry import Polygon
+    c, s_ = math.cos(yaw), math.sin(yaw)
+    pts = [(-length / 2, -width / 2), (length / 2, -width / 2), (length / 2, width / 2), (-length / 2, width / 2)]
+    return Polygon([(x + c * u - s_ * v, y + s_ * u + c * v) for u, v in pts])
+
+
+def clearance_cases():
+    from shapely.geometry import Point, Polygon
+    out = []
+    # Hand-placed: touching, overlapping, far, for each shape; then random ones.
+    poses = [(0.0, 0.0, 0.0), (5.0, -2.0, 0.7), (-3.0, 4.0, -2.4)]
+    for k in range(90):
+        x, y, yaw = poses[k % 3] if k < 9 else (float(rng.uniform(-10, 10)), float(rng.uniform(-10, 10)), float(rng.uniform(-3.1, 3.1)))
+        fp = footprint(x, y, yaw)
+        kind = ["circle", "box", "polygon"][k % 3]
+        cx, cy = x + float(rng.uniform(-8, 8)), y + float(rng.uniform(-8, 8))
+        if kind == "circle":
+            r = float(rng.uniform(0.1, 2.0))
+            d = max(0.0, fp.distance(Point(cx, cy)) - r)
+            out.append({"pose": [x, y, yaw], "shape": "circle", "c": [cx, cy], "r": r, "distance": d})
+        elif kind == "box":
+            l, w, by = float(rng.uniform(0.5, 5)), float(rng.uniform(0.5, 3)), float(rng.uniform(-3, 3))
+            d = fp.distance(box(cx, cy, by, l, w))
+            out.append({"pose": [x, y, yaw], "shape": "box", "c": [cx, cy], "yaw": by, "length": l, "width": w, "distance": d})
+        else:
+            # A non-convex L-shaped polygon.
+            a = float(rng.uniform(1, 4))
+            pts = [(cx, cy), (cx + a, cy), (cx + a, cy + 1), (cx + 1, cy + 1), (cx + 1, cy + a), (cx, cy + a)]
+            d = fp.distance(Polygon(pts))
+            out.append({"pose": [x, y, yaw], "shape": "polygon", "points": [list(p) for p in pts], "distance": d})
+    # Exact touching and overlap cases by construction.
+    out.append({"pose": [0.0, 0.0, 0.0], "shape": "circle", "c": [3.5, 0.0], "r": 0.5, "distance": 0.0})
+    out.append({"pose": [0.0, 0.0, 0.0], "shape": "box", "c": [1.0, 0.0], "yaw": 0.3, "length": 1.0, "width": 1.0, "distance": 0.0})
+    out.append({"pose": [0.0, 0.0, 0.0], "shape": "polygon", "points": [[-5, -5], [5, -5], [5, 5], [-5, 5]], "distance": 0.0})
+    return out
+
+
 def main():
     os.makedirs(OUT, exist_ok=True)
     for name, data in [("lsap.json", lsap_cases()), ("gospa_ospa.json", gospa_cases()),
-                       ("chi2.json", chi2_cases()), ("percentiles.json", percentile_cases())]:
+                       ("chi2.json", chi2_cases()), ("percentiles.json", percentile_cases()),
+                       ("clearance.json", clearance_cases())]:
         with open(os.path.join(OUT, name), "w") as f:
             json.dump(data, f, indent=None, separators=(",", ":"))
             f.write("\n")
