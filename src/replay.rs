@@ -49,6 +49,9 @@ pub enum ReplayError {
     /// The input could not be read.
     #[error(transparent)]
     Log(#[from] LogError),
+    /// The site-map file is not a valid obstacle set.
+    #[error("site map {0}")]
+    Map(String),
     /// The series output could not be written.
     #[error("writing the series: {0}")]
     Series(std::io::Error),
@@ -120,6 +123,9 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     let limits = cfg.limits();
     let mut monitor = Monitor::new(cfg);
     let mut events: Vec<AlertEvent> = Vec::new();
+    if let Some(map) = load_map(cfg)? {
+        monitor.push(map, &mut Vec::new(), &mut events);
+    }
     let mut first_bad = Vec::new();
     let mut samples: Vec<Sample> = Vec::with_capacity(4096);
     let mut text = String::new();
@@ -233,6 +239,15 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     };
     let report = Report::build(cfg, &monitor, inputs);
     Ok(Replayed { report, monitor })
+}
+
+/// Reads the site map named by `clearance.map_file`, as an input for the monitor.
+pub fn load_map(cfg: &Config) -> Result<Option<Input>, ReplayError> {
+    let Some(path) = &cfg.map_file else { return Ok(None) };
+    let text = std::fs::read_to_string(path).map_err(|source| LogError::Io { path: path.clone(), source })?;
+    let msg = crate::msg::decode_json(crate::msg::MsgKind::Obstacles, &text, &cfg.limits())
+        .map_err(|e| ReplayError::Map(format!("{path}: {e}")))?;
+    Ok(Some(Input::Message { role: crate::msg::Role::ReferenceObstacles, recv: None, msg }))
 }
 
 /// Spawns a named scoped thread (names show in `top -H` and `perf`). Spawning fails only
