@@ -75,6 +75,12 @@ pub struct RawConfig {
     /// `[windows]`
     #[serde(default)]
     pub windows: RawWindows,
+    /// `[zenoh]`
+    #[serde(default)]
+    pub zenoh: RawZenoh,
+    /// `[live]`
+    #[serde(default)]
+    pub live: RawLive,
     /// `[[rule]]`
     #[serde(default)]
     pub rule: Vec<RawRule>,
@@ -108,6 +114,36 @@ pub struct RawPath {
     pub max_grid_cells: Option<i64>,
     /// evaluate the length excess at most this often
     pub excess_every: Option<toml::Value>,
+}
+
+/// `[zenoh]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawZenoh {
+    /// "peer" or "client"
+    pub mode: Option<String>,
+    /// endpoints to connect to
+    pub connect: Option<Vec<String>>,
+    /// endpoints to listen on
+    pub listen: Option<Vec<String>>,
+    /// multicast scouting on or off
+    pub multicast_scouting: Option<bool>,
+    /// a zenoh config file passed through (TLS, access control)
+    pub config_file: Option<String>,
+}
+
+/// `[live]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawLive {
+    /// capacity of the queue from the subscriptions to the engine
+    pub queue: Option<i64>,
+    /// how often the clock advances the engine when no message arrives
+    pub tick: Option<toml::Value>,
+    /// how often the exposition refreshes its gauges
+    pub refresh: Option<toml::Value>,
+    /// how often the recorder flushes
+    pub flush: Option<toml::Value>,
 }
 
 /// `[windows]`
@@ -255,6 +291,38 @@ pub struct Config {
     pub window_buckets: usize,
     /// the rules
     pub rules: Vec<Rule>,
+    /// zenoh session settings
+    pub zenoh: ZenohParams,
+    /// live monitor settings
+    pub live: LiveParams,
+}
+
+/// Zenoh session settings.
+#[derive(Debug, Clone, Serialize)]
+pub struct ZenohParams {
+    /// "peer" (default) or "client"
+    pub mode: String,
+    /// endpoints to connect to
+    pub connect: Vec<String>,
+    /// endpoints to listen on
+    pub listen: Vec<String>,
+    /// multicast scouting
+    pub multicast: bool,
+    /// passthrough zenoh config file
+    pub config_file: Option<String>,
+}
+
+/// Live monitor settings.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct LiveParams {
+    /// queue capacity (messages); when full, the newest message is dropped and counted
+    pub queue: usize,
+    /// engine clock tick (s)
+    pub tick: f64,
+    /// gauge refresh period (s)
+    pub refresh: f64,
+    /// recorder flush period (s)
+    pub flush: f64,
 }
 
 /// How the report computes percentiles.
@@ -397,6 +465,32 @@ impl Config {
         if window_buckets > 1000 {
             return Err(err(source, "windows.buckets", "a whole number from 1 to 1000"));
         }
+        let z = &raw.zenoh;
+        let mode = z.mode.clone().unwrap_or_else(|| "peer".into());
+        if mode != "peer" && mode != "client" {
+            return Err(err(source, "zenoh.mode", format!("\"peer\" or \"client\", found \"{mode}\"")));
+        }
+        let zenoh = ZenohParams {
+            mode,
+            connect: z.connect.clone().unwrap_or_default(),
+            listen: z.listen.clone().unwrap_or_default(),
+            multicast: z.multicast_scouting.unwrap_or(true),
+            config_file: z.config_file.clone(),
+        };
+        let l = &raw.live;
+        let live = LiveParams {
+            queue: count(source, "live.queue", l.queue, 65_536)?,
+            tick: duration(source, "live.tick", &l.tick, 0.05)?,
+            refresh: duration(source, "live.refresh", &l.refresh, 0.2)?,
+            flush: duration(source, "live.flush", &l.flush, 0.1)?,
+        };
+        if live.flush > 0.1 {
+            return Err(err(
+                source,
+                "live.flush",
+                "a duration of at most 100ms (the recorder's crash-safety bound)",
+            ));
+        }
         let mut rules = Vec::new();
         for (i, r) in raw.rule.iter().enumerate() {
             let rule = build_rule(source, i, r, &mut windows, &mut window_labels)?;
@@ -420,6 +514,8 @@ impl Config {
             window_labels,
             window_buckets,
             rules,
+            zenoh,
+            live,
         })
     }
 

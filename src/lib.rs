@@ -12,6 +12,7 @@
 //! - [`rules`]: threshold rules, alerts and verdicts (pure);
 //! - [`monitor`]: engine + statistics + windows + rules, the unit live and replay drive (pure);
 //! - [`scenario`]: the demo-scenario generator (pure, seeded);
+//! - `live` (feature `live`): zenoh, HTTP and signals (I/O edge);
 //! - [`logio`]: log readers and writers (file I/O edge);
 //! - [`replay`]: drives the engine from a log (file I/O edge, two threads);
 //! - [`cli`]: the command line (edge).
@@ -21,6 +22,8 @@ pub mod cli;
 pub mod config;
 pub mod core;
 pub mod geometry;
+#[cfg(feature = "live")]
+pub mod live;
 pub mod logio;
 pub mod metrics;
 pub mod monitor;

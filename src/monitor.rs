@@ -53,6 +53,13 @@ impl Monitor {
         self.consume(start, samples, events);
     }
 
+    /// Feeds samples made outside the engine (live staleness) to statistics, windows and rules.
+    pub fn inject(&mut self, samples: &mut Vec<Sample>, extra: &[Sample], events: &mut Vec<AlertEvent>) {
+        let start = samples.len();
+        samples.extend_from_slice(extra);
+        self.consume(start, samples, events);
+    }
+
     /// End of input.
     pub fn finish(&mut self, samples: &mut Vec<Sample>, events: &mut Vec<AlertEvent>) {
         let start = samples.len();

@@ -71,6 +71,11 @@ impl RunStats {
         })
     }
 
+    /// Count, mean, min and max of a metric without computing percentiles (cheap).
+    pub fn basic(&self, metric: Metric, role: Option<Role>) -> Option<(u64, f64, f64, f64)> {
+        self.slots[Self::slot(metric, role)].as_ref().and_then(Summary::basic)
+    }
+
     /// Whether every percentile so far is exact.
     pub fn all_exact(&self) -> bool {
         self.slots.iter().flatten().all(Summary::is_exact)
@@ -222,7 +227,7 @@ impl Report {
         // With alpha != 2 the engine emits only the gospa total (SPEC §6), so the parts
         // and counts are absent here too.
         for m in Metric::ALL {
-            if matches!(m, Metric::Latency | Metric::Interarrival) {
+            if matches!(m, Metric::Latency | Metric::Interarrival | Metric::Staleness) {
                 continue;
             }
             if let Some(s) = stats.get(m, None) {

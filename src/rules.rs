@@ -185,7 +185,7 @@ pub struct RuleSet {
 }
 
 fn is_per_role(m: Metric) -> bool {
-    matches!(m, Metric::Latency | Metric::Interarrival)
+    matches!(m, Metric::Latency | Metric::Interarrival | Metric::Staleness)
 }
 
 impl RuleSet {

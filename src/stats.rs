@@ -96,6 +96,11 @@ impl Summary {
         }
     }
 
+    /// Count, exact mean, min and max, `None` when empty.
+    pub fn basic(&self) -> Option<(u64, f64, f64, f64)> {
+        (self.count > 0).then(|| (self.count, (self.sum + self.comp) / self.count as f64, self.min, self.max))
+    }
+
     /// The latest value added.
     pub fn last(&self) -> Option<f64> {
         self.last

@@ -3,6 +3,8 @@
 
 mod convert;
 mod journal;
+#[cfg(feature = "live")]
+mod live;
 mod replay;
 mod scenario;
 
@@ -47,6 +49,18 @@ pub enum Command {
     Convert(convert::Args),
     /// Generate a demo-scenario log (the Aldermoor campus shuttle).
     Scenario(scenario::Args),
+    /// Watch a live stack over zenoh: metrics on HTTP, alerts, optional recording.
+    #[cfg(feature = "live")]
+    Watch(live::WatchArgs),
+    /// Record every role to a binary log.
+    #[cfg(feature = "live")]
+    Record(live::RecordArgs),
+    /// Play a log onto zenoh.
+    #[cfg(feature = "live")]
+    Publish(live::PublishArgs),
+    /// The demo stack and the watcher in one process (no stack or router needed).
+    #[cfg(feature = "live")]
+    Demo(live::DemoArgs),
 }
 
 /// Runs the parsed command line and returns the process exit code.
@@ -63,6 +77,14 @@ pub fn run(cli: Cli) -> ExitCode {
         Command::Replay(a) => replay::run(&cfg, a),
         Command::Convert(a) => convert::run(&cfg, a),
         Command::Scenario(a) => scenario::run(&cfg, a),
+        #[cfg(feature = "live")]
+        Command::Watch(a) => live::watch_cmd(&cfg, a),
+        #[cfg(feature = "live")]
+        Command::Record(a) => live::record_cmd(&cfg, a),
+        #[cfg(feature = "live")]
+        Command::Publish(a) => live::publish_cmd(&cfg, a),
+        #[cfg(feature = "live")]
+        Command::Demo(a) => live::demo_cmd(&cfg, &cli.sets, a),
     };
     ExitCode::from(code)
 }

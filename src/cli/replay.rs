@@ -117,7 +117,7 @@ fn counts(m: &std::collections::BTreeMap<&'static str, u64>) -> String {
 /// The readable summary printed on stdout.
 pub fn summary(r: &Report) -> String {
     let mut s = String::new();
-    let _ = writeln!(s, "plumbline replay of {} ({:.1} s of stamps)", r.input, r.duration_s);
+    let _ = writeln!(s, "plumbline report of {} ({:.1} s of stamps)", r.input, r.duration_s);
     let rec = &r.records;
     let _ = write!(s, "records: {} accepted, {} rejected", rec.accepted, rec.rejected);
     if rec.rejected > 0 {

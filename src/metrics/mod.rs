@@ -90,11 +90,13 @@ pub enum Metric {
     Latency,
     /// Time between arrivals (s), per role.
     Interarrival,
+    /// Now minus the last arrival (s), per role; live only.
+    Staleness,
 }
 
 impl Metric {
     /// Every metric, in report order.
-    pub const ALL: [Metric; 39] = [
+    pub const ALL: [Metric; 40] = [
         Metric::Gospa,
         Metric::GospaLocalization,
         Metric::GospaMissed,
@@ -134,6 +136,7 @@ impl Metric {
         Metric::LateralJerk,
         Metric::Latency,
         Metric::Interarrival,
+        Metric::Staleness,
     ];
 
     /// The SPEC §5 name.
@@ -178,6 +181,7 @@ impl Metric {
             Metric::LateralJerk => "lateral_jerk_mps3",
             Metric::Latency => "latency_s",
             Metric::Interarrival => "interarrival_s",
+            Metric::Staleness => "staleness_s",
         }
     }
 

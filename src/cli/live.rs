@@ -1,0 +1,293 @@
+//! `watch`, `record`, `publish` and `demo`: the live commands (feature `live`).
+
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Mutex};
+
+use crate::config::Config;
+use crate::live::exposition::Exposition;
+use crate::live::publish::{self, PublishOptions};
+use crate::live::watch::{self, Shared, WatchOptions};
+use crate::live::{http, zenoh_io};
+use crate::rules::critical_failed;
+use crate::scenario::{generate, ScenarioParams};
+
+/// Session flags shared by the live commands.
+#[derive(Debug, Clone, clap::Args)]
+pub struct SessionArgs {
+    /// zenoh mode: peer (default) or client.
+    #[arg(long)]
+    pub mode: Option<String>,
+    /// Endpoint to connect to, e.g. tcp/127.0.0.1:7447 (repeatable).
+    #[arg(long)]
+    pub connect: Vec<String>,
+    /// Endpoint to listen on (repeatable).
+    #[arg(long)]
+    pub listen: Vec<String>,
+    /// Turn multicast scouting off (use explicit endpoints).
+    #[arg(long)]
+    pub no_multicast: bool,
+}
+
+impl SessionArgs {
+    fn apply(&self, cfg: &Config) -> Config {
+        let mut c = cfg.clone();
+        if let Some(m) = &self.mode {
+            c.zenoh.mode = m.clone();
+        }
+        c.zenoh.connect.extend(self.connect.iter().cloned());
+        c.zenoh.listen.extend(self.listen.iter().cloned());
+        if self.no_multicast {
+            c.zenoh.multicast = false;
+        }
+        c
+    }
+}
+
+/// `watch` arguments.
+#[derive(Debug, clap::Args)]
+pub struct WatchArgs {
+    /// Write the final report here on shutdown.
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+    /// Record every received message to this binary log.
+    #[arg(long, value_name = "FILE")]
+    pub record: Option<PathBuf>,
+    /// Append alert events here (JSON lines).
+    #[arg(long, value_name = "FILE")]
+    pub journal: Option<PathBuf>,
+    /// Stop after this many seconds.
+    #[arg(long)]
+    pub duration: Option<f64>,
+    /// Session settings.
+    #[command(flatten)]
+    pub session: SessionArgs,
+}
+
+/// `record` arguments.
+#[derive(Debug, clap::Args)]
+pub struct RecordArgs {
+    /// The binary log to write.
+    #[arg(long, value_name = "FILE")]
+    pub out: PathBuf,
+    /// Stop after this many seconds.
+    #[arg(long)]
+    pub duration: Option<f64>,
+    /// Session settings.
+    #[command(flatten)]
+    pub session: SessionArgs,
+}
+
+/// `publish` arguments.
+#[derive(Debug, clap::Args)]
+pub struct PublishArgs {
+    /// The log to play.
+    pub log: PathBuf,
+    /// Time scale (1.0 = original timing) or `max`.
+    #[arg(long, default_value = "1.0")]
+    pub rate: String,
+    /// Postcard payloads instead of JSON.
+    #[arg(long)]
+    pub binary: bool,
+    /// Shift stamps so the first record is stamped now.
+    #[arg(long)]
+    pub restamp: bool,
+    /// Session settings.
+    #[command(flatten)]
+    pub session: SessionArgs,
+}
+
+/// `demo` arguments.
+#[derive(Debug, clap::Args)]
+pub struct DemoArgs {
+    /// Stop after this many seconds (default: until Ctrl-C).
+    #[arg(long)]
+    pub duration: Option<f64>,
+    /// Scenario seed of the first lap.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Write the final report here.
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+    /// Append alert events here (JSON lines).
+    #[arg(long, value_name = "FILE")]
+    pub journal: Option<PathBuf>,
+    /// Session settings.
+    #[command(flatten)]
+    pub session: SessionArgs,
+}
+
+fn fail(cmd: &str, e: impl std::fmt::Display) -> u8 {
+    eprintln!("plumbline {cmd}: {e}");
+    super::EXIT_INPUT
+}
+
+fn serve(cfg: &Config, stop: &Arc<AtomicBool>) -> Result<(Arc<Shared>, http::Server), String> {
+    let shared =
+        Arc::new(Shared { exposition: Mutex::new(Exposition::new(cfg)), ready: AtomicBool::new(false) });
+    let server = http::start(&cfg.http_listen, shared.clone(), stop.clone())?;
+    Ok((shared, server))
+}
+
+/// Runs `watch`.
+pub fn watch_cmd(cfg: &Config, a: &WatchArgs) -> u8 {
+    let cfg = a.session.apply(cfg);
+    let stop = Arc::new(AtomicBool::new(false));
+    let (shared, server) = match serve(&cfg, &stop) {
+        Ok(x) => x,
+        Err(e) => return fail("watch", e),
+    };
+    eprintln!("plumbline watch: metrics at http://{}/metrics", server.addr);
+    let session = match zenoh_io::open(&cfg) {
+        Ok(s) => s,
+        Err(e) => return fail("watch", e),
+    };
+    let opts = WatchOptions {
+        report: a.report.clone(),
+        record: a.record.clone(),
+        journal: a.journal.clone(),
+        duration: a.duration,
+        record_only: false,
+    };
+    let r = watch::run(&cfg, &opts, &stop, &shared, &session);
+    let _ = zenoh::Wait::wait(session.close());
+    server.stop();
+    match r {
+        Ok(rep) if critical_failed(&rep.verdicts) => super::EXIT_FAIL,
+        Ok(_) => super::EXIT_OK,
+        Err(e) => fail("watch", e),
+    }
+}
+
+/// Runs `record`.
+pub fn record_cmd(cfg: &Config, a: &RecordArgs) -> u8 {
+    let cfg = a.session.apply(cfg);
+    let stop = Arc::new(AtomicBool::new(false));
+    let (shared, server) = match serve(&cfg, &stop) {
+        Ok(x) => x,
+        Err(e) => return fail("record", e),
+    };
+    let session = match zenoh_io::open(&cfg) {
+        Ok(s) => s,
+        Err(e) => return fail("record", e),
+    };
+    let opts = WatchOptions {
+        record: Some(a.out.clone()),
+        duration: a.duration,
+        record_only: true,
+        ..Default::default()
+    };
+    let r = watch::run(&cfg, &opts, &stop, &shared, &session);
+    let _ = zenoh::Wait::wait(session.close());
+    server.stop();
+    match r {
+        Ok(_) => super::EXIT_OK,
+        Err(e) => fail("record", e),
+    }
+}
+
+/// Runs `publish`.
+pub fn publish_cmd(cfg: &Config, a: &PublishArgs) -> u8 {
+    let cfg = a.session.apply(cfg);
+    let rate = match a.rate.as_str() {
+        "max" => None,
+        s => match s.parse::<f64>() {
+            Ok(r) if r.is_finite() && r > 0.0 => Some(r),
+            _ => return fail("publish", format!("--rate: a positive number or `max`, found `{s}`")),
+        },
+    };
+    let session = match zenoh_io::open(&cfg) {
+        Ok(s) => s,
+        Err(e) => return fail("publish", e),
+    };
+    let stop = AtomicBool::new(false);
+    let opts = PublishOptions { rate, binary: a.binary, restamp: a.restamp };
+    let r = publish::run(&cfg, &a.log, opts, &session, &stop);
+    // Give the transport a moment to deliver the last samples before closing.
+    std::thread::sleep(std::time::Duration::from_millis(300));
+    let _ = zenoh::Wait::wait(session.close());
+    match r {
+        Ok(n) => {
+            eprintln!("plumbline publish: {n} records published");
+            super::EXIT_OK
+        }
+        Err(e) => fail("publish", e),
+    }
+}
+
+/// The built-in rig profile, used by `demo` when the config has no rules.
+const RIG_PROFILE: &str = include_str!("../../config/rig.toml");
+
+/// Runs `demo`: the scenario published live over zenoh and watched, in one process.
+pub fn demo_cmd(cfg: &Config, sets: &[String], a: &DemoArgs) -> u8 {
+    let mut cfg = a.session.apply(cfg);
+    if cfg.rules.is_empty() {
+        match Config::load(Some(("config/rig.toml (built in)", RIG_PROFILE)), sets) {
+            Ok(rig) => {
+                cfg.rules = rig.rules;
+                cfg.windows = rig.windows;
+                cfg.window_labels = rig.window_labels;
+            }
+            Err(e) => return fail("demo", e),
+        }
+    }
+    let stop = Arc::new(AtomicBool::new(false));
+    let (shared, server) = match serve(&cfg, &stop) {
+        Ok(x) => x,
+        Err(e) => return fail("demo", e),
+    };
+    println!("plumbline demo: the Aldermoor campus shuttle, live over zenoh");
+    println!("metrics at http://{}/metrics  (Ctrl-C to stop)", server.addr);
+    let session = match zenoh_io::open(&cfg) {
+        Ok(s) => s,
+        Err(e) => return fail("demo", e),
+    };
+    let opts = WatchOptions {
+        report: a.report.clone(),
+        journal: a.journal.clone(),
+        duration: a.duration,
+        ..Default::default()
+    };
+    let r = std::thread::scope(|s| {
+        let (stop2, session2, cfg2, seed) = (stop.clone(), session.clone(), cfg.clone(), a.seed);
+        s.spawn(move || demo_stack(&cfg2, &session2, &stop2, seed));
+        let r = watch::run(&cfg, &opts, &stop, &shared, &session);
+        stop.store(true, Ordering::SeqCst);
+        r
+    });
+    let _ = zenoh::Wait::wait(session.close());
+    server.stop();
+    match r {
+        Ok(rep) => {
+            println!("{}", super::replay::summary(&rep));
+            super::EXIT_OK
+        }
+        Err(e) => fail("demo", e),
+    }
+}
+
+/// The demo stack: laps of the scenario, restamped to the wall clock, published with their
+/// original timing until `stop`.
+fn demo_stack(cfg: &Config, session: &zenoh::Session, stop: &AtomicBool, seed: u64) {
+    let lap = 60.0;
+    let start = zenoh_io::wall_now();
+    let t0 = std::time::Instant::now();
+    for k in 0.. {
+        let p = ScenarioParams { seed: seed + k, duration: lap, ..Default::default() };
+        let offset = start + k as f64 * lap;
+        for mut rec in generate(cfg, &p) {
+            if stop.load(Ordering::SeqCst) {
+                return;
+            }
+            let at = rec.recv.unwrap_or(0.0) + k as f64 * lap;
+            let due = std::time::Duration::from_secs_f64(at.max(0.0));
+            if let Some(w) = due.checked_sub(t0.elapsed()) {
+                std::thread::sleep(w);
+            }
+            publish::shift(&mut rec, offset);
+            if let Err(e) = publish::put(session, &rec, false) {
+                tracing::warn!(error = %e, "demo publish failed");
+            }
+        }
+    }
+}

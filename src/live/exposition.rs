@@ -1,0 +1,242 @@
+//! The Prometheus exposition: one registry, families registered once at startup with help
+//! text and base units in their names, refreshed from the monitor on a timer so that a
+//! scrape reads atomics and never blocks ingestion.
+
+use prometheus::{
+    Encoder, GaugeVec, HistogramOpts, HistogramVec, IntCounterVec, IntGauge, Opts, Registry, TextEncoder,
+};
+
+use crate::config::Config;
+use crate::metrics::Metric;
+use crate::monitor::Monitor;
+use crate::msg::Role;
+use crate::rules::AlertEvent;
+use crate::windows::Stat;
+
+/// The Prometheus name of a metric: `plumbline_` and the metric, with base units spelled out.
+pub fn prom_name(m: Metric) -> String {
+    let n = m.name();
+    let base = if let Some(s) = n.strip_suffix("_mps2") {
+        format!("{s}_meters_per_second_squared")
+    } else if let Some(s) = n.strip_suffix("_mps3") {
+        format!("{s}_meters_per_second_cubed")
+    } else if let Some(s) = n.strip_suffix("_rad") {
+        format!("{s}_radians")
+    } else if let Some(s) = n.strip_suffix("_m") {
+        format!("{s}_meters")
+    } else if let Some(s) = n.strip_suffix("_s") {
+        format!("{s}_seconds")
+    } else if matches!(m, Metric::Gospa | Metric::Ospa) {
+        format!("{n}_meters")
+    } else if m == Metric::PathCurvatureMax {
+        "path_curvature_max_per_meter".to_string()
+    } else {
+        n.to_string()
+    };
+    format!("plumbline_{base}")
+}
+
+/// Every family of the monitor.
+pub struct Exposition {
+    registry: Registry,
+    values: Vec<GaugeVec>,
+    labels: Vec<String>,
+    latency: HistogramVec,
+    interarrival: HistogramVec,
+    messages: IntCounterVec,
+    decode_errors: IntCounterVec,
+    dropped: IntCounterVec,
+    regressions: IntCounterVec,
+    alerts: IntCounterVec,
+    active: GaugeVec,
+    steps: IntCounterVec,
+    collisions: IntGauge,
+    queue: IntGauge,
+    seen: Vec<[u64; 4]>,
+    steps_seen: [u64; 4],
+}
+
+fn must<T>(r: prometheus::Result<T>) -> T {
+    // Registration fails only for a duplicate or malformed name, which a test rules out.
+    r.expect("metric family registers")
+}
+
+impl Exposition {
+    /// Registers every family.
+    pub fn new(cfg: &Config) -> Exposition {
+        let registry = Registry::new();
+        let mut values = Vec::new();
+        for m in Metric::ALL {
+            let opts = Opts::new(prom_name(m), format!("{} by window and statistic", m.name()));
+            let g = must(GaugeVec::new(opts, &["role", "window", "stat"]));
+            must(registry.register(Box::new(g.clone())));
+            values.push(g);
+        }
+        let buckets = prometheus::exponential_buckets(0.0005, 2.0, 16).expect("valid buckets");
+        let hist = |name: &str, help: &str| {
+            let h =
+                must(HistogramVec::new(HistogramOpts::new(name, help).buckets(buckets.clone()), &["role"]));
+            must(registry.register(Box::new(h.clone())));
+            h
+        };
+        let latency = hist("plumbline_latency_seconds_histogram", "arrival minus stamp per role");
+        let interarrival = hist("plumbline_interarrival_seconds_histogram", "time between arrivals per role");
+        let counter = |name: &str, help: &str, labels: &[&str]| {
+            let c = must(IntCounterVec::new(Opts::new(name, help), labels));
+            must(registry.register(Box::new(c.clone())));
+            c
+        };
+        let messages = counter("plumbline_messages_total", "messages accepted per role", &["role"]);
+        let decode_errors = counter("plumbline_decode_errors_total", "messages rejected per role", &["role"]);
+        let dropped =
+            counter("plumbline_dropped_total", "messages dropped by a full queue per role", &["role"]);
+        let regressions = counter(
+            "plumbline_stamp_regressions_total",
+            "stamps older than the previous per role",
+            &["role"],
+        );
+        let alerts = counter("plumbline_alerts_total", "alert events", &["rule", "kind", "severity"]);
+        let steps = counter("plumbline_steps_total", "evaluation steps", &["kind", "outcome"]);
+        let active = must(GaugeVec::new(
+            Opts::new("plumbline_alert_active", "1 while a rule is raised"),
+            &["rule", "severity"],
+        ));
+        must(registry.register(Box::new(active.clone())));
+        let collisions = must(IntGauge::new(
+            "plumbline_collisions",
+            "contacts between the footprint and an obstacle so far",
+        ));
+        must(registry.register(Box::new(collisions.clone())));
+        let queue = must(IntGauge::new("plumbline_queue_length", "messages waiting for the engine"));
+        must(registry.register(Box::new(queue.clone())));
+        let mut labels = cfg.window_labels.clone();
+        labels.push("run".into());
+        Exposition {
+            registry,
+            values,
+            labels,
+            latency,
+            interarrival,
+            messages,
+            decode_errors,
+            dropped,
+            regressions,
+            alerts,
+            active,
+            steps,
+            collisions,
+            queue,
+            seen: vec![[0; 4]; Role::ALL.len()],
+            steps_seen: [0; 4],
+        }
+    }
+
+    /// Observes a latency or inter-arrival sample in its histogram.
+    pub fn observe(&self, metric: Metric, role: Role, v: f64) {
+        match metric {
+            Metric::Latency => self.latency.with_label_values(&[role.name()]).observe(v),
+            Metric::Interarrival => self.interarrival.with_label_values(&[role.name()]).observe(v),
+            _ => {}
+        }
+    }
+
+    /// Counts alert events.
+    pub fn alert(&self, e: &AlertEvent) {
+        self.alerts.with_label_values(&[&e.rule, e.kind, e.severity]).inc();
+    }
+
+    /// Sets the queue length gauge.
+    pub fn queue_len(&self, n: usize) {
+        self.queue.set(n as i64);
+    }
+
+    /// Copies the monitor's windows, run statistics and counters into the families.
+    pub fn refresh(&mut self, monitor: &Monitor) {
+        let lengths = monitor.windows.lengths().len();
+        for m in Metric::ALL {
+            let roles: Vec<Option<Role>> =
+                std::iter::once(None).chain(Role::ALL.iter().map(|&r| Some(r))).collect();
+            for role in roles {
+                let Some(ws) = monitor.windows.get(m, role) else { continue };
+                let rl = role.map_or("", Role::name);
+                for (i, w) in ws.iter().enumerate().take(lengths) {
+                    let Some(st) = w.stats() else { continue };
+                    for s in [
+                        Stat::Count,
+                        Stat::Mean,
+                        Stat::Min,
+                        Stat::Max,
+                        Stat::P50,
+                        Stat::P95,
+                        Stat::P99,
+                        Stat::Last,
+                    ] {
+                        self.values[m as usize]
+                            .with_label_values(&[rl, &self.labels[i], s.name()])
+                            .set(st.get(s));
+                    }
+                }
+                if let Some((count, mean, min, max)) = monitor.stats.basic(m, role) {
+                    let g = &self.values[m as usize];
+                    for (s, v) in [("count", count as f64), ("mean", mean), ("min", min), ("max", max)] {
+                        g.with_label_values(&[rl, "run", s]).set(v);
+                    }
+                }
+            }
+        }
+        for r in Role::ALL {
+            let t = monitor.engine.transport(r);
+            let now_vals = [t.messages, t.decode_errors, t.dropped, t.stamp_regressions];
+            let fams = [&self.messages, &self.decode_errors, &self.dropped, &self.regressions];
+            for k in 0..4 {
+                let d = now_vals[k].saturating_sub(self.seen[r.index()][k]);
+                if d > 0 {
+                    fams[k].with_label_values(&[r.name()]).inc_by(d);
+                }
+            }
+            self.seen[r.index()] = now_vals;
+        }
+        let c = monitor.engine.counters();
+        let vals = [c.tracking.evaluated, c.tracking.skipped, c.ego.evaluated, c.ego.skipped];
+        let labels =
+            [("tracking", "evaluated"), ("tracking", "skipped"), ("ego", "evaluated"), ("ego", "skipped")];
+        for k in 0..4 {
+            let d = vals[k].saturating_sub(self.steps_seen[k]);
+            if d > 0 {
+                self.steps.with_label_values(&[labels[k].0, labels[k].1]).inc_by(d);
+            }
+        }
+        self.steps_seen = vals;
+        for (i, r) in monitor.rules.rules().iter().enumerate() {
+            self.active.with_label_values(&[&r.name, r.severity.name()]).set(if monitor.rules.is_raised(i) {
+                1.0
+            } else {
+                0.0
+            });
+        }
+        let (cols, dropped) = monitor.engine.collisions();
+        self.collisions.set(cols.len() as i64 + dropped as i64);
+    }
+
+    /// The text exposition.
+    pub fn text(&self) -> String {
+        let mut buf = Vec::new();
+        let _ = TextEncoder::new().encode(&self.registry.gather(), &mut buf);
+        String::from_utf8(buf).unwrap_or_default()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_family_registers_and_names_follow_conventions() {
+        let x = Exposition::new(&Config::defaults());
+        assert_eq!(prom_name(Metric::EgoPositionError), "plumbline_ego_position_error_meters");
+        assert_eq!(prom_name(Metric::Latency), "plumbline_latency_seconds");
+        assert_eq!(prom_name(Metric::Gospa), "plumbline_gospa_meters");
+        assert_eq!(prom_name(Metric::LateralAccel), "plumbline_lateral_accel_meters_per_second_squared");
+        assert!(x.text().is_empty() || x.text().contains("plumbline_"));
+    }
+}

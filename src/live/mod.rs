@@ -1,0 +1,8 @@
+//! The live edges (feature `live`): zenoh sessions, the HTTP exposition and signals. They
+//! feed the same pure [`crate::monitor::Monitor`] that replay feeds.
+
+pub mod exposition;
+pub mod http;
+pub mod publish;
+pub mod watch;
+pub mod zenoh_io;

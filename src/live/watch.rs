@@ -1,0 +1,286 @@
+//! `watch`: the live monitor. Subscriptions decode samples on zenoh's threads and hand them
+//! through one bounded queue (when full, the newest message is dropped and counted per
+//! role) to the engine loop on the calling thread, which drives the same [`Monitor`] that
+//! replay drives, advances it on a clock tick so waiting steps resolve by `max_wait`, feeds
+//! the recorder, the alert journal and the alerts key, and refreshes the exposition.
+//! One shutdown path: the `stop` flag (set by SIGINT/SIGTERM or the caller) ends the loop,
+//! then the monitor finishes, the recorder flushes and the report is written.
+
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::mpsc::{sync_channel, RecvTimeoutError, TrySendError};
+use std::sync::{Arc, Mutex};
+use std::time::{Duration, Instant};
+
+use zenoh::Wait;
+
+use super::exposition::Exposition;
+use super::zenoh_io::{self, wall_now};
+use crate::config::Config;
+use crate::core::{Input, Sample};
+use crate::logio::{plb, LogRecord};
+use crate::metrics::Metric;
+use crate::monitor::Monitor;
+use crate::msg::{Reject, Role};
+use crate::report::{BadRecord, Report, RunInputs};
+use crate::rules::AlertEvent;
+
+/// What the watcher writes besides the exposition.
+#[derive(Debug, Clone, Default)]
+pub struct WatchOptions {
+    /// Final report.
+    pub report: Option<PathBuf>,
+    /// Binary recording of every received message.
+    pub record: Option<PathBuf>,
+    /// Alert journal (JSON lines).
+    pub journal: Option<PathBuf>,
+    /// Stop after this many seconds.
+    pub duration: Option<f64>,
+    /// Do not evaluate (the `record` command): only record.
+    pub record_only: bool,
+}
+
+/// State shared with the HTTP server.
+pub struct Shared {
+    /// The exposition.
+    pub exposition: Mutex<Exposition>,
+    /// Set once every subscription is declared.
+    pub ready: AtomicBool,
+}
+
+type Item = (Role, Result<LogRecord, Reject>);
+
+/// Runs the watcher until `stop` is set (or `duration` passes). `shared` carries the
+/// exposition the HTTP server reads.
+pub fn run(
+    cfg: &Config,
+    opts: &WatchOptions,
+    stop: &AtomicBool,
+    shared: &Arc<Shared>,
+    session: &zenoh::Session,
+) -> Result<Report, String> {
+    let (tx, rx) = sync_channel::<Item>(cfg.live.queue);
+    let dropped: Arc<Vec<AtomicU64>> = Arc::new(Role::ALL.iter().map(|_| AtomicU64::new(0)).collect());
+    let mut subs = Vec::new();
+    for (role, key) in &cfg.roles {
+        let (role, tx, dropped, c) = (*role, tx.clone(), dropped.clone(), cfg.clone());
+        let sub = session
+            .declare_subscriber(key.as_str())
+            .callback(move |sample| {
+                let recv = wall_now();
+                let payload = sample.payload().to_bytes();
+                let rec =
+                    zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv);
+                if let Err(TrySendError::Full(_)) = tx.try_send((role, rec)) {
+                    dropped[role.index()].fetch_add(1, Ordering::Relaxed);
+                }
+            })
+            .wait()
+            .map_err(|e| format!("subscribing to {key}: {e}"))?;
+        subs.push(sub);
+    }
+    drop(tx);
+    shared.ready.store(true, Ordering::SeqCst);
+    tracing::info!(roles = subs.len(), "subscriptions live");
+
+    let alerts_key = format!("{}/monitor/alerts", cfg.prefix);
+    let alert_pub = session
+        .declare_publisher(alerts_key.clone())
+        .wait()
+        .map_err(|e| format!("declaring {alerts_key}: {e}"))?;
+    let mut recorder = match &opts.record {
+        None => None,
+        Some(p) => Some(
+            plb::create(p, &plb::Header::for_config(cfg, wall_now()))
+                .map_err(|e| format!("{}: {e}", p.display()))?,
+        ),
+    };
+    let mut journal = match &opts.journal {
+        None => None,
+        Some(p) => Some(
+            std::fs::OpenOptions::new()
+                .create(true)
+                .append(true)
+                .open(p)
+                .map_err(|e| format!("{}: {e}", p.display()))?,
+        ),
+    };
+    let mut monitor = Monitor::new(cfg);
+    let (mut samples, mut events) = (Vec::new(), Vec::new());
+    if let Some(map) = crate::replay::load_map(cfg).map_err(|e| e.to_string())? {
+        monitor.push(map, &mut samples, &mut events);
+    }
+    let mut first_bad = Vec::new();
+    let mut dropped_seen = vec![0u64; Role::ALL.len()];
+    let mut record_failed = false;
+    let started = Instant::now();
+    let (mut last_refresh, mut last_flush) = (Instant::now(), Instant::now());
+    let tick = Duration::from_secs_f64(cfg.live.tick.max(0.001));
+    let mut n_bad = 0u64;
+
+    loop {
+        if stop.load(Ordering::SeqCst) || opts.duration.is_some_and(|d| started.elapsed().as_secs_f64() >= d)
+        {
+            break;
+        }
+        match rx.recv_timeout(tick) {
+            Ok((role, item)) => {
+                let mut batch = vec![(role, item)];
+                while batch.len() < 1024 {
+                    match rx.try_recv() {
+                        Ok(x) => batch.push(x),
+                        Err(_) => break,
+                    }
+                }
+                for (role, item) in batch {
+                    match item {
+                        Ok(rec) => {
+                            if let Some(w) = recorder.as_mut() {
+                                if let Err(e) = w.write(&rec) {
+                                    if !record_failed {
+                                        tracing::error!(error = %e, "recorder write failed; monitoring goes on");
+                                        eprintln!("plumbline: recorder: {e}; monitoring goes on");
+                                        record_failed = true;
+                                    }
+                                }
+                            }
+                            if !opts.record_only {
+                                monitor.push(
+                                    Input::Message { role, recv: rec.recv, msg: rec.msg },
+                                    &mut samples,
+                                    &mut events,
+                                );
+                            }
+                        }
+                        Err(reason) => {
+                            n_bad += 1;
+                            tracing::warn!(role = role.name(), reason = %reason, "rejected message");
+                            if first_bad.len() < crate::replay::KEEP_BAD {
+                                first_bad.push(BadRecord {
+                                    at: format!("message {n_bad}"),
+                                    role: Some(role.name()),
+                                    reason: reason.code(),
+                                    detail: reason.to_string(),
+                                });
+                            }
+                            monitor.push(
+                                Input::Rejected { role: Some(role), reason: reason.code() },
+                                &mut samples,
+                                &mut events,
+                            );
+                        }
+                    }
+                }
+            }
+            Err(RecvTimeoutError::Timeout) => {}
+            Err(RecvTimeoutError::Disconnected) => break,
+        }
+        let now = wall_now();
+        for r in Role::ALL {
+            let d = dropped[r.index()].load(Ordering::Relaxed);
+            for _ in dropped_seen[r.index()]..d {
+                monitor.push(Input::Dropped { role: r }, &mut samples, &mut events);
+            }
+            dropped_seen[r.index()] = d;
+        }
+        monitor.advance(now, &mut samples, &mut events);
+        let refresh_due = last_refresh.elapsed().as_secs_f64() >= cfg.live.refresh;
+        if refresh_due {
+            // Staleness of every role heard from, as samples so rules can watch it.
+            let stale: Vec<Sample> = Role::ALL
+                .iter()
+                .filter_map(|&r| {
+                    monitor.engine.transport(r).staleness(now).map(|v| Sample {
+                        t: now,
+                        metric: Metric::Staleness,
+                        role: Some(r),
+                        value: v,
+                    })
+                })
+                .collect();
+            monitor.inject(&mut samples, &stale, &mut events);
+        }
+        handle(&samples, &events, shared, &alert_pub, journal.as_mut());
+        samples.clear();
+        events.clear();
+        if refresh_due {
+            if let Ok(mut x) = shared.exposition.lock() {
+                x.refresh(&monitor);
+                x.queue_len(0);
+            }
+            last_refresh = Instant::now();
+        }
+        if last_flush.elapsed().as_secs_f64() >= cfg.live.flush {
+            if let Some(w) = recorder.as_mut() {
+                if let Err(e) = w.flush() {
+                    if !record_failed {
+                        eprintln!("plumbline: recorder: {e}; monitoring goes on");
+                        record_failed = true;
+                    }
+                }
+            }
+            last_flush = Instant::now();
+        }
+    }
+
+    // The one shutdown path: drain what arrived, finish, flush, report.
+    drop(subs);
+    while let Ok((role, Ok(rec))) = rx.try_recv() {
+        if let Some(w) = recorder.as_mut() {
+            let _ = w.write(&rec);
+        }
+        if !opts.record_only {
+            monitor.push(Input::Message { role, recv: rec.recv, msg: rec.msg }, &mut samples, &mut events);
+        }
+    }
+    monitor.finish(&mut samples, &mut events);
+    handle(&samples, &events, shared, &alert_pub, journal.as_mut());
+    if let Ok(mut x) = shared.exposition.lock() {
+        x.refresh(&monitor);
+    }
+    if let Some(w) = recorder.as_mut() {
+        let _ = w.flush();
+    }
+    let inputs = RunInputs {
+        input: "live".into(),
+        input_digest: String::new(),
+        first_rejected: first_bad,
+        tail: None,
+    };
+    let report = Report::build(cfg, &monitor, inputs);
+    if let Some(p) = &opts.report {
+        std::fs::write(p, report.to_json()).map_err(|e| format!("{}: {e}", p.display()))?;
+    }
+    Ok(report)
+}
+
+fn handle(
+    samples: &[Sample],
+    events: &[AlertEvent],
+    shared: &Shared,
+    alerts: &zenoh::pubsub::Publisher<'_>,
+    journal: Option<&mut std::fs::File>,
+) {
+    if let Ok(x) = shared.exposition.lock() {
+        for s in samples {
+            if let Some(r) = s.role {
+                x.observe(s.metric, r, s.value);
+            }
+        }
+        for e in events {
+            x.alert(e);
+        }
+    }
+    let mut journal = journal;
+    for e in events {
+        let text = serde_json::to_string(e).unwrap_or_default();
+        tracing::warn!(rule = %e.rule, kind = e.kind, t = e.t, value = e.value, threshold = e.threshold, "alert");
+        if let Err(err) = alerts.put(text.clone()).encoding(zenoh::bytes::Encoding::APPLICATION_JSON).wait() {
+            tracing::error!(error = %err, "publishing an alert failed");
+        }
+        if let Some(j) = journal.as_mut() {
+            use std::io::Write;
+            let _ = j.write_all(format!("{text}\n").as_bytes()).and_then(|_| j.flush());
+        }
+    }
+}
