@@ -97,6 +97,61 @@ pub struct PublishArgs {
     pub session: SessionArgs,
 }
 
+/// `load` arguments.
+#[derive(Debug, clap::Args)]
+pub struct LoadArgs {
+    /// Messages per second (all roles together).
+    #[arg(long, default_value_t = 1000.0)]
+    pub rate: f64,
+    /// How long to run (s, at most 600).
+    #[arg(long, default_value_t = 10.0)]
+    pub seconds: f64,
+    /// Objects per set.
+    #[arg(long, default_value_t = 10)]
+    pub objects: usize,
+    /// Postcard payloads instead of JSON.
+    #[arg(long)]
+    pub binary: bool,
+    /// Session settings (endpoints must be on loopback).
+    #[command(flatten)]
+    pub session: SessionArgs,
+}
+
+/// Runs `load`.
+pub fn load_cmd(cfg: &Config, a: &LoadArgs) -> u8 {
+    let cfg = a.session.apply(cfg);
+    if !crate::live::load::loopback_only(&cfg.zenoh.connect)
+        || !crate::live::load::loopback_only(&cfg.zenoh.listen)
+    {
+        return fail("load", "endpoints must be on loopback (127.0.0.0/8, localhost or [::1])");
+    }
+    if !(a.rate > 0.0 && a.rate <= 1e6 && a.seconds > 0.0 && a.seconds <= 600.0) {
+        return fail("load", "--rate must be in (0, 1e6] and --seconds in (0, 600]");
+    }
+    let session = match zenoh_io::open(&cfg) {
+        Ok(s) => s,
+        Err(e) => return fail("load", e),
+    };
+    let opts = crate::live::load::LoadOptions {
+        rate: a.rate,
+        seconds: a.seconds,
+        objects: a.objects,
+        binary: a.binary,
+    };
+    let t0 = std::time::Instant::now();
+    let r = crate::live::load::run(&cfg, opts, &session);
+    std::thread::sleep(std::time::Duration::from_millis(300));
+    let _ = zenoh::Wait::wait(session.close());
+    match r {
+        Ok(n) => {
+            let el = t0.elapsed().as_secs_f64();
+            eprintln!("plumbline load: {n} messages in {el:.2} s ({:.0}/s)", n as f64 / el);
+            super::EXIT_OK
+        }
+        Err(e) => fail("load", e),
+    }
+}
+
 /// `demo` arguments.
 #[derive(Debug, clap::Args)]
 pub struct DemoArgs {

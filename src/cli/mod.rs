@@ -61,6 +61,9 @@ pub enum Command {
     /// The demo stack and the watcher in one process (no stack or router needed).
     #[cfg(feature = "live")]
     Demo(live::DemoArgs),
+    /// A bounded load generator for the watcher (loopback only).
+    #[cfg(feature = "live")]
+    Load(live::LoadArgs),
 }
 
 /// Runs the parsed command line and returns the process exit code.
@@ -85,6 +88,8 @@ pub fn run(cli: Cli) -> ExitCode {
         Command::Publish(a) => live::publish_cmd(&cfg, a),
         #[cfg(feature = "live")]
         Command::Demo(a) => live::demo_cmd(&cfg, &cli.sets, a),
+        #[cfg(feature = "live")]
+        Command::Load(a) => live::load_cmd(&cfg, a),
     };
     ExitCode::from(code)
 }

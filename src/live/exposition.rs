@@ -28,6 +28,9 @@ pub fn prom_name(m: Metric) -> String {
         format!("{s}_seconds")
     } else if matches!(m, Metric::Gospa | Metric::Ospa) {
         format!("{n}_meters")
+    } else if let Some(s) = n.strip_suffix("_count") {
+        // A `_count` suffix is reserved for histograms and summaries.
+        format!("{s}_objects")
     } else if m == Metric::PathCurvatureMax {
         "path_curvature_max_per_meter".to_string()
     } else {
@@ -51,6 +54,7 @@ pub struct Exposition {
     active: GaugeVec,
     steps: IntCounterVec,
     collisions: IntGauge,
+    ingest: prometheus::Histogram,
     queue: IntGauge,
     seen: Vec<[u64; 4]>,
     steps_seen: [u64; 4],
@@ -79,8 +83,9 @@ impl Exposition {
             must(registry.register(Box::new(h.clone())));
             h
         };
-        let latency = hist("plumbline_latency_seconds_histogram", "arrival minus stamp per role");
-        let interarrival = hist("plumbline_interarrival_seconds_histogram", "time between arrivals per role");
+        let latency = hist("plumbline_arrival_latency_seconds", "arrival minus stamp per role (histogram)");
+        let interarrival =
+            hist("plumbline_arrival_gap_seconds", "time between arrivals per role (histogram)");
         let counter = |name: &str, help: &str, labels: &[&str]| {
             let c = must(IntCounterVec::new(Opts::new(name, help), labels));
             must(registry.register(Box::new(c.clone())));
@@ -109,6 +114,11 @@ impl Exposition {
         must(registry.register(Box::new(collisions.clone())));
         let queue = must(IntGauge::new("plumbline_queue_length", "messages waiting for the engine"));
         must(registry.register(Box::new(queue.clone())));
+        let ingest = must(prometheus::Histogram::with_opts(
+            HistogramOpts::new("plumbline_ingest_seconds", "receipt of a message to its gauges being set")
+                .buckets(prometheus::exponential_buckets(0.00001, 2.0, 18).expect("valid buckets")),
+        ));
+        must(registry.register(Box::new(ingest.clone())));
         let mut labels = cfg.window_labels.clone();
         labels.push("run".into());
         Exposition {
@@ -125,19 +135,30 @@ impl Exposition {
             active,
             steps,
             collisions,
+            ingest,
             queue,
             seen: vec![[0; 4]; Role::ALL.len()],
             steps_seen: [0; 4],
         }
     }
 
-    /// Observes a latency or inter-arrival sample in its histogram.
-    pub fn observe(&self, metric: Metric, role: Role, v: f64) {
-        match metric {
-            Metric::Latency => self.latency.with_label_values(&[role.name()]).observe(v),
-            Metric::Interarrival => self.interarrival.with_label_values(&[role.name()]).observe(v),
+    /// Takes one sample at once: the latest-value gauge (`window="now"`, `stat="value"`)
+    /// and, for latency and inter-arrival, the per-role histogram.
+    pub fn sample(&self, s: &crate::core::Sample) {
+        let rl = s.role.map_or("", Role::name);
+        self.values[s.metric as usize].with_label_values(&[rl, "now", "value"]).set(s.value);
+        match (s.metric, s.role) {
+            (Metric::Latency, Some(r)) => self.latency.with_label_values(&[r.name()]).observe(s.value),
+            (Metric::Interarrival, Some(r)) => {
+                self.interarrival.with_label_values(&[r.name()]).observe(s.value)
+            }
             _ => {}
         }
+    }
+
+    /// Observes the time from a message's receipt to its gauges being set (s).
+    pub fn ingest(&self, seconds: f64) {
+        self.ingest.observe(seconds);
     }
 
     /// Counts alert events.
@@ -237,6 +258,7 @@ mod tests {
         assert_eq!(prom_name(Metric::Latency), "plumbline_latency_seconds");
         assert_eq!(prom_name(Metric::Gospa), "plumbline_gospa_meters");
         assert_eq!(prom_name(Metric::LateralAccel), "plumbline_lateral_accel_meters_per_second_squared");
+        assert_eq!(prom_name(Metric::MissedCount), "plumbline_missed_objects");
         assert!(x.text().is_empty() || x.text().contains("plumbline_"));
     }
 }

@@ -3,6 +3,7 @@
 
 pub mod exposition;
 pub mod http;
+pub mod load;
 pub mod publish;
 pub mod watch;
 pub mod zenoh_io;

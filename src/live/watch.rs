@@ -48,7 +48,7 @@ pub struct Shared {
     pub ready: AtomicBool,
 }
 
-type Item = (Role, Result<LogRecord, Reject>);
+type Item = (Role, Instant, Result<LogRecord, Reject>);
 
 /// Runs the watcher until `stop` is set (or `duration` passes). `shared` carries the
 /// exposition the HTTP server reads.
@@ -71,7 +71,7 @@ pub fn run(
                 let payload = sample.payload().to_bytes();
                 let rec =
                     zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv);
-                if let Err(TrySendError::Full(_)) = tx.try_send((role, rec)) {
+                if let Err(TrySendError::Full(_)) = tx.try_send((role, Instant::now(), rec)) {
                     dropped[role.index()].fetch_add(1, Ordering::Relaxed);
                 }
             })
@@ -117,6 +117,7 @@ pub fn run(
     let (mut last_refresh, mut last_flush) = (Instant::now(), Instant::now());
     let tick = Duration::from_secs_f64(cfg.live.tick.max(0.001));
     let mut n_bad = 0u64;
+    let mut ingest = hdrhistogram::Histogram::<u64>::new(3).expect("3 digits are valid");
 
     loop {
         if stop.load(Ordering::SeqCst) || opts.duration.is_some_and(|d| started.elapsed().as_secs_f64() >= d)
@@ -124,15 +125,16 @@ pub fn run(
             break;
         }
         match rx.recv_timeout(tick) {
-            Ok((role, item)) => {
-                let mut batch = vec![(role, item)];
+            Ok(first) => {
+                let mut batch = vec![first];
                 while batch.len() < 1024 {
                     match rx.try_recv() {
                         Ok(x) => batch.push(x),
                         Err(_) => break,
                     }
                 }
-                for (role, item) in batch {
+                for (role, got, item) in batch {
+                    let before = samples.len();
                     match item {
                         Ok(rec) => {
                             if let Some(w) = recorder.as_mut() {
@@ -170,12 +172,21 @@ pub fn run(
                             );
                         }
                     }
+                    if let Ok(x) = shared.exposition.lock() {
+                        for s in &samples[before..] {
+                            x.sample(s);
+                        }
+                        let d = got.elapsed();
+                        x.ingest(d.as_secs_f64());
+                        let _ = ingest.record(d.as_nanos() as u64);
+                    }
                 }
             }
             Err(RecvTimeoutError::Timeout) => {}
             Err(RecvTimeoutError::Disconnected) => break,
         }
         let now = wall_now();
+        let from_messages = samples.len();
         for r in Role::ALL {
             let d = dropped[r.index()].load(Ordering::Relaxed);
             for _ in dropped_seen[r.index()]..d {
@@ -200,7 +211,7 @@ pub fn run(
                 .collect();
             monitor.inject(&mut samples, &stale, &mut events);
         }
-        handle(&samples, &events, shared, &alert_pub, journal.as_mut());
+        handle(&samples[from_messages..], &events, shared, &alert_pub, journal.as_mut());
         samples.clear();
         events.clear();
         if refresh_due {
@@ -225,7 +236,7 @@ pub fn run(
 
     // The one shutdown path: drain what arrived, finish, flush, report.
     drop(subs);
-    while let Ok((role, Ok(rec))) = rx.try_recv() {
+    while let Ok((role, _, Ok(rec))) = rx.try_recv() {
         if let Some(w) = recorder.as_mut() {
             let _ = w.write(&rec);
         }
@@ -240,6 +251,15 @@ pub fn run(
     }
     if let Some(w) = recorder.as_mut() {
         let _ = w.flush();
+    }
+    if !ingest.is_empty() {
+        let (p50, p99) =
+            (ingest.value_at_quantile(0.5) as f64 / 1e3, ingest.value_at_quantile(0.99) as f64 / 1e3);
+        tracing::info!(messages = ingest.len(), p50_us = p50, p99_us = p99, "receipt to gauge update");
+        eprintln!(
+            "plumbline: receipt to gauge update over {} messages: p50 {p50:.1} us, p99 {p99:.1} us",
+            ingest.len()
+        );
     }
     let inputs = RunInputs {
         input: "live".into(),
@@ -262,10 +282,9 @@ fn handle(
     journal: Option<&mut std::fs::File>,
 ) {
     if let Ok(x) = shared.exposition.lock() {
+        // Samples of the clock (timeouts, staleness); message samples were set on arrival.
         for s in samples {
-            if let Some(r) = s.role {
-                x.observe(s.metric, r, s.value);
-            }
+            x.sample(s);
         }
         for e in events {
             x.alert(e);
