@@ -124,14 +124,16 @@ pub fn run(
         {
             break;
         }
-        match rx.recv_timeout(tick) {
+        let got = rx.recv_timeout(tick);
+        // The clock reading comes before draining the queue: every message stamped on
+        // arrival at or before `now` is then in the queue and is processed before waiting
+        // steps time out at `now`, which is the order replay sees.
+        let now = wall_now();
+        match got {
             Ok(first) => {
                 let mut batch = vec![first];
-                while batch.len() < 1024 {
-                    match rx.try_recv() {
-                        Ok(x) => batch.push(x),
-                        Err(_) => break,
-                    }
+                while let Ok(x) = rx.try_recv() {
+                    batch.push(x);
                 }
                 for (role, got, item) in batch {
                     let before = samples.len();
@@ -185,7 +187,6 @@ pub fn run(
             Err(RecvTimeoutError::Timeout) => {}
             Err(RecvTimeoutError::Disconnected) => break,
         }
-        let now = wall_now();
         let from_messages = samples.len();
         for r in Role::ALL {
             let d = dropped[r.index()].load(Ordering::Relaxed);
