@@ -40,10 +40,16 @@ struct Watcher {
 
 impl Watcher {
     fn start(zport: u16, extra: &[&str]) -> Watcher {
+        Watcher::spawn(&[], "watch", zport, extra)
+    }
+
+    /// Runs `plumbline [global..] <command> --listen .. [extra..]` and waits for /readyz.
+    fn spawn(global: &[&str], command: &str, zport: u16, extra: &[&str]) -> Watcher {
         let http = free_port();
         let listen = format!("tcp/127.0.0.1:{zport}");
         let set = format!("http.listen=127.0.0.1:{http}");
-        let mut args = vec!["--set", &set, "watch", "--listen", &listen, "--no-multicast"];
+        let mut args: Vec<&str> = global.to_vec();
+        args.extend(["--set", &set, command, "--listen", &listen, "--no-multicast"]);
         args.extend_from_slice(extra);
         let child =
             bin().args(&args).stdout(Stdio::null()).stderr(Stdio::null()).spawn().expect("watcher starts");
@@ -55,7 +61,7 @@ impl Watcher {
             }
             std::thread::sleep(Duration::from_millis(100));
         }
-        panic!("watcher not ready in 20 s");
+        panic!("{command} not ready in 20 s");
     }
 
     fn signal(&mut self, sig: &str) {
@@ -255,21 +261,13 @@ fn live_alerts_match_replay_and_arrive_on_the_alerts_key() {
     let dir = tempfile::tempdir().unwrap();
     let journal = dir.path().join("alerts.jsonl");
     let zport = free_port();
-    let http = free_port();
-    let listen = format!("tcp/127.0.0.1:{zport}");
-    let set = format!("http.listen=127.0.0.1:{http}");
-    let mut child = bin()
-        .args(["--config", "config/rig.toml", "--set", &set, "watch", "--listen", &listen, "--no-multicast"])
-        .args(["--journal", journal.to_str().unwrap()])
-        .stdout(Stdio::null())
-        .stderr(Stdio::null())
-        .spawn()
-        .unwrap();
-    let t0 = Instant::now();
-    while !http_get(http, "/readyz").is_some_and(|r| r.starts_with("HTTP/1.1 200")) {
-        assert!(t0.elapsed() < Duration::from_secs(20));
-        std::thread::sleep(Duration::from_millis(100));
-    }
+    let mut w = Watcher::spawn(
+        &["--config", "config/rig.toml"],
+        "watch",
+        zport,
+        &["--journal", journal.to_str().unwrap()],
+    );
+    let http = w.http;
     // A subscriber of our own on the alerts key, through the watcher's endpoint.
     let mut zc = zenoh::Config::default();
     zc.insert_json5("connect/endpoints", &format!("[\"tcp/127.0.0.1:{zport}\"]")).unwrap();
@@ -290,8 +288,8 @@ fn live_alerts_match_replay_and_arrive_on_the_alerts_key() {
     let m = http_get(http, "/metrics").unwrap();
     assert!(m.contains("plumbline_alerts_total{"), "alerts are counted in /metrics");
     assert!(m.contains("plumbline_alert_active{"));
-    Command::new("kill").args(["-TERM", &child.id().to_string()]).status().unwrap();
-    let _ = child.wait();
+    w.signal("-TERM");
+    w.wait();
     // Replay with the same profile: the same events for rules that do not read arrival times.
     let cfg = Config::load(Some(("rig", include_str!("../config/rig.toml"))), &[]).unwrap();
     let rep = replay(

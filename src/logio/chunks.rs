@@ -44,52 +44,60 @@ pub enum Frame {
     Tail(Tail),
 }
 
-/// Reads up to `want` more bytes onto `buf`, feeding them to `hash` when given.
-fn fill(
-    r: &mut impl Read,
-    buf: &mut Vec<u8>,
-    want: usize,
-    hash: &mut Option<Sha256>,
-) -> std::io::Result<usize> {
-    let start = buf.len();
-    buf.resize(start + want, 0);
-    let mut got = 0;
-    while got < want {
-        match r.read(&mut buf[start + got..]) {
-            Ok(0) => break,
-            Ok(n) => got += n,
-            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-            Err(e) => {
-                buf.truncate(start + got);
-                return Err(e);
-            }
-        }
-    }
-    buf.truncate(start + got);
-    if let Some(h) = hash {
-        h.update(&buf[start..]);
-    }
-    Ok(got)
+/// A reader that can hash what passes through it.
+struct Hashed<R> {
+    r: R,
+    hash: Option<Sha256>,
 }
 
-fn finish(r: &mut impl Read, hash: Option<Sha256>) -> std::io::Result<Option<String>> {
-    let Some(mut h) = hash else { return Ok(None) };
-    let mut buf = vec![0u8; BLOCK];
-    loop {
-        match r.read(&mut buf) {
-            Ok(0) => break,
-            Ok(n) => h.update(&buf[..n]),
-            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-            Err(e) => return Err(e),
+impl<R: Read> Hashed<R> {
+    /// Reads up to `want` more bytes onto `buf`, hashing them when hashing.
+    fn fill(&mut self, buf: &mut Vec<u8>, want: usize) -> std::io::Result<usize> {
+        let start = buf.len();
+        buf.resize(start + want, 0);
+        let mut got = 0;
+        while got < want {
+            match self.r.read(&mut buf[start + got..]) {
+                Ok(0) => break,
+                Ok(n) => got += n,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => {
+                    buf.truncate(start + got);
+                    return Err(e);
+                }
+            }
         }
+        buf.truncate(start + got);
+        if let Some(h) = self.hash.as_mut() {
+            h.update(&buf[start..]);
+        }
+        Ok(got)
     }
-    Ok(Some(format!("sha256:{:x}", h.finalize())))
+
+    fn start_hash(&mut self, prefix: &[u8]) {
+        let mut h = Sha256::new();
+        h.update(prefix);
+        self.hash = Some(h);
+    }
+
+    /// Reads and hashes the rest, then returns the digest, `sha256:<hex>`.
+    fn finish(mut self) -> std::io::Result<Option<String>> {
+        let Some(mut h) = self.hash.take() else { return Ok(None) };
+        let mut buf = Vec::with_capacity(BLOCK);
+        loop {
+            buf.clear();
+            if self.fill(&mut buf, BLOCK)? == 0 {
+                break;
+            }
+            h.update(&buf);
+        }
+        Ok(Some(format!("sha256:{:x}", h.finalize())))
+    }
 }
 
 /// Frames JSON Lines.
 pub struct LineFramer<R> {
-    r: R,
-    hash: Option<Sha256>,
+    src: Hashed<R>,
     carry: Vec<u8>,
     line: u64,
     off: u64,
@@ -99,28 +107,26 @@ pub struct LineFramer<R> {
 impl<R: Read> LineFramer<R> {
     /// Frames `r` from its start.
     pub fn new(r: R) -> Self {
-        LineFramer { r, hash: None, carry: Vec::new(), line: 0, off: 0, eof: false }
+        LineFramer { src: Hashed { r, hash: None }, carry: Vec::new(), line: 0, off: 0, eof: false }
     }
 
     /// Also hashes every byte read (SHA-256), starting with `prefix` (bytes already read).
     pub fn hashing(mut self, prefix: &[u8]) -> Self {
-        let mut h = Sha256::new();
-        h.update(prefix);
-        self.hash = Some(h);
+        self.src.start_hash(prefix);
         self
     }
 
     /// Reads and hashes the rest of the file and returns the digest of the whole file,
     /// `sha256:<hex>` (what `sha256sum` prints); `None` when not hashing.
-    pub fn finish_digest(mut self) -> std::io::Result<Option<String>> {
-        finish(&mut self.r, self.hash.take())
+    pub fn finish_digest(self) -> std::io::Result<Option<String>> {
+        self.src.finish()
     }
 
     /// The next frame, or `None` at the end.
     pub fn next_frame(&mut self) -> std::io::Result<Option<Frame>> {
         loop {
             let searched = self.carry.len();
-            if !self.eof && fill(&mut self.r, &mut self.carry, BLOCK, &mut self.hash)? == 0 {
+            if !self.eof && self.src.fill(&mut self.carry, BLOCK)? == 0 {
                 self.eof = true;
             }
             // The carried bytes hold no newline, so only the new block is searched.
@@ -151,7 +157,7 @@ impl<R: Read> LineFramer<R> {
         self.off += self.carry.len() as u64;
         self.carry.clear();
         loop {
-            if fill(&mut self.r, &mut self.carry, BLOCK, &mut self.hash)? == 0 {
+            if self.src.fill(&mut self.carry, BLOCK)? == 0 {
                 self.eof = true;
                 self.off += self.carry.len() as u64;
                 self.carry.clear();
@@ -172,8 +178,7 @@ impl<R: Read> LineFramer<R> {
 
 /// Frames binary records (after the header).
 pub struct RecordFramer<R> {
-    r: R,
-    hash: Option<Sha256>,
+    src: Hashed<R>,
     carry: Vec<u8>,
     off: u64,
     eof: bool,
@@ -184,21 +189,26 @@ pub struct RecordFramer<R> {
 impl<R: Read> RecordFramer<R> {
     /// Frames records starting at file offset `off`.
     pub fn new(r: R, off: u64, max_record: u32) -> Self {
-        RecordFramer { r, hash: None, carry: Vec::new(), off, eof: false, done: false, max_record }
+        RecordFramer {
+            src: Hashed { r, hash: None },
+            carry: Vec::new(),
+            off,
+            eof: false,
+            done: false,
+            max_record,
+        }
     }
 
     /// Also hashes every byte read (SHA-256), starting with `prefix` (the header bytes).
     pub fn hashing(mut self, prefix: &[u8]) -> Self {
-        let mut h = Sha256::new();
-        h.update(prefix);
-        self.hash = Some(h);
+        self.src.start_hash(prefix);
         self
     }
 
     /// Reads and hashes the rest of the file and returns the digest of the whole file,
     /// `sha256:<hex>` (what `sha256sum` prints); `None` when not hashing.
-    pub fn finish_digest(mut self) -> std::io::Result<Option<String>> {
-        finish(&mut self.r, self.hash.take())
+    pub fn finish_digest(self) -> std::io::Result<Option<String>> {
+        self.src.finish()
     }
 
     /// The next frame, or `None` at the end.
@@ -207,7 +217,7 @@ impl<R: Read> RecordFramer<R> {
             return Ok(None);
         }
         loop {
-            if !self.eof && fill(&mut self.r, &mut self.carry, BLOCK, &mut self.hash)? == 0 {
+            if !self.eof && self.src.fill(&mut self.carry, BLOCK)? == 0 {
                 self.eof = true;
             }
             let mut pos = 0usize;
