@@ -39,7 +39,11 @@ pub fn run(cfg: &Config, o: LoadOptions, session: &zenoh::Session) -> Result<u64
         .iter()
         .map(|r| {
             let enc = if o.binary { postcard_encoding() } else { Encoding::APPLICATION_JSON };
-            session.declare_publisher(cfg.key_of(*r).to_string()).encoding(enc).wait()
+            session
+                .declare_publisher(cfg.key_of(*r).to_string())
+                .encoding(enc)
+                .congestion_control(zenoh::qos::CongestionControl::Block)
+                .wait()
         })
         .collect::<Result<_, _>>()
         .map_err(|e| format!("declaring publishers: {e}"))?;

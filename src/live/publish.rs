@@ -6,6 +6,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
 
 use zenoh::bytes::Encoding;
+use zenoh::qos::CongestionControl;
 use zenoh::Wait;
 
 use super::zenoh_io::{postcard_encoding, wall_now};
@@ -24,12 +25,21 @@ pub struct PublishOptions {
     pub restamp: bool,
 }
 
-/// Publishes one record.
+/// Publishes one record. Congestion blocks rather than drops, so a replayed log arrives
+/// whole.
 pub fn put(session: &zenoh::Session, rec: &LogRecord, binary: bool) -> Result<(), String> {
     let r = if binary {
-        session.put(rec.key.as_str(), rec.msg.to_postcard()).encoding(postcard_encoding()).wait()
+        session
+            .put(rec.key.as_str(), rec.msg.to_postcard())
+            .encoding(postcard_encoding())
+            .congestion_control(CongestionControl::Block)
+            .wait()
     } else {
-        session.put(rec.key.as_str(), rec.msg.to_json()).encoding(Encoding::APPLICATION_JSON).wait()
+        session
+            .put(rec.key.as_str(), rec.msg.to_json())
+            .encoding(Encoding::APPLICATION_JSON)
+            .congestion_control(CongestionControl::Block)
+            .wait()
     };
     r.map_err(|e| format!("publishing on {}: {e}", rec.key))
 }
