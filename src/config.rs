@@ -493,7 +493,10 @@ impl Config {
         }
         let mut rules = Vec::new();
         for (i, r) in raw.rule.iter().enumerate() {
-            let rule = build_rule(source, i, r, &mut windows, &mut window_labels)?;
+            let rule = build_rule(source, i, r, &mut windows, &mut window_labels).map_err(|mut e| {
+                e.expected = format!("rule \"{}\": {}", r.name, e.expected);
+                e
+            })?;
             if rules.iter().any(|q: &Rule| q.name == rule.name) {
                 let why = format!("a unique name; \"{}\" is used twice", rule.name);
                 return Err(err(source, &format!("rule[{i}].name"), why));
@@ -774,6 +777,7 @@ mod tests {
         let bad = ok.replace("mean", "median");
         let e = Config::load(Some(("r.toml", &bad)), &[]).unwrap_err();
         assert_eq!(e.key, "rule[0].stat");
+        assert!(e.to_string().contains("rule \"g\""), "{e}");
         let bad = ok.replace("above = 1.0", "above = 1.0\nbelow = 0.5");
         assert_eq!(Config::load(Some(("r.toml", &bad)), &[]).unwrap_err().key, "rule[0].above");
         let bad = ok.replace("gospa", "gospa_total");
