@@ -5,6 +5,7 @@
 //! - [`config`]: two-stage configuration (no I/O; the caller passes file text);
 //! - [`core`]: time alignment, assignment and the evaluation engine (no I/O, no clock);
 //! - [`geometry`]: footprint, obstacles, distances, spatial index (pure);
+//! - [`inference`]: Clopper-Pearson and Kolmogorov-Smirnov across runs (pure);
 //! - [`metrics`]: one module per metric family (pure);
 //! - [`stats`]: run statistics with bounded memory (pure);
 //! - [`windows`]: sliding event-time windows with O(1) updates (pure);
@@ -22,6 +23,7 @@ pub mod cli;
 pub mod config;
 pub mod core;
 pub mod geometry;
+pub mod inference;
 #[cfg(feature = "live")]
 pub mod live;
 pub mod logio;

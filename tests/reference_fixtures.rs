@@ -88,3 +88,34 @@ fn exact_percentiles_match_numpy() {
         }
     }
 }
+
+/// Source: scipy.stats.beta.ppf(0.025, x, n - x + 1) and ppf(0.975, x + 1, n - x).
+#[test]
+fn clopper_pearson_matches_scipy_beta_quantiles() {
+    for case in load("clopper_pearson.json") {
+        let (x, n) = (case["x"].as_u64().unwrap(), case["n"].as_u64().unwrap());
+        let r = plumbline::inference::clopper_pearson(x, n, 0.05).unwrap();
+        let (wl, wh) = (f(&case["lower"]), f(&case["upper"]));
+        assert!((r.lower - wl).abs() < 1e-7, "{x}/{n}: lower {} vs {wl}", r.lower);
+        assert!((r.upper - wh).abs() < 1e-7, "{x}/{n}: upper {} vs {wh}", r.upper);
+    }
+}
+
+/// Source: scipy.stats.ks_2samp(a, b, method="exact").
+#[test]
+fn ks_matches_scipy_ks_2samp() {
+    for (k, case) in load("ks.json").iter().enumerate() {
+        let a: Vec<f64> = case["a"].as_array().unwrap().iter().map(f).collect();
+        let b: Vec<f64> = case["b"].as_array().unwrap().iter().map(f).collect();
+        let r = plumbline::inference::ks_2samp(&a, &b).unwrap();
+        assert!(r.exact);
+        assert!(
+            (r.statistic - f(&case["statistic"])).abs() < 1e-12,
+            "case {k}: D {} vs {}",
+            r.statistic,
+            case["statistic"]
+        );
+        let want = f(&case["p_value"]);
+        assert!((r.p_value - want).abs() < 1e-9 + 1e-6 * want, "case {k}: p {} vs scipy {want}", r.p_value);
+    }
+}

@@ -13,7 +13,8 @@ Sources:
   2008) on top of scipy's assignment: cost min(d, c)^p, pairs at d >= c unassigned;
 - scipy.stats.chi2.ppf for the NEES consistency interval;
 - numpy.percentile (default "linear" method);
-- shapely distances between the ego footprint rectangle and circles, boxes and polygons.
+- shapely distances between the ego footprint rectangle and circles, boxes and polygons;
+- scipy.stats.beta quantiles (Clopper-Pearson) and scipy.stats.ks_2samp (exact mode).
 """
 import json
 import math
@@ -142,11 +143,36 @@ def clearance_cases():
     return out
 
 
+def clopper_pearson_cases():
+    from scipy.stats import beta
+    out = []
+    for x, n in [(0, 10), (1, 10), (5, 10), (10, 10), (0, 200), (3, 200), (17, 200), (199, 200), (42, 1000), (0, 5000)]:
+        lo = 0.0 if x == 0 else float(beta.ppf(0.025, x, n - x + 1))
+        hi = 1.0 if x == n else float(beta.ppf(0.975, x + 1, n - x))
+        out.append({"x": x, "n": n, "lower": lo, "upper": hi})
+    return out
+
+
+def ks_cases():
+    from scipy.stats import ks_2samp
+    out = []
+    for n1, n2, shift, ties in [(5, 7, 0.0, False), (20, 20, 0.5, False), (50, 80, 0.2, False), (100, 150, 0.0, True),
+                                (300, 200, 0.3, False), (600, 1200, 0.1, False), (1000, 1000, 0.05, True)]:
+        a = rng.normal(0, 1, n1)
+        b = rng.normal(shift, 1, n2)
+        if ties:
+            a, b = np.round(a, 1), np.round(b, 1)
+        r = ks_2samp(a, b, method="exact")
+        out.append({"a": a.tolist(), "b": b.tolist(), "statistic": float(r.statistic), "p_value": float(r.pvalue)})
+    return out
+
+
 def main():
     os.makedirs(OUT, exist_ok=True)
     for name, data in [("lsap.json", lsap_cases()), ("gospa_ospa.json", gospa_cases()),
                        ("chi2.json", chi2_cases()), ("percentiles.json", percentile_cases()),
-                       ("clearance.json", clearance_cases())]:
+                       ("clearance.json", clearance_cases()), ("clopper_pearson.json", clopper_pearson_cases()),
+                       ("ks.json", ks_cases())]:
         with open(os.path.join(OUT, name), "w") as f:
             json.dump(data, f, indent=None, separators=(",", ":"))
             f.write("\n")
