@@ -84,6 +84,25 @@ pub struct RawConfig {
     /// `[[rule]]`
     #[serde(default)]
     pub rule: Vec<RawRule>,
+    /// `[[gate]]`
+    #[serde(default)]
+    pub gate: Vec<RawGate>,
+}
+
+/// One `[[gate]]`: a gated statistic.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawGate {
+    /// metric name
+    pub metric: String,
+    /// statistic (default mean)
+    pub stat: Option<String>,
+    /// "higher" or "lower": which way is worse
+    pub worse: String,
+    /// absolute tolerance
+    pub abs: Option<f64>,
+    /// relative tolerance
+    pub rel: Option<f64>,
 }
 
 /// `[clearance]`
@@ -295,6 +314,8 @@ pub struct Config {
     pub zenoh: ZenohParams,
     /// live monitor settings
     pub live: LiveParams,
+    /// gated statistics (empty: the defaults of `gate::default_tolerances`)
+    pub gate: Vec<crate::gate::Tolerance>,
 }
 
 /// Zenoh session settings.
@@ -491,6 +512,29 @@ impl Config {
                 "a duration of at most 100ms (the recorder's crash-safety bound)",
             ));
         }
+        let mut gate = Vec::new();
+        for (i, g) in raw.gate.iter().enumerate() {
+            let key = |k: &str| format!("gate[{i}].{k}");
+            if Metric::from_name(&g.metric).is_none() {
+                return Err(err(source, &key("metric"), format!("a metric name; found \"{}\"", g.metric)));
+            }
+            let stat = g.stat.clone().unwrap_or_else(|| "mean".into());
+            if !["count", "mean", "min", "max", "p50", "p95", "p99", "sum"].contains(&stat.as_str()) {
+                return Err(err(source, &key("stat"), "one of count, mean, min, max, p50, p95, p99, sum"));
+            }
+            let worse = match g.worse.as_str() {
+                "higher" => crate::gate::Worse::Higher,
+                "lower" => crate::gate::Worse::Lower,
+                w => {
+                    return Err(err(source, &key("worse"), format!("\"higher\" or \"lower\", found \"{w}\"")))
+                }
+            };
+            let (abs, rel) = (g.abs.unwrap_or(0.0), g.rel.unwrap_or(0.0));
+            if !(abs.is_finite() && abs >= 0.0 && rel.is_finite() && rel >= 0.0) {
+                return Err(err(source, &key("abs"), "tolerances >= 0"));
+            }
+            gate.push(crate::gate::Tolerance { metric: g.metric.clone(), stat, worse, abs, rel });
+        }
         let mut rules = Vec::new();
         for (i, r) in raw.rule.iter().enumerate() {
             let rule = build_rule(source, i, r, &mut windows, &mut window_labels).map_err(|mut e| {
@@ -519,6 +563,7 @@ impl Config {
             rules,
             zenoh,
             live,
+            gate,
         })
     }
 

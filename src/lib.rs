@@ -4,6 +4,7 @@
 //! - [`msg`]: the messages of the interchange contract and their validation (no I/O);
 //! - [`config`]: two-stage configuration (no I/O; the caller passes file text);
 //! - [`core`]: time alignment, assignment and the evaluation engine (no I/O, no clock);
+//! - [`gate`]: baseline comparison and JUnit XML (pure);
 //! - [`geometry`]: footprint, obstacles, distances, spatial index (pure);
 //! - [`inference`]: Clopper-Pearson and Kolmogorov-Smirnov across runs (pure);
 //! - [`metrics`]: one module per metric family (pure);
@@ -22,6 +23,7 @@
 pub mod cli;
 pub mod config;
 pub mod core;
+pub mod gate;
 pub mod geometry;
 pub mod inference;
 #[cfg(feature = "live")]

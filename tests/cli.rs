@@ -163,3 +163,74 @@ fn rig_profile_raises_alerts_journals_them_and_exits_1_on_a_critical_failure() {
         plumbline(&["--config", "config/field.toml", "replay", "replay-logs/campus-loop.jsonl", "--quiet"]);
     assert!(matches!(out.status.code(), Some(0) | Some(1)), "{}", text(&out.stderr));
 }
+
+#[test]
+fn gate_fails_on_a_planted_regression_and_passes_without_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let base = dir.path().join("base.json");
+    let junit = dir.path().join("gate.xml");
+    let worse = dir.path().join("worse.jsonl");
+    assert!(plumbline(&[
+        "replay",
+        "replay-logs/campus-loop.jsonl",
+        "--quiet",
+        "--report",
+        base.to_str().unwrap()
+    ])
+    .status
+    .success());
+    let out = plumbline(&[
+        "gate",
+        "--baseline",
+        base.to_str().unwrap(),
+        "replay-logs/campus-loop.jsonl",
+        "--junit",
+        junit.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out.stdout));
+    let x = std::fs::read_to_string(&junit).unwrap();
+    assert!(x.contains("<testsuite name=\"plumbline-gate\"") && x.contains("failures=\"0\""), "{x}");
+    // Plant a regression: the same run with a noisier tracker.
+    let noisy = ["scenario", "--out", worse.to_str().unwrap(), "--seed", "1", "--noise", "0.3"];
+    assert!(plumbline(&noisy).status.success());
+    let out = plumbline(&[
+        "gate",
+        "--baseline",
+        base.to_str().unwrap(),
+        worse.to_str().unwrap(),
+        "--junit",
+        junit.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    assert!(text(&out.stdout).contains("gospa") && text(&out.stdout).contains("regressed"));
+    assert!(std::fs::read_to_string(&junit).unwrap().contains("type=\"regression\""));
+}
+
+#[test]
+fn campaign_over_a_seeded_family_reports_rates_with_intervals() {
+    let dir = tempfile::tempdir().unwrap();
+    let fam = dir.path().join("fam");
+    let agg = dir.path().join("agg.json");
+    let gen = ["scenario", "--runs", "6", "--seed", "3", "--duration", "20", "--out", fam.to_str().unwrap()];
+    assert!(plumbline(&gen).status.success());
+    let out = plumbline(&[
+        "--config",
+        "config/rig.toml",
+        "campaign",
+        fam.to_str().unwrap(),
+        "--jobs",
+        "2",
+        "--report",
+        agg.to_str().unwrap(),
+    ]);
+    assert!(out.status.success(), "{}", text(&out.stderr));
+    let a: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&agg).unwrap()).unwrap();
+    assert_eq!(a["runs"], 6);
+    let contact = a["rules"].as_array().unwrap().iter().find(|r| r["rule"] == "contact").unwrap();
+    let rate = &contact["failure_rate"];
+    // Every run has the scripted contact: 6 of 6, Clopper-Pearson lower bound (0.025)^(1/6).
+    assert_eq!(rate["failures"], 6);
+    assert!((rate["lower"].as_f64().unwrap() - 0.025f64.powf(1.0 / 6.0)).abs() < 1e-6);
+    assert_eq!(rate["upper"], 1.0);
+    assert!(a["metrics"]["gospa"]["runs"] == 6);
+}

@@ -172,10 +172,7 @@ pub struct DemoArgs {
     pub session: SessionArgs,
 }
 
-fn fail(cmd: &str, e: impl std::fmt::Display) -> u8 {
-    eprintln!("plumbline {cmd}: {e}");
-    super::EXIT_INPUT
-}
+use super::fail;
 
 fn serve(cfg: &Config, stop: &Arc<AtomicBool>) -> Result<(Arc<Shared>, http::Server), String> {
     let shared =

@@ -1,6 +1,7 @@
 //! The command line: flags, glue and user-facing messages. Each command lives in its own
 //! file; metric logic stays in the library.
 
+mod campaign;
 mod convert;
 mod journal;
 #[cfg(feature = "live")]
@@ -47,8 +48,14 @@ pub enum Command {
     Replay(replay::Args),
     /// Convert a log between JSON Lines (.jsonl) and binary (.plb).
     Convert(convert::Args),
-    /// Generate a demo-scenario log (the Aldermoor campus shuttle).
+    /// Generate a demo-scenario log (the Aldermoor campus shuttle), or a seeded family of them.
     Scenario(scenario::Args),
+    /// Compare a run with a baseline report under tolerances; JUnit XML for CI.
+    Gate(campaign::GateArgs),
+    /// Replay many logs in parallel and aggregate pass rates with confidence bounds.
+    Campaign(campaign::CampaignArgs),
+    /// Does the simulation represent the field? Two-sample KS per metric.
+    Compare(campaign::CompareArgs),
     /// Watch a live stack over zenoh: metrics on HTTP, alerts, optional recording.
     #[cfg(feature = "live")]
     Watch(live::WatchArgs),
@@ -80,6 +87,9 @@ pub fn run(cli: Cli) -> ExitCode {
         Command::Replay(a) => replay::run(&cfg, a),
         Command::Convert(a) => convert::run(&cfg, a),
         Command::Scenario(a) => scenario::run(&cfg, a),
+        Command::Gate(a) => campaign::gate_cmd(&cfg, a),
+        Command::Campaign(a) => campaign::campaign_cmd(&cfg, a),
+        Command::Compare(a) => campaign::compare_cmd(&cfg, a),
         #[cfg(feature = "live")]
         Command::Watch(a) => live::watch_cmd(&cfg, a),
         #[cfg(feature = "live")]
@@ -92,6 +102,12 @@ pub fn run(cli: Cli) -> ExitCode {
         Command::Load(a) => live::load_cmd(&cfg, a),
     };
     ExitCode::from(code)
+}
+
+/// Prints a command's error and returns the input/config exit code.
+pub(crate) fn fail(cmd: &str, e: impl std::fmt::Display) -> u8 {
+    eprintln!("plumbline {cmd}: {e}");
+    EXIT_INPUT
 }
 
 /// Loads the config: `--config`, else `config/plumbline.toml` if present, else defaults;

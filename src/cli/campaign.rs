@@ -1,0 +1,444 @@
+//! `gate`, `campaign` and `compare`: judging runs against a baseline, many runs together,
+//! and field runs against their simulated twins.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+use serde::Serialize;
+use serde_json::Value;
+
+use crate::config::Config;
+use crate::core::Sample;
+use crate::gate::{self, Row};
+use crate::inference::{clopper_pearson, ks_2samp, Ks, Rate};
+use crate::metrics::Metric;
+use crate::replay::{replay, ReplayOptions};
+use crate::report::Report;
+use crate::rules::{critical_failed, AlertEvent};
+use crate::stats::{quantile_sorted, Summary};
+
+/// `gate` arguments.
+#[derive(Debug, clap::Args)]
+pub struct GateArgs {
+    /// The baseline report (JSON).
+    #[arg(long, value_name = "FILE")]
+    pub baseline: PathBuf,
+    /// A log to replay as the candidate.
+    pub log: Option<PathBuf>,
+    /// A candidate report instead of a log.
+    #[arg(long, value_name = "FILE", conflicts_with = "log")]
+    pub candidate: Option<PathBuf>,
+    /// Write JUnit XML here.
+    #[arg(long, value_name = "FILE")]
+    pub junit: Option<PathBuf>,
+}
+
+fn read_json(p: &Path) -> Result<Value, String> {
+    let t = std::fs::read_to_string(p).map_err(|e| format!("{}: {e}", p.display()))?;
+    serde_json::from_str(&t).map_err(|e| format!("{}: not a report: {e}", p.display()))
+}
+
+fn replay_report(cfg: &Config, log: &Path) -> Result<Report, String> {
+    let opts = ReplayOptions { series: None, progress: &|_| {}, on_samples: None };
+    replay(cfg, log, opts).map(|r| r.report).map_err(|e| e.to_string())
+}
+
+/// Runs `gate`.
+pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
+    let base = match read_json(&a.baseline) {
+        Ok(v) => v,
+        Err(e) => return super::fail("gate", e),
+    };
+    let cand = match (&a.log, &a.candidate) {
+        (Some(log), _) => match replay_report(cfg, log) {
+            Ok(r) => serde_json::to_value(&r).unwrap_or_default(),
+            Err(e) => return super::fail("gate", e),
+        },
+        (None, Some(p)) => match read_json(p) {
+            Ok(v) => v,
+            Err(e) => return super::fail("gate", e),
+        },
+        (None, None) => return super::fail("gate", "give a LOG or --candidate FILE"),
+    };
+    let tol = if cfg.gate.is_empty() { gate::default_tolerances(&base, &cand) } else { cfg.gate.clone() };
+    let rows = gate::compare(&base, &cand, &tol);
+    print!("{}", gate_table(&rows));
+    if let Some(p) = &a.junit {
+        if let Err(e) = std::fs::write(p, gate::junit(&rows, &cand)) {
+            return super::fail("gate", format!("{}: {e}", p.display()));
+        }
+    }
+    let regressed = rows.iter().filter(|r| r.status == "regressed").count();
+    let critical = cand
+        .get("verdicts")
+        .and_then(Value::as_array)
+        .is_some_and(|v| v.iter().any(|v| v["verdict"] == "fail" && v["severity"] == "critical"));
+    println!("{regressed} regression(s){}", if critical { ", and a critical rule failed" } else { "" });
+    if regressed > 0 || critical {
+        super::EXIT_FAIL
+    } else {
+        super::EXIT_OK
+    }
+}
+
+fn gate_table(rows: &[Row]) -> String {
+    let f = |x: Option<f64>| x.map(|v| format!("{v:.5}")).unwrap_or_else(|| "-".into());
+    let mut s = format!(
+        "{:<30} {:<5} {:>12} {:>12} {:>10}  {}\n",
+        "metric", "stat", "baseline", "candidate", "allowed", "status"
+    );
+    for r in rows {
+        s += &format!(
+            "{:<30} {:<5} {:>12} {:>12} {:>10.5}  {}\n",
+            r.metric,
+            r.stat,
+            f(r.baseline),
+            f(r.candidate),
+            r.allowed,
+            r.status
+        );
+    }
+    s
+}
+
+/// `campaign` arguments.
+#[derive(Debug, clap::Args)]
+pub struct CampaignArgs {
+    /// A folder of logs, or a pattern with `*` in the file name (e.g. runs/run-*.plb).
+    pub logs: String,
+    /// Parallel replays.
+    #[arg(long, default_value_t = 2)]
+    pub jobs: usize,
+    /// Write the aggregate report here.
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+    /// Write each run's report into this folder.
+    #[arg(long, value_name = "DIR")]
+    pub out_dir: Option<PathBuf>,
+}
+
+/// Expands a folder or a `*` pattern into sorted log paths.
+pub fn expand(pattern: &str) -> Result<Vec<PathBuf>, String> {
+    let p = Path::new(pattern);
+    let (dir, pat) = if p.is_dir() {
+        (p.to_path_buf(), "*".to_string())
+    } else {
+        let dir = p.parent().filter(|d| !d.as_os_str().is_empty()).unwrap_or(Path::new(".")).to_path_buf();
+        (dir, p.file_name().and_then(|f| f.to_str()).unwrap_or("*").to_string())
+    };
+    let (pre, post) = pat.split_once('*').unwrap_or((pat.as_str(), ""));
+    let mut out: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .map_err(|e| format!("{}: {e}", dir.display()))?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|q| {
+            let name = q.file_name().and_then(|f| f.to_str()).unwrap_or("");
+            let log = name.ends_with(".jsonl") || name.ends_with(".plb");
+            log && name.starts_with(pre) && name.ends_with(post) && name.len() >= pre.len() + post.len()
+        })
+        .collect();
+    out.sort();
+    if out.is_empty() {
+        return Err(format!("{pattern}: no .jsonl or .plb logs"));
+    }
+    Ok(out)
+}
+
+/// One rule across the campaign.
+#[derive(Debug, Clone, Serialize)]
+pub struct RuleAggregate {
+    /// Rule name.
+    pub rule: String,
+    /// Severity.
+    pub severity: String,
+    /// Runs that failed, out of runs with data, with the 95% Clopper-Pearson interval on the
+    /// failure rate.
+    pub failure_rate: Option<Rate>,
+    /// Runs without data.
+    pub no_data: u64,
+    /// The worst runs (input, worst value), worst first.
+    pub worst_runs: Vec<(String, f64)>,
+    /// Every run's worst value (for the histogram).
+    pub worst_values: Vec<f64>,
+}
+
+/// A metric's per-run mean across the campaign.
+#[derive(Debug, Clone, Serialize)]
+pub struct MetricAggregate {
+    /// Runs with the metric.
+    pub runs: u64,
+    /// Mean of the per-run means.
+    pub mean: f64,
+    /// Smallest per-run mean.
+    pub min: f64,
+    /// Largest per-run mean.
+    pub max: f64,
+    /// Median per-run mean.
+    pub p50: f64,
+    /// 95th percentile of the per-run means.
+    pub p95: f64,
+}
+
+/// The aggregate report of a campaign.
+#[derive(Debug, Clone, Serialize)]
+pub struct CampaignReport {
+    /// Tool version.
+    pub version: &'static str,
+    /// Config digest.
+    pub config_digest: String,
+    /// Runs replayed.
+    pub runs: u64,
+    /// Runs that could not be read.
+    pub unreadable: Vec<String>,
+    /// Runs in which a critical rule failed.
+    pub critical_failures: u64,
+    /// Per rule.
+    pub rules: Vec<RuleAggregate>,
+    /// Per metric.
+    pub metrics: BTreeMap<String, MetricAggregate>,
+}
+
+/// Aggregates run reports (pure).
+pub fn aggregate(cfg: &Config, runs: &[Report], unreadable: Vec<String>) -> CampaignReport {
+    let mut rules = Vec::new();
+    for (i, r) in cfg.rules.iter().enumerate() {
+        let (mut fails, mut with_data, mut no_data) = (0u64, 0u64, 0u64);
+        let mut worst: Vec<(String, f64)> = Vec::new();
+        for rep in runs {
+            let Some(v) = rep.verdicts.get(i) else { continue };
+            match v.verdict {
+                "no_data" => no_data += 1,
+                "fail" => {
+                    fails += 1;
+                    with_data += 1
+                }
+                _ => with_data += 1,
+            }
+            if let Some(w) = v.worst {
+                worst.push((rep.input.clone(), w));
+            }
+        }
+        worst.sort_by(|a, b| if r.above { b.1.total_cmp(&a.1) } else { a.1.total_cmp(&b.1) });
+        let values = worst.iter().map(|w| w.1).collect();
+        worst.truncate(5);
+        rules.push(RuleAggregate {
+            rule: r.name.clone(),
+            severity: r.severity.name().into(),
+            failure_rate: clopper_pearson(fails, with_data, 0.05),
+            no_data,
+            worst_runs: worst,
+            worst_values: values,
+        });
+    }
+    let mut per: BTreeMap<String, Vec<f64>> = BTreeMap::new();
+    for rep in runs {
+        for (m, st) in &rep.metrics {
+            per.entry(m.to_string()).or_default().push(st.mean);
+        }
+    }
+    let metrics = per
+        .into_iter()
+        .map(|(m, mut v)| {
+            let mut s = Summary::new(usize::MAX, 3);
+            v.iter().for_each(|&x| s.add(x));
+            v.sort_by(f64::total_cmp);
+            let st = s.stats().expect("non-empty");
+            let agg = MetricAggregate {
+                runs: v.len() as u64,
+                mean: st.mean,
+                min: st.min,
+                max: st.max,
+                p50: quantile_sorted(&v, 0.5),
+                p95: quantile_sorted(&v, 0.95),
+            };
+            (m, agg)
+        })
+        .collect();
+    CampaignReport {
+        version: env!("CARGO_PKG_VERSION"),
+        config_digest: cfg.digest(),
+        runs: runs.len() as u64,
+        unreadable,
+        critical_failures: runs.iter().filter(|r| critical_failed(&r.verdicts)).count() as u64,
+        rules,
+        metrics,
+    }
+}
+
+/// Runs `campaign`.
+pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
+    let logs = match expand(&a.logs) {
+        Ok(l) => l,
+        Err(e) => return super::fail("campaign", e),
+    };
+    if let Some(d) = &a.out_dir {
+        if let Err(e) = std::fs::create_dir_all(d) {
+            return super::fail("campaign", format!("{}: {e}", d.display()));
+        }
+    }
+    let bar = indicatif::ProgressBar::with_draw_target(
+        Some(logs.len() as u64),
+        indicatif::ProgressDrawTarget::stderr(),
+    );
+    let pool = match rayon::ThreadPoolBuilder::new().num_threads(a.jobs.max(1)).build() {
+        Ok(p) => p,
+        Err(e) => return super::fail("campaign", e),
+    };
+    let results: Vec<Result<Report, String>> = pool.install(|| {
+        logs.par_iter()
+            .map(|log| {
+                let r = replay_report(cfg, log);
+                if let (Ok(rep), Some(d)) = (&r, &a.out_dir) {
+                    let name = log.file_stem().and_then(|s| s.to_str()).unwrap_or("run");
+                    let _ = std::fs::write(d.join(format!("{name}.report.json")), rep.to_json());
+                }
+                bar.inc(1);
+                r
+            })
+            .collect()
+    });
+    bar.finish_and_clear();
+    let mut runs = Vec::new();
+    let mut unreadable = Vec::new();
+    for (log, r) in logs.iter().zip(results) {
+        match r {
+            Ok(rep) => runs.push(rep),
+            Err(e) => {
+                eprintln!("plumbline campaign: {}: {e}", log.display());
+                unreadable.push(log.display().to_string());
+            }
+        }
+    }
+    let agg = aggregate(cfg, &runs, unreadable);
+    println!(
+        "campaign of {} runs ({} unreadable), {} with a critical failure",
+        agg.runs,
+        agg.unreadable.len(),
+        agg.critical_failures
+    );
+    println!("{:<28} {:<9} {:>9} {:>9} {:>22}", "rule", "severity", "failures", "rate", "95% interval (CP)");
+    for r in &agg.rules {
+        match &r.failure_rate {
+            Some(x) => println!(
+                "{:<28} {:<9} {:>4}/{:<4} {:>9.4} {:>10.4} .. {:<9.4}",
+                r.rule, r.severity, x.failures, x.runs, x.rate, x.lower, x.upper
+            ),
+            None => println!("{:<28} {:<9} {:>9}", r.rule, r.severity, "no data"),
+        }
+    }
+    if let Some(p) = &a.report {
+        let text = serde_json::to_string_pretty(&agg).unwrap_or_default();
+        if let Err(e) = std::fs::write(p, text) {
+            return super::fail("campaign", format!("{}: {e}", p.display()));
+        }
+    }
+    super::EXIT_OK
+}
+
+/// `compare` arguments.
+#[derive(Debug, clap::Args)]
+pub struct CompareArgs {
+    /// The field run (a log).
+    #[arg(long, value_name = "LOG")]
+    pub field: PathBuf,
+    /// Its simulated twins: a folder of logs or a `*` pattern.
+    #[arg(long, value_name = "DIR")]
+    pub sim: String,
+    /// Metrics to compare (repeatable); default gospa, ospa, ego_position_error_m, clearance_m.
+    #[arg(long = "metric")]
+    pub metrics: Vec<String>,
+    /// Significance level.
+    #[arg(long, default_value_t = 0.05)]
+    pub alpha: f64,
+    /// Write the comparison as JSON here.
+    #[arg(long, value_name = "FILE")]
+    pub report: Option<PathBuf>,
+}
+
+fn values(cfg: &Config, log: &Path, metrics: &[Metric]) -> Result<BTreeMap<Metric, Vec<f64>>, String> {
+    let mut out: BTreeMap<Metric, Vec<f64>> = metrics.iter().map(|&m| (m, Vec::new())).collect();
+    let mut hook = |s: &[Sample], _: &[AlertEvent]| {
+        for x in s.iter().filter(|x| x.role.is_none()) {
+            if let Some(v) = out.get_mut(&x.metric) {
+                v.push(x.value);
+            }
+        }
+    };
+    replay(cfg, log, ReplayOptions { series: None, progress: &|_| {}, on_samples: Some(&mut hook) })
+        .map_err(|e| e.to_string())?;
+    Ok(out)
+}
+
+/// One metric's comparison.
+#[derive(Debug, Clone, Serialize)]
+pub struct Comparison {
+    /// Metric.
+    pub metric: String,
+    /// The KS test, when both sides have values.
+    pub ks: Option<Ks>,
+    /// `represents`, `differs` or `no_data`.
+    pub verdict: &'static str,
+}
+
+/// Runs `compare`.
+pub fn compare_cmd(cfg: &Config, a: &CompareArgs) -> u8 {
+    let names = if a.metrics.is_empty() {
+        vec!["gospa".to_string(), "ospa".into(), "ego_position_error_m".into(), "clearance_m".into()]
+    } else {
+        a.metrics.clone()
+    };
+    let mut metrics = Vec::new();
+    for n in &names {
+        match Metric::from_name(n) {
+            Some(m) => metrics.push(m),
+            None => return super::fail("compare", format!("--metric: unknown metric `{n}`")),
+        }
+    }
+    if !(a.alpha > 0.0 && a.alpha < 1.0) {
+        return super::fail("compare", "--alpha must be in (0, 1)");
+    }
+    let field = match values(cfg, &a.field, &metrics) {
+        Ok(v) => v,
+        Err(e) => return super::fail("compare", e),
+    };
+    let sims = match expand(&a.sim) {
+        Ok(s) => s,
+        Err(e) => return super::fail("compare", e),
+    };
+    let mut sim: BTreeMap<Metric, Vec<f64>> = metrics.iter().map(|&m| (m, Vec::new())).collect();
+    for s in &sims {
+        match values(cfg, s, &metrics) {
+            Ok(v) => v.into_iter().for_each(|(m, x)| sim.entry(m).or_default().extend(x)),
+            Err(e) => return super::fail("compare", e),
+        }
+    }
+    let rows: Vec<Comparison> = metrics
+        .iter()
+        .map(|m| {
+            let ks = ks_2samp(&field[m], &sim[m]);
+            let verdict = match &ks {
+                None => "no_data",
+                Some(k) if k.p_value >= a.alpha => "represents",
+                Some(_) => "differs",
+            };
+            Comparison { metric: m.name().into(), ks, verdict }
+        })
+        .collect();
+    println!("field {} against {} simulated runs, alpha {}", a.field.display(), sims.len(), a.alpha);
+    println!("{:<24} {:>8} {:>8} {:>10} {:>12}  verdict", "metric", "field n", "sim n", "KS D", "p-value");
+    for r in &rows {
+        match &r.ks {
+            Some(k) => println!(
+                "{:<24} {:>8} {:>8} {:>10.4} {:>12.4e}  {}",
+                r.metric, k.n1, k.n2, k.statistic, k.p_value, r.verdict
+            ),
+            None => println!("{:<24} {:>8} {:>8} {:>10} {:>12}  {}", r.metric, 0, 0, "-", "-", r.verdict),
+        }
+    }
+    if let Some(p) = &a.report {
+        if let Err(e) = std::fs::write(p, serde_json::to_string_pretty(&rows).unwrap_or_default()) {
+            return super::fail("compare", format!("{}: {e}", p.display()));
+        }
+    }
+    super::EXIT_OK
+}
