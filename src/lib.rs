@@ -17,14 +17,18 @@
 //! - `live` (feature `live`): zenoh, HTTP and signals (I/O edge);
 //! - [`logio`]: log readers and writers (file I/O edge);
 //! - [`replay`]: drives the engine from a log (file I/O edge, two threads);
+//! - [`campaign`]: campaign aggregation (pure);
+//! - [`html`]: self-contained HTML reports with SVG plots (pure);
 //! - [`cli`]: the command line (edge).
 #![deny(missing_docs)]
 
+pub mod campaign;
 pub mod cli;
 pub mod config;
 pub mod core;
 pub mod gate;
 pub mod geometry;
+pub mod html;
 pub mod inference;
 #[cfg(feature = "live")]
 pub mod live;

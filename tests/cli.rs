@@ -234,3 +234,36 @@ fn campaign_over_a_seeded_family_reports_rates_with_intervals() {
     assert_eq!(rate["upper"], 1.0);
     assert!(a["metrics"]["gospa"]["runs"] == 6);
 }
+
+#[test]
+fn html_reports_are_self_contained_with_plots() {
+    let dir = tempfile::tempdir().unwrap();
+    let html = dir.path().join("run.html");
+    let out = plumbline(&[
+        "--config",
+        "config/rig.toml",
+        "replay",
+        "replay-logs/campus-loop.jsonl",
+        "--quiet",
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(1));
+    let page = std::fs::read_to_string(&html).unwrap();
+    for needle in [
+        "GOSPA and its parts",
+        "Clearance (collisions shaded red)",
+        "Ego pose error",
+        "Latency per role",
+        "Alerts raised",
+        "time (s)",
+    ] {
+        assert!(page.contains(needle), "{needle} missing");
+    }
+    assert!(page.matches("<svg").count() >= 5);
+    // No network: no scripts, no external references besides the SVG namespace.
+    assert!(!page.contains("<script") && !page.contains("<link"));
+    let external = page.matches("http").count();
+    let namespaces = page.matches("http://www.w3.org/2000/svg").count();
+    assert_eq!(external, namespaces, "only SVG namespace URIs may appear");
+}

@@ -8,15 +8,15 @@ use rayon::prelude::*;
 use serde::Serialize;
 use serde_json::Value;
 
+use crate::campaign::aggregate;
 use crate::config::Config;
 use crate::core::Sample;
 use crate::gate::{self, Row};
-use crate::inference::{clopper_pearson, ks_2samp, Ks, Rate};
+use crate::inference::{ks_2samp, Ks};
 use crate::metrics::Metric;
 use crate::replay::{replay, ReplayOptions};
 use crate::report::Report;
-use crate::rules::{critical_failed, AlertEvent};
-use crate::stats::{quantile_sorted, Summary};
+use crate::rules::AlertEvent;
 
 /// `gate` arguments.
 #[derive(Debug, clap::Args)]
@@ -32,6 +32,9 @@ pub struct GateArgs {
     /// Write JUnit XML here.
     #[arg(long, value_name = "FILE")]
     pub junit: Option<PathBuf>,
+    /// Write an HTML report here (the candidate run with the gate table; needs LOG).
+    #[arg(long, value_name = "FILE", requires = "log")]
+    pub html: Option<PathBuf>,
 }
 
 fn read_json(p: &Path) -> Result<Value, String> {
@@ -50,11 +53,21 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
         Ok(v) => v,
         Err(e) => return super::fail("gate", e),
     };
+    let mut plots = crate::html::Series::default();
+    let mut cand_report = None;
     let cand = match (&a.log, &a.candidate) {
-        (Some(log), _) => match replay_report(cfg, log) {
-            Ok(r) => serde_json::to_value(&r).unwrap_or_default(),
-            Err(e) => return super::fail("gate", e),
-        },
+        (Some(log), _) => {
+            let mut hook = |s: &[Sample], _: &[AlertEvent]| plots.add(s);
+            let opts = ReplayOptions { series: None, progress: &|_| {}, on_samples: Some(&mut hook) };
+            match replay(cfg, log, opts) {
+                Ok(r) => {
+                    let v = serde_json::to_value(&r.report).unwrap_or_default();
+                    cand_report = Some(r.report);
+                    v
+                }
+                Err(e) => return super::fail("gate", e),
+            }
+        }
         (None, Some(p)) => match read_json(p) {
             Ok(v) => v,
             Err(e) => return super::fail("gate", e),
@@ -66,6 +79,12 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
     print!("{}", gate_table(&rows));
     if let Some(p) = &a.junit {
         if let Err(e) = std::fs::write(p, gate::junit(&rows, &cand)) {
+            return super::fail("gate", format!("{}: {e}", p.display()));
+        }
+    }
+    if let (Some(p), Some(r)) = (&a.html, &cand_report) {
+        let page = crate::html::run_report_with(r, &plots, &crate::html::gate_section(&rows));
+        if let Err(e) = std::fs::write(p, page) {
             return super::fail("gate", format!("{}: {e}", p.display()));
         }
     }
@@ -116,6 +135,9 @@ pub struct CampaignArgs {
     /// Write each run's report into this folder.
     #[arg(long, value_name = "DIR")]
     pub out_dir: Option<PathBuf>,
+    /// Write an HTML report (failure rates, worst-value histograms) here.
+    #[arg(long, value_name = "FILE")]
+    pub html: Option<PathBuf>,
 }
 
 /// Expands a folder or a `*` pattern into sorted log paths.
@@ -142,127 +164,6 @@ pub fn expand(pattern: &str) -> Result<Vec<PathBuf>, String> {
         return Err(format!("{pattern}: no .jsonl or .plb logs"));
     }
     Ok(out)
-}
-
-/// One rule across the campaign.
-#[derive(Debug, Clone, Serialize)]
-pub struct RuleAggregate {
-    /// Rule name.
-    pub rule: String,
-    /// Severity.
-    pub severity: String,
-    /// Runs that failed, out of runs with data, with the 95% Clopper-Pearson interval on the
-    /// failure rate.
-    pub failure_rate: Option<Rate>,
-    /// Runs without data.
-    pub no_data: u64,
-    /// The worst runs (input, worst value), worst first.
-    pub worst_runs: Vec<(String, f64)>,
-    /// Every run's worst value (for the histogram).
-    pub worst_values: Vec<f64>,
-}
-
-/// A metric's per-run mean across the campaign.
-#[derive(Debug, Clone, Serialize)]
-pub struct MetricAggregate {
-    /// Runs with the metric.
-    pub runs: u64,
-    /// Mean of the per-run means.
-    pub mean: f64,
-    /// Smallest per-run mean.
-    pub min: f64,
-    /// Largest per-run mean.
-    pub max: f64,
-    /// Median per-run mean.
-    pub p50: f64,
-    /// 95th percentile of the per-run means.
-    pub p95: f64,
-}
-
-/// The aggregate report of a campaign.
-#[derive(Debug, Clone, Serialize)]
-pub struct CampaignReport {
-    /// Tool version.
-    pub version: &'static str,
-    /// Config digest.
-    pub config_digest: String,
-    /// Runs replayed.
-    pub runs: u64,
-    /// Runs that could not be read.
-    pub unreadable: Vec<String>,
-    /// Runs in which a critical rule failed.
-    pub critical_failures: u64,
-    /// Per rule.
-    pub rules: Vec<RuleAggregate>,
-    /// Per metric.
-    pub metrics: BTreeMap<String, MetricAggregate>,
-}
-
-/// Aggregates run reports (pure).
-pub fn aggregate(cfg: &Config, runs: &[Report], unreadable: Vec<String>) -> CampaignReport {
-    let mut rules = Vec::new();
-    for (i, r) in cfg.rules.iter().enumerate() {
-        let (mut fails, mut with_data, mut no_data) = (0u64, 0u64, 0u64);
-        let mut worst: Vec<(String, f64)> = Vec::new();
-        for rep in runs {
-            let Some(v) = rep.verdicts.get(i) else { continue };
-            match v.verdict {
-                "no_data" => no_data += 1,
-                "fail" => {
-                    fails += 1;
-                    with_data += 1
-                }
-                _ => with_data += 1,
-            }
-            if let Some(w) = v.worst {
-                worst.push((rep.input.clone(), w));
-            }
-        }
-        worst.sort_by(|a, b| if r.above { b.1.total_cmp(&a.1) } else { a.1.total_cmp(&b.1) });
-        let values = worst.iter().map(|w| w.1).collect();
-        worst.truncate(5);
-        rules.push(RuleAggregate {
-            rule: r.name.clone(),
-            severity: r.severity.name().into(),
-            failure_rate: clopper_pearson(fails, with_data, 0.05),
-            no_data,
-            worst_runs: worst,
-            worst_values: values,
-        });
-    }
-    let mut per: BTreeMap<String, Vec<f64>> = BTreeMap::new();
-    for rep in runs {
-        for (m, st) in &rep.metrics {
-            per.entry(m.to_string()).or_default().push(st.mean);
-        }
-    }
-    let metrics = per
-        .into_iter()
-        .map(|(m, mut v)| {
-            let mut s = Summary::new(usize::MAX, 3);
-            v.iter().for_each(|&x| s.add(x));
-            v.sort_by(f64::total_cmp);
-            let st = s.stats().expect("non-empty");
-            let agg = MetricAggregate {
-                runs: v.len() as u64,
-                mean: st.mean,
-                min: st.min,
-                max: st.max,
-                p50: quantile_sorted(&v, 0.5),
-                p95: quantile_sorted(&v, 0.95),
-            };
-            (m, agg)
-        })
-        .collect();
-    CampaignReport {
-        version: env!("CARGO_PKG_VERSION"),
-        config_digest: cfg.digest(),
-        runs: runs.len() as u64,
-        unreadable,
-        critical_failures: runs.iter().filter(|r| critical_failed(&r.verdicts)).count() as u64,
-        rules,
-        metrics,
-    }
 }
 
 /// Runs `campaign`.
@@ -324,6 +225,11 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
                 r.rule, r.severity, x.failures, x.runs, x.rate, x.lower, x.upper
             ),
             None => println!("{:<28} {:<9} {:>9}", r.rule, r.severity, "no data"),
+        }
+    }
+    if let Some(p) = &a.html {
+        if let Err(e) = std::fs::write(p, crate::html::campaign_report(&agg, &cfg.rules)) {
+            return super::fail("campaign", format!("{}: {e}", p.display()));
         }
     }
     if let Some(p) = &a.report {

@@ -27,6 +27,9 @@ pub struct Args {
     /// Write the long-form series (t,metric,value) here.
     #[arg(long, value_name = "FILE")]
     pub series: Option<PathBuf>,
+    /// Write a self-contained HTML report with plots here.
+    #[arg(long, value_name = "FILE")]
+    pub html: Option<PathBuf>,
     /// Append alert events here as JSON lines, flushed on every event.
     #[arg(long, value_name = "FILE")]
     pub journal: Option<PathBuf>,
@@ -63,7 +66,12 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
             }
         },
     };
-    let mut hook = |_: &[crate::core::Sample], events: &[AlertEvent]| {
+    let mut plots = crate::html::Series::default();
+    let want_plots = a.html.is_some();
+    let mut hook = |samples: &[crate::core::Sample], events: &[AlertEvent]| {
+        if want_plots {
+            plots.add(samples);
+        }
         if let Some(j) = journal.as_mut() {
             for e in events {
                 j.append(e);
@@ -86,6 +94,12 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     bar.finish_and_clear();
     if let Some(p) = &a.report {
         if let Err(e) = std::fs::write(p, out.report.to_json()) {
+            eprintln!("plumbline replay: {}: {e}", p.display());
+            return super::EXIT_INPUT;
+        }
+    }
+    if let Some(p) = &a.html {
+        if let Err(e) = std::fs::write(p, crate::html::run_report(&out.report, &plots)) {
             eprintln!("plumbline replay: {}: {e}", p.display());
             return super::EXIT_INPUT;
         }

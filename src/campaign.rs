@@ -1,0 +1,133 @@
+//! Campaign aggregation: many runs' reports into pass rates with confidence bounds, metric
+//! distributions across runs and the worst runs by each rule. Pure.
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use crate::config::Config;
+use crate::inference::{clopper_pearson, Rate};
+use crate::report::Report;
+use crate::rules::critical_failed;
+use crate::stats::{quantile_sorted, Summary};
+
+/// One rule across the campaign.
+#[derive(Debug, Clone, Serialize)]
+pub struct RuleAggregate {
+    /// Rule name.
+    pub rule: String,
+    /// Severity.
+    pub severity: String,
+    /// Runs that failed, out of runs with data, with the 95% Clopper-Pearson interval on the
+    /// failure rate.
+    pub failure_rate: Option<Rate>,
+    /// Runs without data.
+    pub no_data: u64,
+    /// The worst runs (input, worst value), worst first.
+    pub worst_runs: Vec<(String, f64)>,
+    /// Every run's worst value (for the histogram).
+    pub worst_values: Vec<f64>,
+}
+
+/// A metric's per-run mean across the campaign.
+#[derive(Debug, Clone, Serialize)]
+pub struct MetricAggregate {
+    /// Runs with the metric.
+    pub runs: u64,
+    /// Mean of the per-run means.
+    pub mean: f64,
+    /// Smallest per-run mean.
+    pub min: f64,
+    /// Largest per-run mean.
+    pub max: f64,
+    /// Median per-run mean.
+    pub p50: f64,
+    /// 95th percentile of the per-run means.
+    pub p95: f64,
+}
+
+/// The aggregate report of a campaign.
+#[derive(Debug, Clone, Serialize)]
+pub struct CampaignReport {
+    /// Tool version.
+    pub version: &'static str,
+    /// Config digest.
+    pub config_digest: String,
+    /// Runs replayed.
+    pub runs: u64,
+    /// Runs that could not be read.
+    pub unreadable: Vec<String>,
+    /// Runs in which a critical rule failed.
+    pub critical_failures: u64,
+    /// Per rule.
+    pub rules: Vec<RuleAggregate>,
+    /// Per metric.
+    pub metrics: BTreeMap<String, MetricAggregate>,
+}
+
+/// Aggregates run reports (pure).
+pub fn aggregate(cfg: &Config, runs: &[Report], unreadable: Vec<String>) -> CampaignReport {
+    let mut rules = Vec::new();
+    for (i, r) in cfg.rules.iter().enumerate() {
+        let (mut fails, mut with_data, mut no_data) = (0u64, 0u64, 0u64);
+        let mut worst: Vec<(String, f64)> = Vec::new();
+        for rep in runs {
+            let Some(v) = rep.verdicts.get(i) else { continue };
+            match v.verdict {
+                "no_data" => no_data += 1,
+                "fail" => {
+                    fails += 1;
+                    with_data += 1
+                }
+                _ => with_data += 1,
+            }
+            if let Some(w) = v.worst {
+                worst.push((rep.input.clone(), w));
+            }
+        }
+        worst.sort_by(|a, b| if r.above { b.1.total_cmp(&a.1) } else { a.1.total_cmp(&b.1) });
+        let values = worst.iter().map(|w| w.1).collect();
+        worst.truncate(5);
+        rules.push(RuleAggregate {
+            rule: r.name.clone(),
+            severity: r.severity.name().into(),
+            failure_rate: clopper_pearson(fails, with_data, 0.05),
+            no_data,
+            worst_runs: worst,
+            worst_values: values,
+        });
+    }
+    let mut per: BTreeMap<String, Vec<f64>> = BTreeMap::new();
+    for rep in runs {
+        for (m, st) in &rep.metrics {
+            per.entry(m.to_string()).or_default().push(st.mean);
+        }
+    }
+    let metrics = per
+        .into_iter()
+        .map(|(m, mut v)| {
+            let mut s = Summary::new(usize::MAX, 3);
+            v.iter().for_each(|&x| s.add(x));
+            v.sort_by(f64::total_cmp);
+            let st = s.stats().expect("non-empty");
+            let agg = MetricAggregate {
+                runs: v.len() as u64,
+                mean: st.mean,
+                min: st.min,
+                max: st.max,
+                p50: quantile_sorted(&v, 0.5),
+                p95: quantile_sorted(&v, 0.95),
+            };
+            (m, agg)
+        })
+        .collect();
+    CampaignReport {
+        version: env!("CARGO_PKG_VERSION"),
+        config_digest: cfg.digest(),
+        runs: runs.len() as u64,
+        unreadable,
+        critical_failures: runs.iter().filter(|r| critical_failed(&r.verdicts)).count() as u64,
+        rules,
+        metrics,
+    }
+}
