@@ -174,7 +174,7 @@ impl Body {
     fn aabb_distance(&self, x: f64, y: f64) -> f64 {
         let dx = (self.lo[0] - x).max(0.0).max(x - self.hi[0]);
         let dy = (self.lo[1] - y).max(0.0).max(y - self.hi[1]);
-        dx.hypot(dy)
+        (dx * dx + dy * dy).sqrt()
     }
 }
 

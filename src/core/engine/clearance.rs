@@ -92,15 +92,22 @@ impl ClearState {
     }
 }
 
-fn bodies_of(points: &[Point], radius: f64, out: &mut Vec<Body>) {
-    for p in points {
-        let id = ObstacleId::Object(p.id);
-        out.push(match (p.length, p.width) {
-            (Some(l), Some(w)) if l > 0.0 && w > 0.0 => {
-                Body::poly(id, &crate::geometry::box_corners(p.x, p.y, p.yaw.unwrap_or(0.0), l, w))
-            }
-            _ => Body::disc(id, [p.x, p.y], radius),
-        });
+/// An object as an obstacle: a box when it has a size, else a disc of `radius`.
+fn body_of(p: &Point, radius: f64) -> Body {
+    let id = ObstacleId::Object(p.id);
+    match (p.length, p.width) {
+        (Some(l), Some(w)) if l > 0.0 && w > 0.0 => {
+            Body::poly(id, &crate::geometry::box_corners(p.x, p.y, p.yaw.unwrap_or(0.0), l, w))
+        }
+        _ => Body::disc(id, [p.x, p.y], radius),
+    }
+}
+
+/// The radius of a circle around the object's centre that holds its body.
+fn reach(p: &Point, radius: f64) -> f64 {
+    match (p.length, p.width) {
+        (Some(l), Some(w)) if l > 0.0 && w > 0.0 => l.hypot(w) / 2.0,
+        _ => radius,
     }
 }
 
@@ -113,8 +120,8 @@ impl Engine {
         self.ref_objects.has_at_or_after(t)
     }
 
-    /// Reference objects at `t` as bodies (none when the alignment finds nothing).
-    fn reference_bodies(&self, t: f64) -> Vec<Body> {
+    /// Reference objects at `t` (none when the alignment finds nothing).
+    fn reference_points_at(&self, t: f64) -> Vec<Point> {
         let mut pts = Vec::new();
         let mut scratch = (Vec::new(), Vec::new(), Vec::new());
         match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
@@ -132,18 +139,16 @@ impl Engine {
             }
             Err(_) => {}
         }
-        let mut out = Vec::with_capacity(pts.len());
-        bodies_of(&pts, self.clear.cp.object_radius, &mut out);
-        out
+        pts
     }
 
-    /// Estimated objects (latest set at or before `t`) as bodies.
-    fn estimate_bodies(&self, t: f64) -> Vec<Body> {
+    /// Estimated objects (the latest set at or before `t`).
+    fn estimate_points_at(&self, t: f64) -> Vec<Point> {
         let mut out = Vec::new();
         if let Some((_, set)) = self.clear.est_sets.latest_at_or_before(t) {
             let mut scratch = Vec::new();
             if let Ok(p) = self.ref_points(set, &mut scratch) {
-                bodies_of(p, self.clear.cp.object_radius, &mut out);
+                out.extend_from_slice(p);
             }
         }
         out
@@ -153,19 +158,31 @@ impl Engine {
         self.clear.map.latest_at_or_before(t).map(|(_, m)| m)
     }
 
-    /// Clearance of the footprint at a pose against the map at `t` and `bodies`.
-    fn clearance_of(&self, t: f64, x: f64, y: f64, yaw: f64, bodies: &[Body]) -> Option<Nearest> {
+    /// Clearance of the footprint at a pose against the map at `t` and `objects`. An object
+    /// is skipped when a circle bound shows it cannot be nearer than the best so far (the
+    /// map's nearest first), so only a few become polygons.
+    fn clearance_of(&self, t: f64, x: f64, y: f64, yaw: f64, objects: &[Point]) -> Option<Nearest> {
         let fp = &self.clear.cp.footprint;
         let poly = fp.polygon(x, y, yaw);
         let r = fp.circumradius();
-        let from_map = self.map_at(t).and_then(|m| m.nearest(&poly, [x, y], r));
-        nearer(from_map, nearest_of(bodies, &poly, [x, y], r))
+        let mut best = self.map_at(t).and_then(|m| m.nearest(&poly, [x, y], r));
+        let radius = self.clear.cp.object_radius;
+        for p in objects {
+            let (dx, dy) = (p.x - x, p.y - y);
+            let bound = (dx * dx + dy * dy).sqrt() - reach(p, radius) - r;
+            if best.is_some_and(|b| bound > b.distance) {
+                continue;
+            }
+            let body = body_of(p, radius);
+            best = nearer(best, nearest_of(std::slice::from_ref(&body), &poly, [x, y], r));
+        }
+        best
     }
 
     pub(super) fn eval_clearance(&mut self, t: f64, pose: &Pose, out: &mut Vec<Sample>) {
         self.clear.last_clear_t = Some(t);
         let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
-        let bodies = self.reference_bodies(t);
+        let bodies = self.reference_points_at(t);
         if let Some(n) = self.clearance_of(t, pose.x, pose.y, pose.yaw, &bodies) {
             push(Metric::Clearance, n.distance);
             let touching = n.distance <= 0.0;
@@ -217,9 +234,9 @@ impl Engine {
 
     /// The clearance-loss budget at an ego step (see the module note).
     pub(super) fn eval_budget(&mut self, t: f64, est: &Pose, reference: &Pose, out: &mut Vec<Sample>) {
-        let ref_bodies = self.reference_bodies(t);
-        let est_bodies = self.estimate_bodies(t);
-        let c = |s: &Self, p: (f64, f64, f64), b: &[Body]| {
+        let ref_bodies = self.reference_points_at(t);
+        let est_bodies = self.estimate_points_at(t);
+        let c = |s: &Self, p: (f64, f64, f64), b: &[Point]| {
             s.clearance_of(t, p.0, p.1, p.2, b).map(|n| n.distance)
         };
         let (e, r) = ((est.x, est.y, est.yaw), (reference.x, reference.y, reference.yaw));
@@ -255,7 +272,7 @@ impl Engine {
             push(Metric::PlanCompute, c);
         }
         let pts: Vec<[f64; 2]> = path.poses.iter().map(|p| [p.x, p.y]).collect();
-        let bodies = self.reference_bodies(t);
+        let bodies = self.reference_points_at(t);
         if pts.is_empty() {
             // No path: was there one? Search from the reference ego (else the previous
             // plan's start) to the goal (else the previous plan's end).
@@ -303,7 +320,8 @@ impl Engine {
         self.clear.plans.insert(t, Plan { dense });
     }
 
-    fn grid_for(&self, t: f64, pts: &[[f64; 2]], bodies: &[Body]) -> Grid {
+    fn grid_for(&self, t: f64, pts: &[[f64; 2]], objects: &[Point]) -> Grid {
+        let bodies: Vec<Body> = objects.iter().map(|p| body_of(p, self.clear.cp.object_radius)).collect();
         let cp = &self.clear.cp;
         let mut lo = [f64::INFINITY; 2];
         let mut hi = [f64::NEG_INFINITY; 2];
