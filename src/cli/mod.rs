@@ -3,7 +3,6 @@
 
 mod campaign;
 mod convert;
-mod journal;
 #[cfg(feature = "live")]
 mod live;
 mod replay;

@@ -14,7 +14,7 @@ use crate::replay::{replay, ReplayOptions};
 use crate::report::Report;
 use crate::rules::{critical_failed, AlertEvent};
 
-use super::journal::Journal;
+use crate::logio::journal::Journal;
 
 /// Arguments.
 #[derive(Debug, clap::Args)]

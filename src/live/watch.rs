@@ -18,6 +18,7 @@ use super::exposition::Exposition;
 use super::zenoh_io::{self, wall_now};
 use crate::config::Config;
 use crate::core::{Input, Sample};
+use crate::logio::journal::Journal;
 use crate::logio::{plb, LogRecord};
 use crate::metrics::Metric;
 use crate::monitor::Monitor;
@@ -97,13 +98,7 @@ pub fn run(
     };
     let mut journal = match &opts.journal {
         None => None,
-        Some(p) => Some(
-            std::fs::OpenOptions::new()
-                .create(true)
-                .append(true)
-                .open(p)
-                .map_err(|e| format!("{}: {e}", p.display()))?,
-        ),
+        Some(p) => Some(Journal::open(p).map_err(|e| format!("{}: {e}", p.display()))?),
     };
     let mut monitor = Monitor::new(cfg);
     let (mut samples, mut events) = (Vec::new(), Vec::new());
@@ -280,7 +275,7 @@ fn handle(
     events: &[AlertEvent],
     shared: &Shared,
     alerts: &zenoh::pubsub::Publisher<'_>,
-    journal: Option<&mut std::fs::File>,
+    journal: Option<&mut Journal>,
 ) {
     if let Ok(x) = shared.exposition.lock() {
         // Samples of the clock (timeouts, staleness); message samples were set on arrival.
@@ -299,8 +294,7 @@ fn handle(
             tracing::error!(error = %err, "publishing an alert failed");
         }
         if let Some(j) = journal.as_mut() {
-            use std::io::Write;
-            let _ = j.write_all(format!("{text}\n").as_bytes()).and_then(|_| j.flush());
+            j.append(e);
         }
     }
 }

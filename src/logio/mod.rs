@@ -2,6 +2,7 @@
 //! reads and writes files and hands decoded records to the caller.
 
 pub mod chunks;
+pub mod journal;
 pub mod jsonl;
 pub mod plb;
 

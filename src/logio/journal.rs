@@ -1,5 +1,5 @@
-//! The alert journal: alert events appended as JSON lines, flushed on every event. A write
-//! error is reported once on stderr and monitoring goes on.
+//! The alert journal (replay and live): alert events appended as JSON lines, flushed on
+//! every event. A write error is reported once on stderr and monitoring goes on.
 
 use std::fs::{File, OpenOptions};
 use std::io::Write;
