@@ -7,7 +7,7 @@
 //! then the monitor finishes, the recorder flushes and the report is written.
 
 use std::path::PathBuf;
-use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicI64, AtomicU64, Ordering};
 use std::sync::mpsc::{sync_channel, RecvTimeoutError, TrySendError};
 use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
@@ -62,9 +62,11 @@ pub fn run(
 ) -> Result<Report, String> {
     let (tx, rx) = sync_channel::<Item>(cfg.live.queue);
     let dropped: Arc<Vec<AtomicU64>> = Arc::new(Role::ALL.iter().map(|_| AtomicU64::new(0)).collect());
+    // Messages in the queue: counted up on send, down on receipt, for the queue gauge.
+    let queued = Arc::new(AtomicI64::new(0));
     let mut subs = Vec::new();
     for (role, key) in &cfg.roles {
-        let (role, tx, dropped, c) = (*role, tx.clone(), dropped.clone(), cfg.clone());
+        let (role, tx, dropped, c, q) = (*role, tx.clone(), dropped.clone(), cfg.clone(), queued.clone());
         let sub = session
             .declare_subscriber(key.as_str())
             .callback(move |sample| {
@@ -72,8 +74,14 @@ pub fn run(
                 let payload = sample.payload().to_bytes();
                 let rec =
                     zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv);
-                if let Err(TrySendError::Full(_)) = tx.try_send((role, Instant::now(), rec)) {
-                    dropped[role.index()].fetch_add(1, Ordering::Relaxed);
+                match tx.try_send((role, Instant::now(), rec)) {
+                    Ok(()) => {
+                        q.fetch_add(1, Ordering::Relaxed);
+                    }
+                    Err(TrySendError::Full(_)) => {
+                        dropped[role.index()].fetch_add(1, Ordering::Relaxed);
+                    }
+                    Err(TrySendError::Disconnected(_)) => {}
                 }
             })
             .wait()
@@ -130,6 +138,7 @@ pub fn run(
                 while let Ok(x) = rx.try_recv() {
                     batch.push(x);
                 }
+                queued.fetch_sub(batch.len() as i64, Ordering::Relaxed);
                 for (role, got, item) in batch {
                     let before = samples.len();
                     match item {
@@ -213,7 +222,8 @@ pub fn run(
         if refresh_due {
             if let Ok(mut x) = shared.exposition.lock() {
                 x.refresh(&monitor);
-                x.queue_len(0);
+                // A send may count up just after its receipt counted down: clamp at 0.
+                x.queue_len(queued.load(Ordering::Relaxed).max(0) as usize);
             }
             last_refresh = Instant::now();
         }
