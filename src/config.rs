@@ -81,6 +81,9 @@ pub struct RawConfig {
     /// `[live]`
     #[serde(default)]
     pub live: RawLive,
+    /// `[dashboard]`
+    #[serde(default)]
+    pub dashboard: RawDashboard,
     /// `[[rule]]`
     #[serde(default)]
     pub rule: Vec<RawRule>,
@@ -163,6 +166,20 @@ pub struct RawLive {
     pub refresh: Option<toml::Value>,
     /// how often the recorder flushes
     pub flush: Option<toml::Value>,
+}
+
+/// `[dashboard]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawDashboard {
+    /// snapshots streamed per second
+    pub rate_hz: Option<f64>,
+    /// chart history
+    pub history: Option<toml::Value>,
+    /// chart row spacing
+    pub step: Option<toml::Value>,
+    /// age beyond which a value or role shows as stale
+    pub stale_after: Option<toml::Value>,
 }
 
 /// `[windows]`
@@ -314,6 +331,9 @@ pub struct Config {
     pub zenoh: ZenohParams,
     /// live monitor settings
     pub live: LiveParams,
+    /// dashboard settings (display only: not part of the digest)
+    #[serde(skip)]
+    pub dashboard: crate::dashboard::DashboardParams,
     /// gated statistics (empty: the defaults of `gate::default_tolerances`)
     pub gate: Vec<crate::gate::Tolerance>,
 }
@@ -512,6 +532,22 @@ impl Config {
                 "a duration of at most 100ms (the recorder's crash-safety bound)",
             ));
         }
+        let d = &raw.dashboard;
+        let dashboard = crate::dashboard::DashboardParams {
+            rate_hz: positive(source, "dashboard.rate_hz", d.rate_hz, 5.0)?,
+            history: duration(source, "dashboard.history", &d.history, 120.0)?,
+            step: duration(source, "dashboard.step", &d.step, 0.5)?,
+            stale_after: duration(source, "dashboard.stale_after", &d.stale_after, 2.0)?,
+        };
+        if dashboard.rate_hz > 50.0 {
+            return Err(err(source, "dashboard.rate_hz", "a rate in (0, 50] snapshots per second"));
+        }
+        if dashboard.step <= 0.0 || dashboard.history <= 0.0 || dashboard.stale_after <= 0.0 {
+            return Err(err(source, "dashboard.step", "durations > 0 for history, step and stale_after"));
+        }
+        if dashboard.history / dashboard.step > 10_000.0 {
+            return Err(err(source, "dashboard.history", "at most 10000 rows of dashboard.step"));
+        }
         let mut gate = Vec::new();
         for (i, g) in raw.gate.iter().enumerate() {
             let key = |k: &str| format!("gate[{i}].{k}");
@@ -563,6 +599,7 @@ impl Config {
             rules,
             zenoh,
             live,
+            dashboard,
             gate,
         })
     }

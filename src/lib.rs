@@ -26,6 +26,7 @@ pub mod campaign;
 pub mod cli;
 pub mod config;
 pub mod core;
+pub mod dashboard;
 pub mod gate;
 pub mod geometry;
 pub mod html;

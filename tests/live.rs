@@ -317,3 +317,70 @@ fn live_alerts_match_replay_and_arrive_on_the_alerts_key() {
     assert_eq!(on_key, want, "the alerts key carries the same events");
     let _ = session.close().wait();
 }
+
+/// Reads `/api/stream` for `secs` seconds and returns the `snapshot` events' data.
+fn stream_events(port: u16, secs: f64) -> Vec<String> {
+    let mut s = TcpStream::connect(("127.0.0.1", port)).unwrap();
+    s.set_read_timeout(Some(Duration::from_millis(200))).unwrap();
+    write!(s, "GET /api/stream HTTP/1.1\r\nHost: localhost\r\nAccept: text/event-stream\r\n\r\n").unwrap();
+    let (t0, mut raw, mut buf) = (Instant::now(), Vec::new(), [0u8; 65536]);
+    while t0.elapsed().as_secs_f64() < secs {
+        match s.read(&mut buf) {
+            Ok(0) => break,
+            Ok(n) => raw.extend_from_slice(&buf[..n]),
+            Err(_) => {}
+        }
+    }
+    let text = String::from_utf8_lossy(&raw);
+    assert!(text.starts_with("HTTP/1.1 200"), "{}", &text[..text.len().min(200)]);
+    assert!(text.to_ascii_lowercase().contains("content-type: text/event-stream"));
+    // Chunked transfer: data lines may be split across chunks, so find whole events by the
+    // `event: snapshot` marker and take the JSON object that follows its `data:` field.
+    text.split("event: snapshot\n")
+        .skip(1)
+        .filter_map(|e| e.strip_prefix("data: "))
+        .map(str::to_string)
+        .collect()
+}
+
+#[test]
+fn dashboard_serves_its_page_a_snapshot_and_a_stream_at_the_configured_rate() {
+    let zport = free_port();
+    let mut w = Watcher::spawn(&["--set", "dashboard.rate_hz=4"], "demo", zport, &["--duration", "30"]);
+    // The page and its assets come from the binary itself.
+    let page = http_get(w.http, "/").unwrap();
+    assert!(page.starts_with("HTTP/1.1 200") && page.contains("<script src=\"app.js\">"), "{page}");
+    for (asset, ctype) in [("/app.js", "text/javascript"), ("/app.css", "text/css")] {
+        let r = http_get(w.http, asset).unwrap();
+        assert!(r.starts_with("HTTP/1.1 200") && r.contains(ctype), "{asset}");
+        // The SVG namespace is a name, not a fetch; nothing else may name another host.
+        let r = r.replace("http://www.w3.org/2000/svg", "");
+        assert!(!r.contains("http://") && !r.contains("https://"), "{asset} refers to the network");
+    }
+    std::thread::sleep(Duration::from_secs(3));
+    let snap = http_get(w.http, "/api/snapshot").unwrap();
+    let body = &snap[snap.find("\r\n\r\n").unwrap() + 4..];
+    let v: serde_json::Value = serde_json::from_str(body).unwrap();
+    assert_eq!(v["rate_hz"], 4.0);
+    assert_eq!(v["history_s"], 120.0);
+    let ids: Vec<&str> = v["charts"].as_array().unwrap().iter().map(|c| c["id"].as_str().unwrap()).collect();
+    assert_eq!(ids, ["gospa", "clearance", "ego", "latency"]);
+    let rows = v["row_times"].as_array().unwrap().len();
+    assert!(rows >= 4, "3 s at 0.5 s a row: {rows}");
+    assert!(v["topics"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|t| t["role"] == "estimate/objects" && t["state"] == "ok"));
+    // The stream: 4 snapshots a second, each a whole snapshot whose clock moves on.
+    let events = stream_events(w.http, 2.6);
+    assert!((8..=12).contains(&events.len()), "{} events in 2.6 s at 4 Hz", events.len());
+    let clocks: Vec<f64> = events
+        .iter()
+        .filter_map(|e| serde_json::from_str::<serde_json::Value>(e.lines().next()?).ok())
+        .map(|v| v["now"].as_f64().unwrap())
+        .collect();
+    assert!(clocks.len() >= 6 && clocks.windows(2).all(|p| p[1] > p[0]), "{clocks:?}");
+    w.signal("-TERM");
+    assert_eq!(w.wait(), Some(0));
+}

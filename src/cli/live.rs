@@ -2,10 +2,9 @@
 
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::{Arc, Mutex};
+use std::sync::Arc;
 
 use crate::config::Config;
-use crate::live::exposition::Exposition;
 use crate::live::publish::{self, PublishOptions};
 use crate::live::watch::{self, Shared, WatchOptions};
 use crate::live::{http, zenoh_io};
@@ -175,8 +174,7 @@ pub struct DemoArgs {
 use super::fail;
 
 fn serve(cfg: &Config, stop: &Arc<AtomicBool>) -> Result<(Arc<Shared>, http::Server), String> {
-    let shared =
-        Arc::new(Shared { exposition: Mutex::new(Exposition::new(cfg)), ready: AtomicBool::new(false) });
+    let shared = Arc::new(Shared::new(cfg));
     let server = http::start(&cfg.http_listen, shared.clone(), stop.clone())?;
     Ok((shared, server))
 }
@@ -189,7 +187,7 @@ pub fn watch_cmd(cfg: &Config, a: &WatchArgs) -> u8 {
         Ok(x) => x,
         Err(e) => return fail("watch", e),
     };
-    eprintln!("plumbline watch: metrics at http://{}/metrics", server.addr);
+    eprintln!("plumbline watch: dashboard at http://{0}/  metrics at http://{0}/metrics", server.addr);
     let session = match zenoh_io::open(&cfg) {
         Ok(s) => s,
         Err(e) => return fail("watch", e),
@@ -289,7 +287,7 @@ pub fn demo_cmd(cfg: &Config, sets: &[String], a: &DemoArgs) -> u8 {
         Err(e) => return fail("demo", e),
     };
     println!("plumbline demo: the Aldermoor campus shuttle, live over zenoh");
-    println!("metrics at http://{}/metrics  (Ctrl-C to stop)", server.addr);
+    println!("dashboard at http://{0}/  metrics at http://{0}/metrics  (Ctrl-C to stop)", server.addr);
     let session = match zenoh_io::open(&cfg) {
         Ok(s) => s,
         Err(e) => return fail("demo", e),

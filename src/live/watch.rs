@@ -18,6 +18,7 @@ use super::exposition::Exposition;
 use super::zenoh_io::{self, wall_now};
 use crate::config::Config;
 use crate::core::{Input, Sample};
+use crate::dashboard::Dashboard;
 use crate::logio::journal::Journal;
 use crate::logio::{plb, LogRecord};
 use crate::metrics::Metric;
@@ -47,6 +48,20 @@ pub struct Shared {
     pub exposition: Mutex<Exposition>,
     /// Set once every subscription is declared.
     pub ready: AtomicBool,
+    /// The latest dashboard snapshot (JSON), replaced at `dashboard.rate_hz`; the page's
+    /// event streams wait on it.
+    pub snapshot: tokio::sync::watch::Sender<Arc<str>>,
+}
+
+impl Shared {
+    /// Shared state for a config, with an empty snapshot until the watcher publishes one.
+    pub fn new(cfg: &Config) -> Shared {
+        Shared {
+            exposition: Mutex::new(Exposition::new(cfg)),
+            ready: AtomicBool::new(false),
+            snapshot: tokio::sync::watch::Sender::new(Arc::from("{}")),
+        }
+    }
 }
 
 type Item = (Role, Instant, Result<LogRecord, Reject>);
@@ -109,6 +124,9 @@ pub fn run(
         Some(p) => Some(Journal::open(p).map_err(|e| format!("{}: {e}", p.display()))?),
     };
     let mut monitor = Monitor::new(cfg);
+    let mut dashboard = Dashboard::new(cfg.dashboard, cfg.tracking.order);
+    let snapshot_every = 1.0 / cfg.dashboard.rate_hz;
+    let mut last_snapshot: Option<Instant> = None;
     let (mut samples, mut events) = (Vec::new(), Vec::new());
     if let Some(map) = crate::replay::load_map(cfg).map_err(|e| e.to_string())? {
         monitor.push(map, &mut samples, &mut events);
@@ -217,8 +235,14 @@ pub fn run(
             monitor.inject(&mut samples, &stale, &mut events);
         }
         handle(&samples[from_messages..], &events, shared, &alert_pub, journal.as_mut());
+        dashboard.observe(now, &samples, &events);
+        dashboard.tick(now, &monitor);
         samples.clear();
         events.clear();
+        if last_snapshot.is_none_or(|t| t.elapsed().as_secs_f64() >= snapshot_every) {
+            publish_snapshot(shared, &dashboard, &monitor);
+            last_snapshot = Some(Instant::now());
+        }
         if refresh_due {
             if let Ok(mut x) = shared.exposition.lock() {
                 x.refresh(&monitor);
@@ -252,6 +276,8 @@ pub fn run(
     }
     monitor.finish(&mut samples, &mut events);
     handle(&samples, &events, shared, &alert_pub, journal.as_mut());
+    dashboard.observe(wall_now(), &samples, &events);
+    publish_snapshot(shared, &dashboard, &monitor);
     if let Ok(mut x) = shared.exposition.lock() {
         x.refresh(&monitor);
     }
@@ -278,6 +304,11 @@ pub fn run(
         std::fs::write(p, report.to_json()).map_err(|e| format!("{}: {e}", p.display()))?;
     }
     Ok(report)
+}
+
+fn publish_snapshot(shared: &Shared, dashboard: &Dashboard, monitor: &Monitor) {
+    let json = serde_json::to_string(&dashboard.snapshot(monitor)).unwrap_or_else(|_| "{}".into());
+    shared.snapshot.send_replace(Arc::from(json));
 }
 
 fn handle(

@@ -1,0 +1,527 @@
+//! The dashboard's model: what the browser page shows, kept from the monitor's samples,
+//! alert events and windows. Pure: no clock, no I/O. The live watcher feeds it and asks it
+//! for a [`Snapshot`] (served as JSON at `/api/snapshot` and streamed as server-sent events).
+//!
+//! - **Tiles**: the latest value of a few key metrics, with its event time and how long ago
+//!   (on the monitor's clock) it arrived; `no_data` before the first value, `stale` when it
+//!   arrived more than `stale_after` ago.
+//! - **Charts**: a ring of rows taken every `step` of the monitor's clock over `history`
+//!   (default 2 minutes at 0.5 s: 240 rows). Each row reads one statistic of the shortest
+//!   sliding window per line (the mean, the minimum for clearance, the p99 for latency), or
+//!   `null` while that window is empty, so a gap shows as a gap and never as a zero.
+//! - **Alerts**: the raised ones with the event time they were raised at (as in the alert
+//!   journal) and how long they have been active on the monitor's clock; the latest events.
+//! - **Topics**: per role, the message rate over the last `rate_span` of the monitor's clock,
+//!   latency p50/p99 of the sliding window nearest 10 s, staleness, drops, decode errors and
+//!   stamp regressions, and a state (`no_data`, `stale`, `ok`).
+//! - **Verdicts**: every rule's verdict so far.
+//!
+//! Memory is bounded: the ring holds `history / step` rows, the event list
+//! [`RECENT_EVENTS`], the active list one entry per rule and role.
+
+use std::collections::VecDeque;
+
+use serde::Serialize;
+
+use crate::core::Sample;
+use crate::metrics::Metric;
+use crate::monitor::Monitor;
+use crate::msg::Role;
+use crate::rules::{AlertEvent, Verdict};
+use crate::windows::Stat;
+
+/// Alert events kept for the page.
+pub const RECENT_EVENTS: usize = 20;
+
+/// How the dashboard samples and streams.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct DashboardParams {
+    /// Snapshots streamed per second.
+    pub rate_hz: f64,
+    /// Chart history (s).
+    pub history: f64,
+    /// Chart row spacing (s).
+    pub step: f64,
+    /// A value or a role older than this is stale (s).
+    pub stale_after: f64,
+}
+
+impl Default for DashboardParams {
+    fn default() -> Self {
+        DashboardParams { rate_hz: 5.0, history: 120.0, step: 0.5, stale_after: 2.0 }
+    }
+}
+
+/// One line of a chart: which window statistic of which key it reads.
+#[derive(Debug, Clone, Copy)]
+struct Line {
+    metric: Metric,
+    role: Option<Role>,
+    stat: Stat,
+    label: &'static str,
+}
+
+/// A chart: a title, a unit and its lines.
+#[derive(Debug, Clone)]
+struct ChartDef {
+    id: &'static str,
+    title: &'static str,
+    unit: &'static str,
+    lines: Vec<Line>,
+}
+
+fn line(metric: Metric, stat: Stat, label: &'static str) -> Line {
+    Line { metric, role: None, stat, label }
+}
+
+fn charts(order: f64) -> Vec<ChartDef> {
+    // GOSPA's parts are terms of gospa^p: metres only for p = 1.
+    let gospa_unit = if order == 1.0 { "m" } else { "m^p" };
+    vec![
+        ChartDef {
+            id: "gospa",
+            title: "Tracking error (GOSPA, 1 s mean)",
+            unit: gospa_unit,
+            lines: vec![
+                line(Metric::Gospa, Stat::Mean, "gospa"),
+                line(Metric::GospaLocalization, Stat::Mean, "localisation"),
+                line(Metric::GospaMissed, Stat::Mean, "missed"),
+                line(Metric::GospaFalse, Stat::Mean, "false"),
+            ],
+        },
+        ChartDef {
+            id: "clearance",
+            title: "Clearance (1 s minimum) and its loss (1 s mean)",
+            unit: "m",
+            lines: vec![
+                line(Metric::Clearance, Stat::Min, "clearance"),
+                line(Metric::ClearanceLoss, Stat::Mean, "loss"),
+                line(Metric::ClearanceLossLocalization, Stat::Mean, "loss: localisation"),
+                line(Metric::ClearanceLossPerception, Stat::Mean, "loss: perception"),
+                line(Metric::ClearanceLossPathFollowing, Stat::Mean, "loss: path following"),
+            ],
+        },
+        ChartDef {
+            id: "ego",
+            title: "Localisation error (1 s mean)",
+            unit: "m",
+            lines: vec![
+                line(Metric::EgoPositionError, Stat::Mean, "position"),
+                line(Metric::EgoLongitudinalError, Stat::Mean, "longitudinal"),
+                line(Metric::EgoLateralError, Stat::Mean, "lateral"),
+            ],
+        },
+        ChartDef {
+            id: "latency",
+            title: "Arrival latency (1 s p99, per role)",
+            unit: "s",
+            lines: Role::ALL
+                .iter()
+                .map(|&r| Line { metric: Metric::Latency, role: Some(r), stat: Stat::P99, label: r.name() })
+                .collect(),
+        },
+    ]
+}
+
+/// The metrics shown as tiles, with their display label and unit.
+const TILES: [(Metric, &str, &str); 8] = [
+    (Metric::Gospa, "GOSPA", "m"),
+    (Metric::Ospa, "OSPA", "m"),
+    (Metric::MissedCount, "Missed objects", "objects"),
+    (Metric::FalseCount, "False tracks", "objects"),
+    (Metric::Clearance, "Clearance", "m"),
+    (Metric::EgoPositionError, "Position error", "m"),
+    (Metric::EgoHeadingError, "Heading error", "rad"),
+    (Metric::CrossTrack, "Cross-track", "m"),
+];
+
+#[derive(Debug, Clone, Copy)]
+struct Latest {
+    t: f64,
+    value: f64,
+    seen_at: f64,
+}
+
+#[derive(Debug, Clone)]
+struct Active {
+    event: AlertEvent,
+    seen_at: f64,
+}
+
+/// The dashboard's state.
+#[derive(Debug, Clone)]
+pub struct Dashboard {
+    params: DashboardParams,
+    charts: Vec<ChartDef>,
+    /// Rows of the ring: the monitor's clock and one value per line of every chart.
+    rows: VecDeque<(f64, Vec<Option<f64>>)>,
+    capacity: usize,
+    next_row: Option<f64>,
+    latest: Vec<Option<Latest>>,
+    active: Vec<Active>,
+    recent: VecDeque<AlertEvent>,
+    /// Per role: (clock, messages) pairs for the rate, oldest first.
+    counts: Vec<VecDeque<(f64, u64)>>,
+    now: f64,
+}
+
+/// Span over which a role's message rate is measured (s).
+const RATE_SPAN: f64 = 5.0;
+
+impl Dashboard {
+    /// An empty dashboard; `order` is the GOSPA order p (it sets the parts' unit).
+    pub fn new(params: DashboardParams, order: f64) -> Dashboard {
+        let capacity = ((params.history / params.step).ceil() as usize).clamp(1, 100_000);
+        Dashboard {
+            params,
+            charts: charts(order),
+            rows: VecDeque::with_capacity(capacity),
+            capacity,
+            next_row: None,
+            latest: vec![None; TILES.len()],
+            active: Vec::new(),
+            recent: VecDeque::with_capacity(RECENT_EVENTS),
+            counts: vec![VecDeque::new(); Role::ALL.len()],
+            now: f64::NEG_INFINITY,
+        }
+    }
+
+    /// The parameters.
+    pub fn params(&self) -> DashboardParams {
+        self.params
+    }
+
+    /// Takes the samples and alert events the monitor made, at `now` on its clock.
+    pub fn observe(&mut self, now: f64, samples: &[Sample], events: &[AlertEvent]) {
+        self.now = self.now.max(now);
+        for s in samples {
+            if s.role.is_some() {
+                continue;
+            }
+            if let Some(k) = TILES.iter().position(|(m, _, _)| *m == s.metric) {
+                self.latest[k] = Some(Latest { t: s.t, value: s.value, seen_at: now });
+            }
+        }
+        for e in events {
+            let same = |a: &Active| a.event.rule == e.rule && a.event.role == e.role;
+            self.active.retain(|a| !same(a));
+            if e.kind == "raised" {
+                self.active.push(Active { event: e.clone(), seen_at: now });
+            }
+            if self.recent.len() == RECENT_EVENTS {
+                self.recent.pop_front();
+            }
+            self.recent.push_back(e.clone());
+        }
+    }
+
+    /// The clock moved to `now`: takes a chart row when one is due and counts messages
+    /// for the rates.
+    pub fn tick(&mut self, now: f64, monitor: &Monitor) {
+        self.now = self.now.max(now);
+        let due = self.next_row.is_none_or(|t| now >= t);
+        if !due {
+            return;
+        }
+        // Rows sit on the step's grid so that a late tick does not shift later rows.
+        let step = self.params.step;
+        self.next_row = Some(((now / step).floor() + 1.0) * step);
+        let mut values = Vec::new();
+        for c in &self.charts {
+            for l in &c.lines {
+                let v = monitor
+                    .windows
+                    .get(l.metric, l.role)
+                    .and_then(|ws| ws.first())
+                    .and_then(|w| w.stat(l.stat))
+                    .filter(|v| v.is_finite());
+                values.push(v);
+            }
+        }
+        if self.rows.len() == self.capacity {
+            self.rows.pop_front();
+        }
+        self.rows.push_back((now, values));
+        for r in Role::ALL {
+            let q = &mut self.counts[r.index()];
+            q.push_back((now, monitor.engine.transport(r).messages));
+            while q.len() > 2 && q[1].0 <= now - RATE_SPAN {
+                q.pop_front();
+            }
+        }
+    }
+
+    /// What the page shows now.
+    pub fn snapshot(&self, monitor: &Monitor) -> Snapshot {
+        let now = self.now;
+        let stale_after = self.params.stale_after;
+        let tiles = TILES
+            .iter()
+            .zip(&self.latest)
+            .map(|(&(m, label, unit), l)| {
+                let (value, t, age_s) = match l {
+                    Some(l) => (Some(l.value), Some(l.t), Some(now - l.seen_at)),
+                    None => (None, None, None),
+                };
+                let state = match age_s {
+                    None => "no_data",
+                    Some(a) if a > stale_after => "stale",
+                    Some(_) => "ok",
+                };
+                Tile { metric: m.name(), label, unit, value, t, age_s, state }
+            })
+            .collect();
+        let mut k = 0;
+        let charts = self
+            .charts
+            .iter()
+            .map(|c| {
+                let lines = c
+                    .lines
+                    .iter()
+                    .map(|l| {
+                        let values = self.rows.iter().map(|(_, v)| v[k]).collect();
+                        k += 1;
+                        ChartLine {
+                            metric: l.metric.name(),
+                            role: l.role.map(Role::name),
+                            stat: l.stat.name(),
+                            label: l.label,
+                            values,
+                        }
+                    })
+                    .collect();
+                Chart { id: c.id, title: c.title, unit: c.unit, lines }
+            })
+            .collect();
+        let active = self
+            .active
+            .iter()
+            .map(|a| ActiveAlert {
+                rule: a.event.rule.clone(),
+                role: a.event.role,
+                severity: a.event.severity,
+                metric: a.event.metric,
+                raised_t: a.event.t,
+                active_s: now - a.seen_at,
+                value: a.event.value,
+                threshold: a.event.threshold,
+            })
+            .collect();
+        let health_window = health_window(monitor.windows.lengths());
+        let topics = Role::ALL
+            .iter()
+            .map(|&r| {
+                let tr = monitor.engine.transport(r);
+                let staleness_s = tr.staleness(now);
+                let lat = |s| {
+                    monitor
+                        .windows
+                        .get(Metric::Latency, Some(r))
+                        .and_then(|ws| ws.get(health_window))
+                        .and_then(|w| w.stat(s))
+                };
+                let q = &self.counts[r.index()];
+                let rate_hz = match (q.front(), q.back()) {
+                    (Some(a), Some(b)) if b.0 > a.0 => Some((b.1 - a.1) as f64 / (b.0 - a.0)),
+                    _ => None,
+                };
+                let state = match staleness_s {
+                    None => "no_data",
+                    Some(s) if s > stale_after => "stale",
+                    Some(_) => "ok",
+                };
+                Topic {
+                    role: r.name(),
+                    state,
+                    rate_hz,
+                    latency_p50_s: lat(Stat::P50),
+                    latency_p99_s: lat(Stat::P99),
+                    staleness_s,
+                    messages: tr.messages,
+                    dropped: tr.dropped,
+                    decode_errors: tr.decode_errors,
+                    stamp_regressions: tr.stamp_regressions,
+                }
+            })
+            .collect();
+        let c = monitor.engine.counters();
+        Snapshot {
+            version: env!("CARGO_PKG_VERSION"),
+            now,
+            rate_hz: self.params.rate_hz,
+            history_s: self.params.history,
+            step_s: self.params.step,
+            stale_after_s: stale_after,
+            latency_window: monitor.windows.lengths().get(health_window).copied(),
+            row_times: self.rows.iter().map(|(t, _)| *t).collect(),
+            tiles,
+            charts,
+            alerts_active: active,
+            alerts_recent: self.recent.iter().rev().cloned().collect(),
+            topics,
+            verdicts: monitor.verdicts(),
+            steps: Steps {
+                tracking_evaluated: c.tracking.evaluated,
+                tracking_skipped: c.tracking.skipped,
+                ego_evaluated: c.ego.evaluated,
+                ego_skipped: c.ego.skipped,
+            },
+            collisions: monitor.engine.collisions().0.len() as u64 + monitor.engine.collisions().1,
+        }
+    }
+}
+
+/// Index of the sliding window nearest 10 s (the topic table's latency window).
+fn health_window(lengths: &[f64]) -> usize {
+    let mut best = 0;
+    for (i, &l) in lengths.iter().enumerate() {
+        if (l - 10.0).abs() < (lengths[best] - 10.0).abs() {
+            best = i;
+        }
+    }
+    best
+}
+
+/// What `/api/snapshot` returns (documented in the README's dashboard section).
+#[derive(Debug, Clone, Serialize)]
+pub struct Snapshot {
+    /// Tool version.
+    pub version: &'static str,
+    /// The monitor's clock (s).
+    pub now: f64,
+    /// Snapshots streamed per second.
+    pub rate_hz: f64,
+    /// Chart history (s).
+    pub history_s: f64,
+    /// Chart row spacing (s).
+    pub step_s: f64,
+    /// Age beyond which a value or role is stale (s).
+    pub stale_after_s: f64,
+    /// Length of the window the topic latencies are read from (s).
+    pub latency_window: Option<f64>,
+    /// The monitor's clock at each chart row, oldest first.
+    pub row_times: Vec<f64>,
+    /// Latest values.
+    pub tiles: Vec<Tile>,
+    /// Charts, each line with one value (or null) per row.
+    pub charts: Vec<Chart>,
+    /// Rules raised now.
+    pub alerts_active: Vec<ActiveAlert>,
+    /// The latest alert events, newest first.
+    pub alerts_recent: Vec<AlertEvent>,
+    /// Per-role transport health.
+    pub topics: Vec<Topic>,
+    /// Every rule's verdict so far.
+    pub verdicts: Vec<Verdict>,
+    /// Step counts.
+    pub steps: Steps,
+    /// Contacts so far.
+    pub collisions: u64,
+}
+
+/// A tile.
+#[derive(Debug, Clone, Serialize)]
+pub struct Tile {
+    /// Metric name.
+    pub metric: &'static str,
+    /// Display label.
+    pub label: &'static str,
+    /// Unit.
+    pub unit: &'static str,
+    /// Latest value.
+    pub value: Option<f64>,
+    /// Its event time.
+    pub t: Option<f64>,
+    /// Seconds since it arrived, on the monitor's clock.
+    pub age_s: Option<f64>,
+    /// `ok`, `stale` or `no_data`.
+    pub state: &'static str,
+}
+
+/// A chart.
+#[derive(Debug, Clone, Serialize)]
+pub struct Chart {
+    /// Identifier.
+    pub id: &'static str,
+    /// Title.
+    pub title: &'static str,
+    /// Unit of the y axis.
+    pub unit: &'static str,
+    /// Lines.
+    pub lines: Vec<ChartLine>,
+}
+
+/// One line of a chart.
+#[derive(Debug, Clone, Serialize)]
+pub struct ChartLine {
+    /// Metric name.
+    pub metric: &'static str,
+    /// Role, for per-role metrics.
+    pub role: Option<&'static str>,
+    /// Window statistic.
+    pub stat: &'static str,
+    /// Legend label.
+    pub label: &'static str,
+    /// One value per row (`null`: the window was empty).
+    pub values: Vec<Option<f64>>,
+}
+
+/// A raised rule.
+#[derive(Debug, Clone, Serialize)]
+pub struct ActiveAlert {
+    /// Rule name.
+    pub rule: String,
+    /// Role, for per-role rules.
+    pub role: Option<&'static str>,
+    /// Severity.
+    pub severity: &'static str,
+    /// Metric.
+    pub metric: &'static str,
+    /// Event time it was raised at (as in the alert journal).
+    pub raised_t: f64,
+    /// Seconds active, on the monitor's clock.
+    pub active_s: f64,
+    /// Value that raised it.
+    pub value: f64,
+    /// Threshold.
+    pub threshold: f64,
+}
+
+/// Transport health of one role.
+#[derive(Debug, Clone, Serialize)]
+pub struct Topic {
+    /// Role.
+    pub role: &'static str,
+    /// `ok`, `stale` or `no_data`.
+    pub state: &'static str,
+    /// Messages per second over the last 5 s of the monitor's clock.
+    pub rate_hz: Option<f64>,
+    /// Latency p50 (s).
+    pub latency_p50_s: Option<f64>,
+    /// Latency p99 (s).
+    pub latency_p99_s: Option<f64>,
+    /// Seconds since the last arrival.
+    pub staleness_s: Option<f64>,
+    /// Messages accepted.
+    pub messages: u64,
+    /// Dropped by a full queue.
+    pub dropped: u64,
+    /// Rejected while decoding or validating.
+    pub decode_errors: u64,
+    /// Stamps older than the previous one.
+    pub stamp_regressions: u64,
+}
+
+/// Step counts.
+#[derive(Debug, Clone, Serialize)]
+pub struct Steps {
+    /// Tracking steps evaluated.
+    pub tracking_evaluated: u64,
+    /// Tracking steps skipped.
+    pub tracking_skipped: u64,
+    /// Ego steps evaluated.
+    pub ego_evaluated: u64,
+    /// Ego steps skipped.
+    pub ego_skipped: u64,
+}

@@ -1,0 +1,165 @@
+// End-to-end check of the live dashboard in a real browser (Debian's chromium, driven by
+// playwright-core): start `plumbline demo`, open the page, and check that
+//   1. the charts receive new rows and points as the demo runs,
+//   2. an alert the demo raises appears on the page with the same rule name and raise time
+//      as the alert journal, and is later shown cleared, as the journal says,
+//   3. the roles the demo publishes are shown live in the topic table, and the page says
+//      when its stream is lost,
+// and save screenshots at two window sizes under target/browser/.
+// Each passed check prints `browser-check: <name>: ok` (CI counts them); a failure exits 1.
+//
+// Usage: node tests/browser/dashboard.mjs [path/to/plumbline]   (default target/debug/plumbline)
+import { spawn } from "node:child_process";
+import { mkdirSync, readFileSync, existsSync } from "node:fs";
+import { createServer } from "node:net";
+import path from "node:path";
+import { fileURLToPath } from "node:url";
+import { chromium } from "playwright-core";
+
+const root = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
+const bin = path.resolve(process.argv[2] || path.join(root, "target", "debug", "plumbline"));
+const out = path.join(root, "target", "browser");
+mkdirSync(out, { recursive: true });
+const journal = path.join(out, "demo-alerts.jsonl");
+const browserPath = process.env.CHROMIUM || "/usr/bin/chromium";
+
+function freePort() {
+  return new Promise((resolve, reject) => {
+    const s = createServer();
+    s.listen(0, "127.0.0.1", () => {
+      const p = s.address().port;
+      s.close(() => resolve(p));
+    });
+    s.on("error", reject);
+  });
+}
+
+const sleep = (ms) => new Promise((r) => setTimeout(r, ms));
+
+async function until(what, seconds, f) {
+  const t0 = Date.now();
+  while (Date.now() - t0 < seconds * 1000) {
+    const v = await f();
+    if (v) return v;
+    await sleep(200);
+  }
+  throw new Error(`timed out after ${seconds} s waiting for ${what}`);
+}
+
+function readJournal() {
+  if (!existsSync(journal)) return [];
+  return readFileSync(journal, "utf8").split("\n").filter((l) => l.trim()).map((l) => JSON.parse(l));
+}
+
+let demo, browser, failed = false;
+function ok(name) { console.log(`browser-check: ${name}: ok`); }
+
+try {
+  if (!existsSync(bin)) throw new Error(`no plumbline binary at ${bin} (cargo build first)`);
+  if (existsSync(journal)) (await import("node:fs")).unlinkSync(journal);
+  const [http, zport] = [await freePort(), await freePort()];
+  demo = spawn(bin, [
+    "--set", `http.listen=127.0.0.1:${http}`,
+    "demo", "--duration", "90", "--journal", journal,
+    "--listen", `tcp/127.0.0.1:${zport}`, "--no-multicast",
+  ], { cwd: root, stdio: ["ignore", "pipe", "inherit"] });
+  let printed = "";
+  demo.stdout.on("data", (d) => { printed += d.toString(); });
+  const url = await until("the demo to print its dashboard URL", 30, () => {
+    const m = printed.match(/dashboard at (http:\/\/\S+\/)/);
+    return m && m[1];
+  });
+  if (!url.includes(`:${http}/`)) throw new Error(`printed URL ${url} is not on port ${http}`);
+
+  browser = await chromium.launch({
+    executablePath: browserPath,
+    headless: true,
+    args: ["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+      "--disable-background-networking", "--disable-component-update", "--disable-sync"],
+  });
+  const page = await browser.newPage({ viewport: { width: 1366, height: 900 } });
+  const pageErrors = [];
+  page.on("pageerror", (e) => pageErrors.push(String(e)));
+  await page.goto(url);
+  await page.waitForSelector("#chart-gospa", { timeout: 15000 });
+
+  // 1. Charts receive new rows and points.
+  const chartState = () => page.evaluate(() => Object.fromEntries(
+    [...document.querySelectorAll(".chart")].map((c) => [c.id, { rows: +c.dataset.rows, points: +c.dataset.points }])));
+  const first = await until("points on the GOSPA and ego charts", 20, async () => {
+    const s = await chartState();
+    return s["chart-gospa"]?.points > 0 && s["chart-ego"]?.points > 0 && s;
+  });
+  await sleep(3000);
+  const second = await chartState();
+  for (const id of ["chart-gospa", "chart-ego", "chart-clearance", "chart-latency"]) {
+    if (!(second[id].rows > first[id].rows && second[id].points > first[id].points)) {
+      throw new Error(`${id} did not grow: ${JSON.stringify(first[id])} -> ${JSON.stringify(second[id])}`);
+    }
+  }
+  const drawn = await page.locator("#chart-gospa path[data-line='gospa']").getAttribute("d");
+  if (!drawn || drawn.split("L").length < 4) throw new Error("the GOSPA line has fewer than 4 points");
+  ok(`charts grow (gospa rows ${first["chart-gospa"].rows} -> ${second["chart-gospa"].rows})`);
+  await page.screenshot({ path: path.join(out, "dashboard-wide.png"), fullPage: true });
+
+  // 2. An alert raised by the demo appears with the journal's rule name and time.
+  const shown = await until("an active alert on the page", 45, async () => {
+    const li = page.locator("#alerts-active li[data-rule]").first();
+    if ((await li.count()) === 0) return null;
+    return { rule: await li.getAttribute("data-rule"), t: Number(await li.getAttribute("data-raised-t")),
+      text: await li.innerText() };
+  });
+  await page.screenshot({ path: path.join(out, "dashboard-alert-wide.png"), fullPage: true });
+  const raised = await until(`the journal to hold ${shown.rule} raised at ${shown.t}`, 5, () =>
+    readJournal().find((e) => e.kind === "raised" && e.rule === shown.rule && e.t === shown.t));
+  if (!shown.text.includes(shown.rule)) throw new Error(`the alert text lacks its rule name: ${shown.text}`);
+  ok(`alert ${raised.rule} raised at ${raised.t} as in the journal`);
+
+  // ... and is shown cleared when the journal says it cleared.
+  const cleared = await until(`${shown.rule} to clear in the journal`, 60, () =>
+    readJournal().find((e) => e.kind === "cleared" && e.rule === shown.rule && e.t >= shown.t));
+  await until(`${shown.rule} cleared on the page`, 5, async () => {
+    const ev = page.locator(`#alerts-recent li[data-rule="${shown.rule}"][data-kind="cleared"][data-t="${cleared.t}"]`);
+    const still = page.locator(`#alerts-active li[data-rule="${shown.rule}"][data-raised-t="${shown.t}"]`);
+    return (await ev.count()) > 0 && (await still.count()) === 0;
+  });
+  ok(`alert ${cleared.rule} cleared at ${cleared.t} as in the journal`);
+
+  // 3. Topic health: every role the demo publishes is live, with a rate.
+  const topics = await page.evaluate(() => [...document.querySelectorAll("#topics tbody tr")]
+    .map((r) => ({ role: r.dataset.role, state: r.dataset.state })));
+  const live = topics.filter((t) => t.state === "ok").map((t) => t.role);
+  for (const r of ["reference/objects", "estimate/objects", "reference/ego", "estimate/ego"]) {
+    if (!live.includes(r)) throw new Error(`role ${r} not shown live: ${JSON.stringify(topics)}`);
+  }
+  ok(`topic health shows ${live.length} live roles`);
+
+  // Narrow window (a phone or a half-screen laptop): nothing wider than the viewport.
+  await page.setViewportSize({ width: 420, height: 900 });
+  await sleep(700);
+  const overflow = await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+  await page.screenshot({ path: path.join(out, "dashboard-narrow.png"), fullPage: true });
+  if (overflow > 1) throw new Error(`the page is ${overflow} px wider than a 420 px window`);
+  ok("narrow window without horizontal overflow");
+
+  // The monitor goes away: the page says its stream is lost instead of showing old numbers.
+  const exited = new Promise((r) => demo.once("exit", (code) => r(code)));
+  demo.kill("SIGTERM");
+  const code = await Promise.race([exited, sleep(20000).then(() => "timeout")]);
+  if (code !== 0) throw new Error(`demo exit after SIGTERM: ${code}`);
+  await until("the page to report the lost stream", 15, async () =>
+    (await page.locator("#link").getAttribute("data-state")) === "lost");
+  ok("the page says when its stream is lost");
+  if (pageErrors.length) throw new Error("page errors: " + pageErrors.join("; "));
+} catch (e) {
+  failed = true;
+  console.error("browser-check: FAILED:", e.message);
+} finally {
+  if (browser) await browser.close();
+  if (demo && demo.exitCode === null) {
+    const exited = new Promise((r) => demo.once("exit", r));
+    demo.kill("SIGTERM");
+    await Promise.race([exited, sleep(15000)]);
+  }
+}
+process.exit(failed ? 1 : 0);

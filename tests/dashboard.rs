@@ -1,0 +1,158 @@
+//! The dashboard's model (pure): chart rows read the shortest window, gaps stay gaps, the
+//! ring is bounded, tiles and roles go stale, alerts are active from raise to clear, and the
+//! message rate is counted over the monitor's clock. Values are worked by hand.
+
+use plumbline::config::Config;
+use plumbline::core::{Input, Sample};
+use plumbline::dashboard::{Dashboard, DashboardParams};
+use plumbline::metrics::Metric;
+use plumbline::monitor::Monitor;
+use plumbline::msg::{Msg, Pose, Role};
+use plumbline::rules::AlertEvent;
+
+fn params() -> DashboardParams {
+    DashboardParams { rate_hz: 5.0, history: 2.0, step: 0.5, stale_after: 1.0 }
+}
+
+fn sample(t: f64, metric: Metric, value: f64) -> Sample {
+    Sample { t, metric, role: None, value }
+}
+
+fn line<'a>(snap: &'a plumbline::dashboard::Snapshot, chart: &str, metric: &str) -> &'a [Option<f64>] {
+    let c = snap.charts.iter().find(|c| c.id == chart).expect("chart");
+    &c.lines.iter().find(|l| l.metric == metric).expect("line").values
+}
+
+#[test]
+fn rows_read_the_shortest_window_and_gaps_stay_null() {
+    let cfg = Config::defaults(); // windows 1 s, 10 s, 60 s
+    let mut m = Monitor::new(&cfg);
+    let mut d = Dashboard::new(params(), 1.0);
+    let (mut s, mut e) = (Vec::new(), Vec::new());
+    d.tick(100.0, &m); // row 1: nothing yet
+    let extra = [sample(100.2, Metric::Gospa, 1.0), sample(100.4, Metric::Gospa, 3.0)];
+    m.inject(&mut s, &extra, &mut e);
+    d.observe(100.4, &s, &e);
+    d.tick(100.5, &m); // row 2: mean of 1 and 3
+    let snap = d.snapshot(&m);
+    assert_eq!(snap.row_times, vec![100.0, 100.5]);
+    assert_eq!(line(&snap, "gospa", "gospa"), &[None, Some(2.0)]);
+    // The parts had no value: null, not zero.
+    assert_eq!(line(&snap, "gospa", "gospa_missed"), &[None, None]);
+    // Clearance reads the window minimum.
+    s.clear();
+    let extra = [sample(100.6, Metric::Clearance, 0.8), sample(100.7, Metric::Clearance, 0.3)];
+    m.inject(&mut s, &extra, &mut e);
+    d.tick(100.9, &m); // not due: rows sit on the 0.5 s grid
+    d.tick(101.0, &m);
+    let snap = d.snapshot(&m);
+    assert_eq!(snap.row_times.len(), 3);
+    assert_eq!(line(&snap, "clearance", "clearance_m")[2], Some(0.3));
+}
+
+#[test]
+fn the_ring_keeps_history_over_step_rows() {
+    let cfg = Config::defaults();
+    let m = Monitor::new(&cfg);
+    let mut d = Dashboard::new(params(), 1.0);
+    for k in 0..50 {
+        d.tick(k as f64 * 0.5, &m);
+    }
+    let snap = d.snapshot(&m);
+    // 2 s of history at 0.5 s: 4 rows, the newest ones.
+    assert_eq!(snap.row_times, vec![23.0, 23.5, 24.0, 24.5]);
+    assert!(snap.charts.iter().all(|c| c.lines.iter().all(|l| l.values.len() == 4)));
+}
+
+#[test]
+fn tiles_go_from_no_data_to_ok_to_stale() {
+    let cfg = Config::defaults();
+    let m = Monitor::new(&cfg);
+    let mut d = Dashboard::new(params(), 1.0);
+    d.observe(10.0, &[], &[]);
+    let tile = |d: &Dashboard| d.snapshot(&m).tiles.into_iter().find(|t| t.metric == "gospa").unwrap();
+    assert_eq!(tile(&d).state, "no_data");
+    assert_eq!(tile(&d).value, None);
+    d.observe(10.5, &[sample(10.4, Metric::Gospa, 1.25)], &[]);
+    let t = tile(&d);
+    assert_eq!((t.state, t.value, t.t, t.age_s), ("ok", Some(1.25), Some(10.4), Some(0.0)));
+    d.observe(11.5, &[], &[]); // 1.0 s later: not yet beyond stale_after
+    assert_eq!(tile(&d).state, "ok");
+    d.observe(11.6, &[], &[]);
+    let t = tile(&d);
+    assert_eq!(t.state, "stale");
+    assert!((t.age_s.unwrap() - 1.1).abs() < 1e-9);
+}
+
+fn event(kind: &'static str, t: f64) -> AlertEvent {
+    AlertEvent {
+        rule: "contact".into(),
+        kind,
+        t,
+        value: 1.0,
+        threshold: 0.5,
+        severity: "critical",
+        metric: "collision",
+        stat: "max",
+        window: "1s".into(),
+        role: None,
+    }
+}
+
+#[test]
+fn an_alert_is_active_from_raise_to_clear() {
+    let cfg = Config::defaults();
+    let m = Monitor::new(&cfg);
+    let mut d = Dashboard::new(params(), 1.0);
+    d.observe(50.0, &[], &[event("raised", 49.9)]);
+    d.observe(53.0, &[], &[]);
+    let snap = d.snapshot(&m);
+    assert_eq!(snap.alerts_active.len(), 1);
+    let a = &snap.alerts_active[0];
+    assert_eq!((a.rule.as_str(), a.raised_t, a.active_s), ("contact", 49.9, 3.0));
+    d.observe(54.0, &[], &[event("cleared", 53.9)]);
+    let snap = d.snapshot(&m);
+    assert!(snap.alerts_active.is_empty());
+    // Newest first.
+    let kinds: Vec<_> = snap.alerts_recent.iter().map(|e| (e.kind, e.t)).collect();
+    assert_eq!(kinds, vec![("cleared", 53.9), ("raised", 49.9)]);
+    // Bounded.
+    for k in 0..100 {
+        d.observe(60.0 + k as f64, &[], &[event("raised", 60.0 + k as f64)]);
+    }
+    let snap = d.snapshot(&m);
+    assert_eq!(snap.alerts_recent.len(), plumbline::dashboard::RECENT_EVENTS);
+    assert_eq!(snap.alerts_active.len(), 1, "one entry per rule and role");
+}
+
+#[test]
+fn topic_rate_and_state_follow_the_monitor_clock() {
+    let cfg = Config::defaults();
+    let mut m = Monitor::new(&cfg);
+    let mut d = Dashboard::new(params(), 1.0);
+    let (mut s, mut e) = (Vec::new(), Vec::new());
+    // 10 Hz estimated poses for 3 s, ticking every 0.5 s.
+    for k in 0..=30 {
+        let t = 200.0 + k as f64 * 0.1;
+        let msg = Msg::Pose(Pose { stamp: t - 0.02, x: 0.0, y: 0.0, yaw: 0.0, v: None, cov: None });
+        m.push(Input::Message { role: Role::EstimateEgo, recv: Some(t), msg }, &mut s, &mut e);
+        if k % 5 == 0 {
+            d.observe(t, &s, &e);
+            d.tick(t, &m);
+        }
+    }
+    let snap = d.snapshot(&m);
+    let topic = |snap: &plumbline::dashboard::Snapshot, r: &str| {
+        snap.topics.iter().find(|x| x.role == r).cloned().unwrap()
+    };
+    let ego = topic(&snap, "estimate/ego");
+    assert_eq!(ego.state, "ok");
+    assert_eq!(ego.messages, 31);
+    // 30 messages between the first tick (1 message) and the last (31) 3 s later.
+    assert!((ego.rate_hz.unwrap() - 10.0).abs() < 1e-9, "{:?}", ego.rate_hz);
+    // Latency is recv - stamp = 0.02 s for every message (sketch error under 0.4%).
+    assert!((ego.latency_p99_s.unwrap() - 0.02).abs() <= 0.02 * 0.004);
+    assert_eq!(topic(&snap, "reference/ego").state, "no_data");
+    d.observe(204.5, &[], &[]);
+    assert_eq!(topic(&d.snapshot(&m), "estimate/ego").state, "stale");
+}
