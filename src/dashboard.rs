@@ -11,9 +11,10 @@
 //!   `null` while that window is empty, so a gap shows as a gap and never as a zero.
 //! - **Alerts**: the raised ones with the event time they were raised at (as in the alert
 //!   journal) and how long they have been active on the monitor's clock; the latest events.
-//! - **Topics**: per role, the message rate over the last `rate_span` of the monitor's clock,
+//! - **Topics**: per role, the message rate over the last 5 s of the monitor's clock,
 //!   latency p50/p99 of the sliding window nearest 10 s, staleness, drops, decode errors and
-//!   stamp regressions, and a state (`no_data`, `stale`, `ok`).
+//!   stamp regressions, and a state (`no_data`, `stale`, `ok`; the site map, published once
+//!   or rarely, is never stale).
 //! - **Verdicts**: every rule's verdict so far.
 //!
 //! Memory is bounded: the ring holds `history / step` rows, the event list
@@ -328,6 +329,8 @@ impl Dashboard {
                 };
                 let state = match staleness_s {
                     None => "no_data",
+                    // A site map is published once or rarely: silence is its normal state.
+                    Some(_) if r == Role::ReferenceObstacles => "ok",
                     Some(s) if s > stale_after => "stale",
                     Some(_) => "ok",
                 };

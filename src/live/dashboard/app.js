@@ -22,18 +22,23 @@ function sv(tag, attrs, text) {
 }
 
 // A number with three or four significant digits and never in exponent form, which is
-// easy to misread at a glance; magnitudes under 1e-4 read as 0.0000.
-function fmt(v, unit) {
+// easy to misread at a glance; magnitudes under 1e-4 read as 0.0000 (-0.0000 below zero,
+// so a value just under a threshold of 0 reads as under it), counts as integers.
+function fmtNum(v, unit) {
   if (v === null || v === undefined || !isFinite(v)) return "–";
   const a = Math.abs(v);
   let s;
-  if (a >= 1000) s = v.toFixed(0);
+  if (a === 0 || (unit === "objects" && Number.isInteger(v))) s = String(v);
+  else if (a >= 1000) s = v.toFixed(0);
   else if (a >= 100) s = v.toFixed(1);
   else if (a >= 10) s = v.toFixed(2);
   else if (a >= 0.01) s = v.toFixed(3);
   else s = v.toFixed(4);
-  if (/^-0\.?0*$/.test(s)) s = s.slice(1);
-  return unit ? s + " " + unit : s;
+  return s;
+}
+function fmt(v, unit) {
+  const s = fmtNum(v, unit);
+  return unit && s !== "–" ? s + " " + unit : s;
 }
 
 // Charts in seconds whose values are all under a second read better in milliseconds.
@@ -161,7 +166,7 @@ function drawTiles(tiles) {
     d.append(el("div", { class: "label" }, t.label));
     const v = el("div", { class: "value" });
     if (t.state === "no_data") v.textContent = "no data yet";
-    else { v.textContent = fmt(t.value); v.append(el("span", { class: "unit" }, t.unit)); }
+    else { v.textContent = fmtNum(t.value, t.unit); v.append(el("span", { class: "unit" }, t.unit)); }
     d.append(v);
     let age = "";
     if (t.state === "stale") age = "STALE: last value " + fmtAge(t.age_s) + " ago";
