@@ -3,7 +3,7 @@
 use std::borrow::Cow;
 use std::cell::Cell;
 use std::fs::File;
-use std::io::Write;
+use std::io::{Read, Write};
 use std::path::Path;
 
 use serde::de::{self, DeserializeSeed, Deserializer, MapAccess, Visitor};
@@ -164,11 +164,21 @@ pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<
 /// Reads a JSON Lines log on the calling thread.
 pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
     let f = File::open(path).map_err(io_err(path))?;
-    let mut framer = LineFramer::new(f);
+    read_from(cfg, f, each).map_err(io_err(path))
+}
+
+/// Reads JSON Lines from any reader: the file reader above, and in-memory bytes for the
+/// fuzz targets and property tests.
+pub fn read_from(
+    cfg: &Config,
+    r: impl Read,
+    each: &mut dyn FnMut(Item, u64),
+) -> std::io::Result<ReadOutcome> {
+    let mut framer = LineFramer::new(r);
     let limits = cfg.limits();
     let mut items = Vec::new();
     let mut bytes = 0;
-    while let Some(frame) = framer.next_frame().map_err(io_err(path))? {
+    while let Some(frame) = framer.next_frame()? {
         bytes = decode_frame(cfg, &limits, frame, &mut items);
         for item in items.drain(..) {
             each(item, bytes);

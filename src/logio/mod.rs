@@ -136,6 +136,20 @@ pub fn read_all(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> R
     }
 }
 
+/// Reads a log held in memory, in the given form (fuzz targets, property tests).
+pub fn read_bytes(
+    cfg: &Config,
+    form: Form,
+    bytes: &[u8],
+    each: &mut dyn FnMut(Item, u64),
+) -> Result<ReadOutcome, LogError> {
+    let name = Path::new("<memory>");
+    match form {
+        Form::Jsonl => jsonl::read_from(cfg, bytes, each).map_err(io_err(name)),
+        Form::Plb => plb::read_from(cfg, bytes, name, each),
+    }
+}
+
 fn io_err(path: &Path) -> impl FnOnce(std::io::Error) -> LogError + '_ {
     move |source| LogError::Io { path: path.display().to_string(), source }
 }

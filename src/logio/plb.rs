@@ -229,11 +229,24 @@ pub fn decode_frame(
 
 /// Reads a binary log on the calling thread.
 pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
-    let (header, mut framer) = open(path, false)?;
+    let f = File::open(path).map_err(io_err(path))?;
+    read_from(cfg, f, path, each)
+}
+
+/// Reads a binary log from any reader (`name` labels errors): the file reader above, and
+/// in-memory bytes for the fuzz targets and property tests.
+pub fn read_from(
+    cfg: &Config,
+    mut r: impl Read,
+    name: &Path,
+    each: &mut dyn FnMut(Item, u64),
+) -> Result<ReadOutcome, LogError> {
+    let (header, raw) = read_header(&mut r, name)?;
+    let mut framer = RecordFramer::new(r, raw.len() as u64, MAX_RECORD);
     let limits = cfg.limits();
     let mut items = Vec::new();
     let mut bytes = 0;
-    while let Some(frame) = framer.next_frame().map_err(io_err(path))? {
+    while let Some(frame) = framer.next_frame().map_err(io_err(name))? {
         let (end, tail) = decode_frame(cfg, &header.roles, &limits, frame, &mut items);
         bytes = end;
         for item in items.drain(..) {
