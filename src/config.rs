@@ -266,6 +266,16 @@ pub struct RawVehicle {
 pub struct RawHttp {
     /// listen address
     pub listen: Option<String>,
+    /// file holding the bearer token the data endpoints require
+    pub token_file: Option<String>,
+    /// requests per second per client address
+    pub requests_per_s: Option<f64>,
+    /// requests a client may make at once above that rate
+    pub burst: Option<i64>,
+    /// event streams open at once
+    pub max_streams: Option<i64>,
+    /// largest request (header and body) accepted, bytes
+    pub max_request_bytes: Option<i64>,
 }
 
 /// `[limits]`
@@ -313,6 +323,9 @@ pub struct Config {
     pub map_file: Option<String>,
     /// HTTP listen address
     pub http_listen: String,
+    /// HTTP access and limits (serving only: not part of the digest)
+    #[serde(skip)]
+    pub http: HttpParams,
     /// message size limit
     pub max_objects: usize,
     /// report percentile settings
@@ -351,6 +364,21 @@ pub struct ZenohParams {
     pub multicast: bool,
     /// passthrough zenoh config file
     pub config_file: Option<String>,
+}
+
+/// HTTP access and limits.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct HttpParams {
+    /// file holding the bearer token the data endpoints require (none: open on the bound address)
+    pub token_file: Option<String>,
+    /// requests per second per client address (a token bucket)
+    pub requests_per_s: f64,
+    /// the bucket's depth
+    pub burst: usize,
+    /// event streams open at once; more are refused with 503
+    pub max_streams: usize,
+    /// largest request accepted (declared body, and header bytes), beyond: 413 or 431
+    pub max_request_bytes: usize,
 }
 
 /// Live monitor settings.
@@ -481,6 +509,17 @@ impl Config {
         if http_listen.parse::<std::net::SocketAddr>().is_err() {
             return Err(err(source, "http.listen", "an address such as \"127.0.0.1:9464\""));
         }
+        let h = &raw.http;
+        let http = HttpParams {
+            token_file: h.token_file.clone(),
+            requests_per_s: positive(source, "http.requests_per_s", h.requests_per_s, 50.0)?,
+            burst: count(source, "http.burst", h.burst, 100)?,
+            max_streams: count(source, "http.max_streams", h.max_streams, 16)?,
+            max_request_bytes: count(source, "http.max_request_bytes", h.max_request_bytes, 16_384)?,
+        };
+        if h.token_file.as_deref().is_some_and(|f| f.trim().is_empty()) {
+            return Err(err(source, "http.token_file", "a path to a file holding the token"));
+        }
         let digits = count(source, "report.histogram_digits", raw.report.histogram_digits, 3)?;
         if !(1..=5).contains(&digits) {
             return Err(err(source, "report.histogram_digits", "a whole number from 1 to 5"));
@@ -590,6 +629,7 @@ impl Config {
             clearance,
             map_file: raw.clearance.map_file.clone(),
             http_listen,
+            http,
             max_objects,
             report,
             prefix,

@@ -384,3 +384,73 @@ fn dashboard_serves_its_page_a_snapshot_and_a_stream_at_the_configured_rate() {
     w.signal("-TERM");
     assert_eq!(w.wait(), Some(0));
 }
+
+/// Sends raw request bytes and returns the status line's code.
+fn http_raw(port: u16, request: &[u8]) -> u16 {
+    let mut s = TcpStream::connect(("127.0.0.1", port)).unwrap();
+    s.set_read_timeout(Some(Duration::from_secs(3))).unwrap();
+    let _ = s.write_all(request);
+    let mut buf = [0u8; 64];
+    let n = s.read(&mut buf).unwrap_or(0);
+    let head = String::from_utf8_lossy(&buf[..n]);
+    head.split(' ').nth(1).and_then(|c| c.parse().ok()).unwrap_or(0)
+}
+
+#[test]
+fn http_guard_token_sizes_rate_and_streams() {
+    use std::os::unix::fs::PermissionsExt;
+    let dir = tempfile::tempdir().unwrap();
+    let token = dir.path().join("token");
+    std::fs::write(&token, "s3cret\n").unwrap();
+    std::fs::set_permissions(&token, std::fs::Permissions::from_mode(0o600)).unwrap();
+    let tf = format!("http.token_file={}", token.display());
+    let global = [
+        "--set",
+        &tf,
+        "--set",
+        "http.requests_per_s=4",
+        "--set",
+        "http.burst=30",
+        "--set",
+        "http.max_streams=1",
+        "--set",
+        "http.max_request_bytes=2048",
+    ];
+    let mut w = Watcher::spawn(&global, "watch", free_port(), &[]);
+    let get = |path: &str, auth: &str| {
+        http_raw(
+            w.http,
+            format!("GET {path} HTTP/1.1\r\nHost: x\r\n{auth}Connection: close\r\n\r\n").as_bytes(),
+        )
+    };
+    let bearer = "Authorization: Bearer s3cret\r\n";
+    // Data endpoints need the token; the page, health and readiness do not.
+    assert_eq!(get("/metrics", ""), 401);
+    assert_eq!(get("/api/snapshot", "Authorization: Bearer s3cre\r\n"), 401);
+    assert_eq!(get("/metrics", bearer), 200);
+    assert_eq!(get("/api/snapshot", bearer), 200);
+    assert_eq!(get("/", ""), 200);
+    assert_eq!(get("/healthz", ""), 200);
+    // Sizes and methods.
+    let big = format!("X-Pad: {}\r\n", "a".repeat(4000));
+    assert_eq!(get("/healthz", &big), 431);
+    let post = "POST /metrics HTTP/1.1\r\nHost: x\r\nContent-Length: 100000\r\nConnection: close\r\n\r\n";
+    assert_eq!(http_raw(w.http, post.as_bytes()), 413);
+    let post = "POST /healthz HTTP/1.1\r\nHost: x\r\nContent-Length: 2\r\nConnection: close\r\n\r\nhi";
+    assert_eq!(http_raw(w.http, post.as_bytes()), 405);
+    // One stream at a time: a second one is refused while the first is open.
+    let mut first = TcpStream::connect(("127.0.0.1", w.http)).unwrap();
+    write!(first, "GET /api/stream HTTP/1.1\r\nHost: x\r\n{bearer}\r\n").unwrap();
+    std::thread::sleep(Duration::from_millis(300));
+    assert_eq!(get("/api/stream", bearer), 503);
+    drop(first);
+    // The bucket: 30 at once at most (a few were spent above), then 429 with Retry-After.
+    let codes: Vec<u16> = (0..40).map(|_| get("/healthz", "")).collect();
+    let limited = codes.iter().filter(|&&c| c == 429).count();
+    assert!(limited >= 10 && codes[..10].iter().all(|&c| c == 200), "{codes:?}");
+    // After a rest the client is served again.
+    std::thread::sleep(Duration::from_millis(1200));
+    assert_eq!(get("/healthz", ""), 200);
+    w.signal("-TERM");
+    assert_eq!(w.wait(), Some(0));
+}

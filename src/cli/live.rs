@@ -175,7 +175,7 @@ use super::fail;
 
 fn serve(cfg: &Config, stop: &Arc<AtomicBool>) -> Result<(Arc<Shared>, http::Server), String> {
     let shared = Arc::new(Shared::new(cfg));
-    let server = http::start(&cfg.http_listen, shared.clone(), stop.clone())?;
+    let server = http::start(&cfg.http_listen, &cfg.http, shared.clone(), stop.clone())?;
     Ok((shared, server))
 }
 

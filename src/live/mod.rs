@@ -1,6 +1,7 @@
 //! The live edges (feature `live`): zenoh sessions, the HTTP exposition and signals. They
 //! feed the same pure [`crate::monitor::Monitor`] that replay feeds.
 
+pub mod access;
 pub mod exposition;
 pub mod http;
 pub mod load;

@@ -66,3 +66,15 @@ pub fn decode(
 pub fn wall_now() -> f64 {
     std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs_f64()).unwrap_or(0.0)
 }
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn the_shipped_secure_config_parses_as_a_zenoh_config() {
+        let p = concat!(env!("CARGO_MANIFEST_DIR"), "/config/zenoh-secure.json5");
+        let c = zenoh::Config::from_file(p).expect("config/zenoh-secure.json5 is a valid zenoh config");
+        let tls = c.get_json("transport/link/tls/enable_mtls").unwrap();
+        assert_eq!(tls, "true");
+        assert_eq!(c.get_json("access_control/default_permission").unwrap(), "\"deny\"");
+    }
+}

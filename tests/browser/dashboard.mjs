@@ -10,7 +10,7 @@
 //
 // Usage: node tests/browser/dashboard.mjs [path/to/plumbline]   (default target/debug/plumbline)
 import { spawn } from "node:child_process";
-import { mkdirSync, readFileSync, existsSync } from "node:fs";
+import { mkdirSync, readFileSync, existsSync, writeFileSync } from "node:fs";
 import { createServer } from "node:net";
 import path from "node:path";
 import { fileURLToPath } from "node:url";
@@ -151,6 +151,30 @@ try {
     (await page.locator("#link").getAttribute("data-state")) === "lost");
   ok("the page says when its stream is lost");
   if (pageErrors.length) throw new Error("page errors: " + pageErrors.join("; "));
+
+  // 4. With a token file, the page asks for the token, and streams once it has it.
+  const tokenFile = path.join(out, "token");
+  writeFileSync(tokenFile, "field-day-7Qx\n", { mode: 0o600 });
+  const [http2, zport2] = [await freePort(), await freePort()];
+  demo = spawn(bin, [
+    "--set", `http.listen=127.0.0.1:${http2}`, "--set", `http.token_file=${tokenFile}`,
+    "demo", "--duration", "40", "--listen", `tcp/127.0.0.1:${zport2}`, "--no-multicast",
+  ], { cwd: root, stdio: ["ignore", "ignore", "inherit"] });
+  const page2 = await browser.newPage({ viewport: { width: 1366, height: 900 } });
+  await until("the second demo to serve", 30, async () => {
+    try { return (await fetch(`http://127.0.0.1:${http2}/healthz`)).ok; } catch { return false; }
+  });
+  const denied = await fetch(`http://127.0.0.1:${http2}/api/snapshot`);
+  if (denied.status !== 401) throw new Error(`snapshot without a token: HTTP ${denied.status}`);
+  await page2.goto(`http://127.0.0.1:${http2}/`);
+  await page2.waitForSelector("#token-form:not([hidden])", { timeout: 10000 });
+  await page2.fill("#token", "field-day-7Qx");
+  await page2.click("#token-form button");
+  await until("the stream after the token", 20, async () =>
+    (await page2.locator("#link").getAttribute("data-state")) === "live" &&
+    +(await page2.locator("#chart-gospa").getAttribute("data-rows") || 0) > 0);
+  ok("with a token file the page asks for the token and then streams");
+  await page2.close();
 } catch (e) {
   failed = true;
   console.error("browser-check: FAILED:", e.message);

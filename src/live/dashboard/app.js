@@ -262,14 +262,70 @@ function setLink(state, text) {
   l.textContent = text;
 }
 
-function connect() {
-  fetch("api/snapshot").then((r) => r.json()).then(render).catch(() => {});
-  const es = new EventSource("api/stream");
-  es.addEventListener("snapshot", (ev) => {
-    setLink("live", "streaming");
-    try { render(JSON.parse(ev.data)); } catch (e) { /* a torn event: the next one redraws */ }
-  });
-  es.onerror = () => setLink("lost", "connection lost: retrying");
+// === the stream ===
+// Read with fetch rather than EventSource so that a bearer token (when the monitor has
+// `http.token_file`) can go in the Authorization header. The token stays in this tab's
+// sessionStorage.
+
+const sleep = (ms) => new Promise((r) => setTimeout(r, ms));
+
+function headers() {
+  const t = sessionStorage.getItem("plumbline-token");
+  return t ? { Authorization: "Bearer " + t } : {};
 }
 
-connect();
+function askToken() {
+  setLink("lost", "token needed");
+  const form = document.getElementById("token-form");
+  form.hidden = false;
+  return new Promise((resolve) => {
+    form.onsubmit = (ev) => {
+      ev.preventDefault();
+      sessionStorage.setItem("plumbline-token", document.getElementById("token").value.trim());
+      form.hidden = true;
+      resolve();
+    };
+  });
+}
+
+// One server-sent event block: `event:` and `data:` lines (comments start with ':').
+function handleEvent(block) {
+  let name = "message";
+  const data = [];
+  for (const line of block.split("\n")) {
+    if (line.startsWith("event:")) name = line.slice(6).trim();
+    else if (line.startsWith("data:")) data.push(line.slice(5).replace(/^ /, ""));
+  }
+  if (name !== "snapshot" || data.length === 0) return;
+  try { render(JSON.parse(data.join("\n"))); } catch (e) { /* a torn event: the next one redraws */ }
+}
+
+async function follow() {
+  for (;;) {
+    try {
+      const r = await fetch("api/stream", { headers: headers(), cache: "no-store" });
+      if (r.status === 401) { await askToken(); continue; }
+      if (!r.ok) throw new Error("HTTP " + r.status);
+      setLink("live", "streaming");
+      const reader = r.body.getReader();
+      const dec = new TextDecoder();
+      let buf = "";
+      for (;;) {
+        const { value, done } = await reader.read();
+        if (done) break;
+        buf += dec.decode(value, { stream: true }).replace(/\r\n/g, "\n");
+        let i;
+        while ((i = buf.indexOf("\n\n")) >= 0) {
+          handleEvent(buf.slice(0, i));
+          buf = buf.slice(i + 2);
+        }
+      }
+    } catch (e) { /* fall through: retry */ }
+    setLink("lost", "connection lost: retrying");
+    await sleep(1000);
+  }
+}
+
+fetch("api/snapshot", { headers: headers(), cache: "no-store" })
+  .then((r) => (r.ok ? r.json() : null)).then(render).catch(() => {});
+follow();
