@@ -31,8 +31,8 @@ fn bench(c: &mut Criterion) {
         b.iter(|| {
             k += 1;
             let (x, y, yaw) = ((k % 200) as f64, ((k * 7) % 200) as f64, (k % 6) as f64);
-            let poly = fp.polygon(x, y, yaw);
-            index.nearest(&poly, [x, y], fp.circumradius())
+            let placed = fp.place(x, y, yaw);
+            index.nearest(&placed, [x, y], fp.circumradius())
         })
     });
     // A 50 m plan densified to 0.5 m: the footprint at each of its 101 poses.
@@ -45,7 +45,7 @@ fn bench(c: &mut Criterion) {
                 .iter()
                 .map(|p| {
                     index
-                        .nearest(&fp.polygon(p[0], p[1], 0.0), *p, fp.circumradius())
+                        .nearest(&fp.place(p[0], p[1], 0.0), *p, fp.circumradius())
                         .map_or(f64::INFINITY, |n| n.distance)
                 })
                 .fold(f64::INFINITY, f64::min)

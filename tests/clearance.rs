@@ -29,23 +29,27 @@ fn footprint_distances_match_shapely() {
     let mut zeros = 0;
     for (k, c) in cases.iter().enumerate() {
         let p = &c["pose"];
-        let poly = fp.polygon(f(&p[0]), f(&p[1]), f(&p[2]));
+        let placed = fp.place(f(&p[0]), f(&p[1]), f(&p[2]));
         let id = ObstacleId::Map(k as u64);
-        let body = match c["shape"].as_str().unwrap() {
-            "circle" => Body::disc(id, [f(&c["c"][0]), f(&c["c"][1])], f(&c["r"])),
-            "box" => Body::poly(
-                id,
-                &box_corners(f(&c["c"][0]), f(&c["c"][1]), f(&c["yaw"]), f(&c["length"]), f(&c["width"])),
-            ),
+        let mut bodies = match c["shape"].as_str().unwrap() {
+            "circle" => vec![Body::disc(id, [f(&c["c"][0]), f(&c["c"][1])], f(&c["r"]))],
+            // A box both ways: the closed-form rectangle and the general polygon.
+            "box" => {
+                let (x, y, yaw, l, w) =
+                    (f(&c["c"][0]), f(&c["c"][1]), f(&c["yaw"]), f(&c["length"]), f(&c["width"]));
+                vec![Body::rect(id, x, y, yaw, l, w), Body::poly(id, &box_corners(x, y, yaw, l, w))]
+            }
             _ => {
                 let pts: Vec<[f64; 2]> =
                     c["points"].as_array().unwrap().iter().map(|q| [f(&q[0]), f(&q[1])]).collect();
-                Body::poly(id, &pts)
+                vec![Body::poly(id, &pts)]
             }
         };
         let want = f(&c["distance"]);
-        let got = body.distance(&poly);
-        assert!((got - want).abs() < 1e-9, "case {k} ({}): {got} vs shapely {want}", c["shape"]);
+        for body in bodies.drain(..) {
+            let got = body.distance(&placed);
+            assert!((got - want).abs() < 1e-9, "case {k} ({}): {got} vs shapely {want}", c["shape"]);
+        }
         if want == 0.0 {
             zeros += 1;
         }
@@ -149,4 +153,31 @@ fn shipped_log_has_one_brief_contact_close_passes_and_a_detour() {
     let dev = r.report.metrics["path_deviation_m"].max;
     assert!(dev > 0.5, "{dev}");
     assert!(r.report.totals["path_missing"] >= 1.0);
+}
+
+proptest::proptest! {
+    #![proptest_config(proptest::prelude::ProptestConfig { cases: 3000, ..Default::default() })]
+
+    /// Source: the `geo` crate's general polygon distance (edge-pair walk) and intersection
+    /// test. The closed-form rectangle distances must agree with it on random boxes and
+    /// discs around random footprint poses, overlapping, touching-close and far.
+    #[test]
+    fn closed_form_rectangle_distances_match_geo(
+        x in -20.0f64..20.0, y in -20.0f64..20.0, yaw in -3.2f64..3.2,
+        bx in -20.0f64..20.0, by in -20.0f64..20.0, byaw in -3.2f64..3.2,
+        l in 0.1f64..12.0, w in 0.1f64..6.0, r in 0.0f64..3.0,
+    ) {
+        use geo::{Distance, Euclidean, Intersects};
+        let fp = Footprint { length: 4.0, width: 1.8, origin_to_rear: 1.0 };
+        let placed = fp.place(x, y, yaw);
+        let id = ObstacleId::Map(0);
+        let general = Body::poly(id, &box_corners(bx, by, byaw, l, w));
+        let closed = Body::rect(id, bx, by, byaw, l, w);
+        let (a, b) = (closed.distance(&placed), general.distance(&placed));
+        proptest::prop_assert!((a - b).abs() < 1e-9, "rect {a} vs geo {b}");
+        let disc = Body::disc(id, [bx, by], r).distance(&placed);
+        let p = geo::Point::new(bx, by);
+        let want = if placed.poly.intersects(&p) { 0.0 } else { (Euclidean::distance(&placed.poly, &p) - r).max(0.0) };
+        proptest::prop_assert!((disc - want).abs() < 1e-9, "disc {disc} vs geo {want}");
+    }
 }

@@ -18,12 +18,20 @@
 use crate::geometry::Body;
 use crate::metrics::ego::wrap_angle;
 
+/// Euclidean length of (dx, dy). Coordinates are validated finite metres, far from where
+/// the squares could overflow, so the plain root serves where `hypot`'s guard would cost
+/// several times as much on every densified point.
+#[inline]
+pub fn norm(dx: f64, dy: f64) -> f64 {
+    (dx * dx + dy * dy).sqrt()
+}
+
 /// Resamples a polyline at most `step` apart (keeping the vertices).
 pub fn densify(pts: &[[f64; 2]], step: f64) -> Vec<[f64; 2]> {
     let mut out = Vec::with_capacity(pts.len());
     for w in pts.windows(2) {
         let (a, b) = (w[0], w[1]);
-        let d = (b[0] - a[0]).hypot(b[1] - a[1]);
+        let d = norm(b[0] - a[0], b[1] - a[1]);
         let n = ((d / step).ceil() as usize).max(1);
         for k in 0..n {
             let f = k as f64 / n as f64;
@@ -38,16 +46,13 @@ pub fn densify(pts: &[[f64; 2]], step: f64) -> Vec<[f64; 2]> {
 
 /// Polyline length (m).
 pub fn length(pts: &[[f64; 2]]) -> f64 {
-    pts.windows(2).map(|w| (w[1][0] - w[0][0]).hypot(w[1][1] - w[0][1])).sum()
+    pts.windows(2).map(|w| norm(w[1][0] - w[0][0], w[1][1] - w[0][1])).sum()
 }
 
 /// Menger curvature of three points (1/m); 0 when two coincide.
 pub fn menger(a: [f64; 2], b: [f64; 2], c: [f64; 2]) -> f64 {
-    let (ab, bc, ca) = (
-        (b[0] - a[0]).hypot(b[1] - a[1]),
-        (c[0] - b[0]).hypot(c[1] - b[1]),
-        (a[0] - c[0]).hypot(a[1] - c[1]),
-    );
+    let (ab, bc, ca) =
+        (norm(b[0] - a[0], b[1] - a[1]), norm(c[0] - b[0], c[1] - b[1]), norm(a[0] - c[0], a[1] - c[1]));
     let cross = (b[0] - a[0]) * (c[1] - b[1]) - (b[1] - a[1]) * (c[0] - b[0]);
     let den = ab * bc * ca;
     if den <= 1e-12 {
@@ -62,11 +67,13 @@ pub fn curvature_max(pts: &[[f64; 2]]) -> f64 {
     pts.windows(3).map(|w| menger(w[0], w[1], w[2])).fold(0.0, f64::max)
 }
 
-fn seg_distance(p: [f64; 2], a: [f64; 2], b: [f64; 2]) -> f64 {
+/// Squared distance from a point to a segment (the callers compare, then take one root).
+fn seg_distance2(p: [f64; 2], a: [f64; 2], b: [f64; 2]) -> f64 {
     let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
     let l2 = dx * dx + dy * dy;
     let t = if l2 > 0.0 { (((p[0] - a[0]) * dx + (p[1] - a[1]) * dy) / l2).clamp(0.0, 1.0) } else { 0.0 };
-    (p[0] - a[0] - t * dx).hypot(p[1] - a[1] - t * dy)
+    let (ex, ey) = (p[0] - a[0] - t * dx, p[1] - a[1] - t * dy);
+    ex * ex + ey * ey
 }
 
 /// Largest departure from the chord over every stretch of `window` metres of arc length.
@@ -75,11 +82,11 @@ pub fn deviation_max(pts: &[[f64; 2]], window: f64) -> f64 {
     let mut s = 0.0;
     for (i, p) in pts.iter().enumerate() {
         if i > 0 {
-            s += (p[0] - pts[i - 1][0]).hypot(p[1] - pts[i - 1][1]);
+            s += norm(p[0] - pts[i - 1][0], p[1] - pts[i - 1][1]);
         }
         arc.push(s);
     }
-    let mut best = 0.0f64;
+    let mut best2 = 0.0f64;
     let mut j = 0;
     for i in 0..pts.len() {
         j = j.max(i);
@@ -87,13 +94,13 @@ pub fn deviation_max(pts: &[[f64; 2]], window: f64) -> f64 {
             j += 1;
         }
         for k in i + 1..j {
-            best = best.max(seg_distance(pts[k], pts[i], pts[j]));
+            best2 = best2.max(seg_distance2(pts[k], pts[i], pts[j]));
         }
         if j + 1 == pts.len() && arc[j] - arc[i] < window {
             break;
         }
     }
-    best
+    best2.sqrt()
 }
 
 /// Where a point projects onto a polyline.
@@ -109,8 +116,10 @@ pub struct Projection {
 
 /// Projects (x, y) onto the polyline (at least two points).
 pub fn project(pts: &[[f64; 2]], x: f64, y: f64) -> Option<Projection> {
-    let mut best: Option<(f64, Projection)> = None;
-    for w in pts.windows(2) {
+    // Squared distances compare the same; the root, the side and the heading are taken
+    // for the nearest segment only.
+    let mut best: Option<(f64, usize, [f64; 2])> = None;
+    for (i, w) in pts.windows(2).enumerate() {
         let (a, b) = (w[0], w[1]);
         let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
         let l2 = dx * dx + dy * dy;
@@ -119,14 +128,19 @@ pub fn project(pts: &[[f64; 2]], x: f64, y: f64) -> Option<Projection> {
         }
         let t = (((x - a[0]) * dx + (y - a[1]) * dy) / l2).clamp(0.0, 1.0);
         let q = [a[0] + t * dx, a[1] + t * dy];
-        let d = (x - q[0]).hypot(y - q[1]);
-        if best.as_ref().is_none_or(|(bd, _)| d < *bd) {
-            let side = dx * (y - a[1]) - dy * (x - a[0]);
-            let lateral = if side >= 0.0 { d } else { -d };
-            best = Some((d, Projection { point: q, yaw: dy.atan2(dx), lateral }));
+        let (ex, ey) = (x - q[0], y - q[1]);
+        let d2 = ex * ex + ey * ey;
+        if best.is_none_or(|(bd2, _, _)| d2 < bd2) {
+            best = Some((d2, i, q));
         }
     }
-    best.map(|(_, p)| p)
+    best.map(|(d2, i, q)| {
+        let (a, b) = (pts[i], pts[i + 1]);
+        let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
+        let d = d2.sqrt();
+        let side = dx * (y - a[1]) - dy * (x - a[0]);
+        Projection { point: q, yaw: dy.atan2(dx), lateral: if side >= 0.0 { d } else { -d } }
+    })
 }
 
 /// Heading error against a projection, wrapped to (-pi, pi].
@@ -222,6 +236,10 @@ impl Grid {
     pub fn shortest(&self, start: [f64; 2], goal: [f64; 2]) -> Option<f64> {
         let s = self.cell_clamped(start);
         let g = self.cell_clamped(goal);
+        // In line of sight, A* and string pulling would end at the same straight segment.
+        if self.line_free(s, g) {
+            return Some(length(&[start, goal]));
+        }
         let (w, h) = (self.w as isize, self.h as isize);
         // Integer costs in 1/1000 cell for A*: straight 1000, diagonal 1414.
         let succ = |&(i, j): &(usize, usize)| -> Vec<((usize, usize), u64)> {
