@@ -28,6 +28,7 @@ for _ in $(seq 1 100); do
   curl -sf "127.0.0.1:$hport/readyz" >/dev/null 2>&1 && break
   sleep 0.1
 done
+curl -sf "127.0.0.1:$hport/readyz" >/dev/null || { echo "fault-router-restart: the watcher did not become ready"; tail -5 "$dir/watch.log"; exit 1; }
 "$bin" load --rate 200 --seconds 16 --objects 5 --mode client --connect "tcp/127.0.0.1:$rport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!

@@ -30,6 +30,7 @@ for _ in $(seq 1 100); do
   curl -sf "127.0.0.1:$hport/readyz" >/dev/null 2>&1 && break
   sleep 0.1
 done
+curl -sf "127.0.0.1:$hport/readyz" >/dev/null || { echo "$mode: the watcher did not become ready"; tail -5 "$dir/watch.log"; exit 1; }
 "$bin" load --rate "$rate" --seconds "$secs" --objects 10 --connect "tcp/127.0.0.1:$zport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!

@@ -40,6 +40,12 @@ pub fn open(cfg: &Config) -> Result<zenoh::Session, String> {
         set(&mut zc, "listen/endpoints", serde_json::to_string(&z.listen).unwrap_or_default())?;
     }
     set(&mut zc, "scouting/multicast/enabled", z.multicast.to_string())?;
+    if z.config_file.is_none() {
+        // Reconnect to a restarted router within a second rather than zenoh's default
+        // back-off up to 4 s (a passthrough config file keeps its own settings).
+        let retry = "{period_init_ms: 250, period_max_ms: 1000, period_increase_factor: 2}";
+        set(&mut zc, "connect/retry", retry.into())?;
+    }
     zenoh::open(zc).wait().map_err(|e| format!("opening the zenoh session: {e}"))
 }
 
