@@ -2,7 +2,7 @@
 # Load and soak of the live watcher, loopback only; every process stops by itself.
 #   bash scripts/load-soak.sh load [RATE] [SECONDS]   # default 2 x 40000 msg/s for 60 s
 #   bash scripts/load-soak.sh soak [RATE] [SECONDS]   # default 1000 msg/s for 600 s
-# The watcher (release build) listens on loopback; `plumbline load` publishes 10-object
+# The watcher (release build) listens on loopback; `plumbline load` publishes OBJECTS-object (10)
 # sets at RATE for SECONDS. Meanwhile /metrics is fetched every 0.5 s, timing each answer,
 # and the watcher's RSS is read from /proc. Prints: messages taken and dropped per role,
 # /metrics answer time (max, p99), RSS (start, peak, end) and, for soak, the growth from the
@@ -22,7 +22,7 @@ dir=$(mktemp -d)
 port() { python3 -c 'import socket; s=socket.socket(); s.bind(("127.0.0.1",0)); print(s.getsockname()[1])'; }
 zport=$(port)
 hport=$(port)
-"$bin" --set "http.listen=127.0.0.1:$hport" --set http.requests_per_s=1000 watch \
+"$bin" --set "http.listen=127.0.0.1:$hport" --set http.requests_per_s=1000 ${WATCH_SET:-} watch \
   --listen "tcp/127.0.0.1:$zport" --no-multicast --duration $((secs + 20)) >"$dir/watch.log" 2>&1 &
 wpid=$!
 trap 'kill $wpid 2>/dev/null || true; rm -rf "$dir"' EXIT
@@ -31,7 +31,7 @@ for _ in $(seq 1 100); do
   sleep 0.1
 done
 curl -sf "127.0.0.1:$hport/readyz" >/dev/null || { echo "$mode: the watcher did not become ready"; tail -5 "$dir/watch.log"; exit 1; }
-"$bin" load --rate "$rate" --seconds "$secs" --objects 10 --connect "tcp/127.0.0.1:$zport" \
+"$bin" load --rate "$rate" --seconds "$secs" --objects "${OBJECTS:-10}" ${BINARY:+--binary} --connect "tcp/127.0.0.1:$zport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!
 python3 - "$mode" "$wpid" "$lpid" "$hport" "$secs" <<'PY'
@@ -52,10 +52,16 @@ def totals(body, name):
             role = line.split('role="')[1].split('"')[0]
             out[role] = out.get(role, 0) + float(line.rsplit(" ", 1)[1])
     return out
+def alive(pid):
+    # The load generator is bash's child, not ours: read its state (Z once it has exited).
+    try:
+        return open(f"/proc/{pid}/stat").read().rsplit(")", 1)[1].split()[0] != "Z"
+    except FileNotFoundError:
+        return False
 times, rss, start = [], [], time.time()
 rss0 = rss_kb()
 while True:
-    done = os.waitpid(lpid, os.WNOHANG)[0] != 0
+    done = not alive(lpid)
     dt, body = scrape()
     times.append(dt)
     rss.append((time.time() - start, rss_kb()))
@@ -71,6 +77,8 @@ peak = max(r for _, r in rss)
 print(f"{mode}: {sum(msgs.values()):.0f} messages taken, per role {msgs}; dropped per role {drops}")
 print(f"{mode}: /metrics answered {len(times)} times: max {max(times) * 1e3:.1f} ms, p99 {p99 * 1e3:.1f} ms")
 print(f"{mode}: RSS start {rss0 / 1024:.1f} MB, peak {peak / 1024:.1f} MB, end {rss[-1][1] / 1024:.1f} MB")
+every = max(1, len(rss) // 10)
+print(f"{mode}: RSS over time (s: MB): " + ", ".join(f"{t:.0f}: {r / 1024:.0f}" for t, r in rss[::every]))
 ok = True
 if mode == "load":
     ok = max(times) <= 0.1

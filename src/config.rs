@@ -160,6 +160,8 @@ pub struct RawZenoh {
 pub struct RawLive {
     /// capacity of the queue from the subscriptions to the engine
     pub queue: Option<i64>,
+    /// objects (and obstacles, and path poses) the queue may hold at once
+    pub queue_objects: Option<i64>,
     /// how often the clock advances the engine when no message arrives
     pub tick: Option<toml::Value>,
     /// how often the exposition refreshes its gauges
@@ -386,6 +388,9 @@ pub struct HttpParams {
 pub struct LiveParams {
     /// queue capacity (messages); when full, the newest message is dropped and counted
     pub queue: usize,
+    /// queue capacity in objects (a message counts its objects, obstacles or path poses,
+    /// at least 1): the memory bound when messages are large
+    pub queue_objects: usize,
     /// engine clock tick (s)
     pub tick: f64,
     /// gauge refresh period (s)
@@ -560,6 +565,7 @@ impl Config {
         let l = &raw.live;
         let live = LiveParams {
             queue: count(source, "live.queue", l.queue, 65_536)?,
+            queue_objects: count(source, "live.queue_objects", l.queue_objects, 500_000)?,
             tick: duration(source, "live.tick", &l.tick, 0.05)?,
             refresh: duration(source, "live.refresh", &l.refresh, 0.2)?,
             flush: duration(source, "live.flush", &l.flush, 0.1)?,

@@ -1,6 +1,6 @@
 //! `watch`: the live monitor. Subscriptions decode samples on zenoh's threads and hand them
-//! through one bounded queue (when full, the newest message is dropped and counted per
-//! role) to the engine loop on the calling thread, which drives the same [`Monitor`] that
+//! through one bounded queue (bounded in messages and in objects; when full, the newest
+//! message is dropped and counted per role) to the engine loop on the calling thread, which drives the same [`Monitor`] that
 //! replay drives, advances it on a clock tick so waiting steps resolve by `max_wait`, feeds
 //! the recorder, the alert journal and the alerts key, and refreshes the exposition.
 //! One shutdown path: the `stop` flag (set by SIGINT/SIGTERM or the caller) ends the loop,
@@ -77,11 +77,16 @@ pub fn run(
 ) -> Result<Report, String> {
     let (tx, rx) = sync_channel::<Item>(cfg.live.queue);
     let dropped: Arc<Vec<AtomicU64>> = Arc::new(Role::ALL.iter().map(|_| AtomicU64::new(0)).collect());
-    // Messages in the queue: counted up on send, down on receipt, for the queue gauge.
+    // Messages in the queue: counted up on send, down on receipt, for the queue gauge; and
+    // their objects, against `live.queue_objects`, so that large messages cannot make the
+    // queue's memory grow past that bound.
     let queued = Arc::new(AtomicI64::new(0));
+    let queued_objects = Arc::new(AtomicI64::new(0));
+    let object_budget = cfg.live.queue_objects as i64;
     let mut subs = Vec::new();
     for (role, key) in &cfg.roles {
         let (role, tx, dropped, c, q) = (*role, tx.clone(), dropped.clone(), cfg.clone(), queued.clone());
+        let qo = queued_objects.clone();
         let sub = session
             .declare_subscriber(key.as_str())
             .callback(move |sample| {
@@ -89,11 +94,18 @@ pub fn run(
                 let payload = sample.payload().to_bytes();
                 let rec =
                     zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv);
+                let n = weight(&rec);
+                if qo.fetch_add(n, Ordering::Relaxed) + n > object_budget {
+                    qo.fetch_sub(n, Ordering::Relaxed);
+                    dropped[role.index()].fetch_add(1, Ordering::Relaxed);
+                    return;
+                }
                 match tx.try_send((role, Instant::now(), rec)) {
                     Ok(()) => {
                         q.fetch_add(1, Ordering::Relaxed);
                     }
                     Err(TrySendError::Full(_)) => {
+                        qo.fetch_sub(n, Ordering::Relaxed);
                         dropped[role.index()].fetch_add(1, Ordering::Relaxed);
                     }
                     Err(TrySendError::Disconnected(_)) => {}
@@ -157,6 +169,7 @@ pub fn run(
                     batch.push(x);
                 }
                 queued.fetch_sub(batch.len() as i64, Ordering::Relaxed);
+                queued_objects.fetch_sub(batch.iter().map(|(_, _, r)| weight(r)).sum(), Ordering::Relaxed);
                 for (role, got, item) in batch {
                     let before = samples.len();
                     match item {
@@ -304,6 +317,20 @@ pub fn run(
         std::fs::write(p, report.to_json()).map_err(|e| format!("{}: {e}", p.display()))?;
     }
     Ok(report)
+}
+
+/// What a queued message counts against `live.queue_objects`.
+fn weight(rec: &Result<LogRecord, Reject>) -> i64 {
+    match rec {
+        Ok(r) => match &r.msg {
+            crate::msg::Msg::Objects(m) => m.objects.len(),
+            crate::msg::Msg::Obstacles(m) => m.obstacles.len(),
+            crate::msg::Msg::Path(m) => m.poses.len(),
+            crate::msg::Msg::Pose(_) => 1,
+        }
+        .max(1) as i64,
+        Err(_) => 1,
+    }
 }
 
 fn publish_snapshot(shared: &Shared, dashboard: &Dashboard, monitor: &Monitor) {
