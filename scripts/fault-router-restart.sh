@@ -6,13 +6,9 @@
 # before, during and after the outage. Skips when zenohd is not installed.
 set -euo pipefail
 cd "$(dirname "$0")/.."
-if ! command -v zenohd >/dev/null; then
-  echo "fault-router-restart: zenohd not installed: skipped (cargo install zenohd)"
-  exit 0
-fi
-bin=${PLUMBLINE_BIN:-target/debug/plumbline}
+. scripts/lib.sh
+need_zenohd fault-router-restart
 dir=$(mktemp -d)
-port() { python3 -c 'import socket; s=socket.socket(); s.bind(("127.0.0.1",0)); print(s.getsockname()[1])'; }
 rport=$(port)
 hport=$(port)
 router() { zenohd --listen "tcp/127.0.0.1:$rport" --no-multicast-scouting >>"$dir/router.log" 2>&1 & echo $!; }
@@ -24,11 +20,7 @@ sleep 1.5
   --no-multicast >"$dir/watch.log" 2>&1 &
 wpid=$!
 trap cleanup EXIT
-for _ in $(seq 1 100); do
-  curl -sf "127.0.0.1:$hport/readyz" >/dev/null 2>&1 && break
-  sleep 0.1
-done
-curl -sf "127.0.0.1:$hport/readyz" >/dev/null || { echo "fault-router-restart: the watcher did not become ready"; tail -5 "$dir/watch.log"; exit 1; }
+wait_ready "$hport" "$dir/watch.log"
 "$bin" load --rate 200 --seconds 16 --objects 5 --mode client --connect "tcp/127.0.0.1:$rport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!

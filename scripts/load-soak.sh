@@ -16,21 +16,17 @@ case "$mode" in
   soak) rate=${2:-1000}; secs=${3:-600} ;;
   *) echo "usage: $0 load|soak [RATE] [SECONDS]"; exit 2 ;;
 esac
-bin=${PLUMBLINE_BIN:-target/release/plumbline}
+PLUMBLINE_BIN=${PLUMBLINE_BIN:-target/release/plumbline}
+. scripts/lib.sh
 [ -x "$bin" ] || cargo build --release --locked
 dir=$(mktemp -d)
-port() { python3 -c 'import socket; s=socket.socket(); s.bind(("127.0.0.1",0)); print(s.getsockname()[1])'; }
 zport=$(port)
 hport=$(port)
 "$bin" --set "http.listen=127.0.0.1:$hport" --set http.requests_per_s=1000 ${WATCH_SET:-} watch \
   --listen "tcp/127.0.0.1:$zport" --no-multicast --duration $((secs + 20)) >"$dir/watch.log" 2>&1 &
 wpid=$!
 trap 'kill $wpid 2>/dev/null || true; rm -rf "$dir"' EXIT
-for _ in $(seq 1 100); do
-  curl -sf "127.0.0.1:$hport/readyz" >/dev/null 2>&1 && break
-  sleep 0.1
-done
-curl -sf "127.0.0.1:$hport/readyz" >/dev/null || { echo "$mode: the watcher did not become ready"; tail -5 "$dir/watch.log"; exit 1; }
+wait_ready "$hport" "$dir/watch.log"
 "$bin" load --rate "$rate" --seconds "$secs" --objects "${OBJECTS:-10}" ${BINARY:+--binary} --connect "tcp/127.0.0.1:$zport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!

@@ -3,24 +3,13 @@
 //! the bad ones. Stamp disorder and clock jumps are not bad records (SPEC §4: a regression
 //! is counted and still used): they are counted and the run goes on with bounded memory.
 
+mod support;
+
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use plumbline::config::Config;
-use plumbline::core::Sample;
-use plumbline::replay::{replay, ReplayOptions, Replayed};
-
-fn repo(p: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(p)
-}
-
-fn run(cfg: &Config, path: &Path) -> (Replayed, Vec<Sample>) {
-    let mut samples = Vec::new();
-    let mut hook = |s: &[Sample], _: &[plumbline::rules::AlertEvent]| samples.extend_from_slice(s);
-    let r = replay(cfg, path, ReplayOptions { series: None, progress: &|_| {}, on_samples: Some(&mut hook) })
-        .expect("replay");
-    (r, samples)
-}
+use support::{repo, run};
 
 fn first_lines(n: usize) -> Vec<String> {
     std::fs::read_to_string(repo("replay-logs/campus-loop.jsonl"))

@@ -1,26 +1,16 @@
 //! End to end through the replay edge: the shipped log against an independent evaluator,
 //! both log forms, torn tails and bad records.
 
+mod support;
+
 use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use plumbline::config::Config;
-use plumbline::core::Sample;
 use plumbline::logio::{read_all, Item, LogWriter};
-use plumbline::replay::{replay, ReplayOptions, Replayed};
+use plumbline::replay::Replayed;
 use serde_json::Value;
-
-fn repo(p: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(p)
-}
-
-fn run(cfg: &Config, path: &Path) -> (Replayed, Vec<Sample>) {
-    let mut samples = Vec::new();
-    let mut hook = |s: &[Sample], _: &[plumbline::rules::AlertEvent]| samples.extend_from_slice(s);
-    let r = replay(cfg, path, ReplayOptions { series: None, progress: &|_| {}, on_samples: Some(&mut hook) })
-        .expect("replay");
-    (r, samples)
-}
+use support::{repo, run};
 
 /// Source: tests/reference/evaluate.py, an independent numpy/scipy implementation of the
 /// contract, run on the shipped log (its output is committed as a fixture).
