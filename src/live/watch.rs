@@ -1,8 +1,9 @@
 //! `watch`: the live monitor. Subscriptions decode samples on zenoh's threads and hand them
 //! through one bounded queue (bounded in messages and in objects; when full, the newest
-//! message is dropped and counted per role) to the engine loop on the calling thread, which drives the same [`Monitor`] that
-//! replay drives, advances it on a clock tick so waiting steps resolve by `max_wait`, feeds
-//! the recorder, the alert journal and the alerts key, and refreshes the exposition.
+//! message is dropped and counted per role) to the engine loop on the calling thread, which
+//! drives the same [`Monitor`] that replay drives, advances it on a clock tick so waiting
+//! steps resolve by `max_wait`, feeds the recorder, the alert journal, the alerts key and
+//! the dashboard, and refreshes the exposition.
 //! One shutdown path: the `stop` flag (set by SIGINT/SIGTERM or the caller) ends the loop,
 //! then the monitor finishes, the recorder flushes and the report is written.
 
