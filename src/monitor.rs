@@ -68,20 +68,22 @@ impl Monitor {
     }
 
     fn consume(&mut self, start: usize, samples: &[Sample], events: &mut Vec<AlertEvent>) {
-        let new = &samples[start..];
-        self.stats.add(new);
-        let ev_start = events.len();
-        for s in new {
-            self.windows.add(s.metric, s.role, s.t, s.value);
-            self.rules.observe(s.t, s.metric, s.role, &self.windows, events);
-        }
-        for e in &events[ev_start..] {
-            if self.alerts.len() < KEEP_ALERTS {
-                self.alerts.push(e.clone());
-            } else {
-                self.alerts_dropped += 1;
-            }
-        }
+        let Monitor { stats, windows, rules, alerts, alerts_dropped, .. } = self;
+        consume(stats, windows, rules, alerts, alerts_dropped, &samples[start..], events);
+    }
+
+    /// Splits the engine from what consumes its samples, so that the two can run on two
+    /// threads (replay); [`Monitor::join`] puts them back. Fed the same samples in the
+    /// same order, the parts reach exactly the state the whole would.
+    pub fn split(self) -> (Engine, Sink) {
+        let Monitor { engine, stats, windows, rules, alerts, alerts_dropped } = self;
+        (engine, Sink { stats, windows, rules, alerts, alerts_dropped })
+    }
+
+    /// The inverse of [`Monitor::split`].
+    pub fn join(engine: Engine, sink: Sink) -> Monitor {
+        let Sink { stats, windows, rules, alerts, alerts_dropped } = sink;
+        Monitor { engine, stats, windows, rules, alerts, alerts_dropped }
     }
 
     /// Alert events so far (the first [`KEEP_ALERTS`]).
@@ -92,5 +94,47 @@ impl Monitor {
     /// Every rule's verdict now.
     pub fn verdicts(&self) -> Vec<Verdict> {
         self.rules.verdicts(&self.stats)
+    }
+}
+
+/// What consumes the engine's samples: run statistics, windows, rules and the alert list.
+#[derive(Debug)]
+pub struct Sink {
+    stats: RunStats,
+    windows: WindowSet,
+    rules: RuleSet,
+    alerts: Vec<AlertEvent>,
+    alerts_dropped: u64,
+}
+
+impl Sink {
+    /// Takes a batch of samples in order; new alert events are appended to `events`.
+    pub fn consume(&mut self, samples: &[Sample], events: &mut Vec<AlertEvent>) {
+        let Sink { stats, windows, rules, alerts, alerts_dropped } = self;
+        consume(stats, windows, rules, alerts, alerts_dropped, samples, events);
+    }
+}
+
+fn consume(
+    stats: &mut RunStats,
+    windows: &mut WindowSet,
+    rules: &mut RuleSet,
+    alerts: &mut Vec<AlertEvent>,
+    alerts_dropped: &mut u64,
+    new: &[Sample],
+    events: &mut Vec<AlertEvent>,
+) {
+    stats.add(new);
+    let ev_start = events.len();
+    for s in new {
+        windows.add(s.metric, s.role, s.t, s.value);
+        rules.observe(s.t, s.metric, s.role, windows, events);
+    }
+    for e in &events[ev_start..] {
+        if alerts.len() < KEEP_ALERTS {
+            alerts.push(e.clone());
+        } else {
+            *alerts_dropped += 1;
+        }
     }
 }

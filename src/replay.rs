@@ -1,7 +1,9 @@
 //! Replay: drives the engine from a log file. An I/O edge: one thread frames the file into
-//! chunks of whole records, worker threads decode chunks in parallel, one thread hashes the
-//! file, and the calling thread runs the engine on the decoded records strictly in file
-//! order — exactly as the live monitor sees them in arrival order. Every channel between
+//! chunks of whole records (hashing it as it reads), worker threads decode chunks in
+//! parallel, the calling thread runs the engine on the decoded records strictly in file
+//! order — exactly as the live monitor sees them in arrival order — and one more thread
+//! takes the engine's samples, chunk by chunk and in order, into the statistics, windows
+//! and rules (a [`crate::monitor::Sink`]) and on to the series and the caller's hook. Every channel between
 //! them is bounded, so memory does not grow with the log.
 
 use std::fs::File;
@@ -19,6 +21,8 @@ use crate::rules::AlertEvent;
 
 /// Chunks in flight per decoding worker.
 const IN_FLIGHT: usize = 2;
+/// Sample batches (one per chunk) in flight from the engine to the sink.
+const SINK_FLIGHT: usize = 4;
 /// Rejected records kept with their position for the report.
 pub const KEEP_BAD: usize = 100;
 
@@ -30,13 +34,13 @@ pub struct Replayed {
     pub monitor: Monitor,
 }
 
-/// A callback fed every batch of samples.
-pub type SampleHook<'a> = dyn FnMut(&[Sample], &[AlertEvent]) + 'a;
+/// A callback fed every batch of samples (on the replay's sink thread).
+pub type SampleHook<'a> = dyn FnMut(&[Sample], &[AlertEvent]) + Send + 'a;
 
 /// Options for one replay.
 pub struct ReplayOptions<'a> {
     /// Where to write the long-form series, if anywhere.
-    pub series: Option<&'a mut dyn Write>,
+    pub series: Option<&'a mut (dyn Write + Send)>,
     /// Called with bytes read so far.
     pub progress: &'a (dyn Fn(u64) + Sync),
     /// Called with every batch of samples and alert events.
@@ -117,28 +121,23 @@ fn workers() -> usize {
 
 /// Replays one log file.
 pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Replayed, ReplayError> {
-    let ReplayOptions { mut series, progress, mut on_samples } = opts;
+    let ReplayOptions { series, progress, on_samples } = opts;
     let mut source = Source::open(path)?;
     let header_roles: Vec<(String, String)> = source.roles().to_vec();
     let limits = cfg.limits();
     let mut monitor = Monitor::new(cfg);
-    let mut events: Vec<AlertEvent> = Vec::new();
+    let mut first_events: Vec<AlertEvent> = Vec::new();
     if let Some(map) = load_map(cfg)? {
-        monitor.push(map, &mut Vec::new(), &mut events);
+        monitor.push(map, &mut Vec::new(), &mut first_events);
     }
+    let (mut engine, sink) = monitor.split();
     let mut first_bad = Vec::new();
     let mut samples: Vec<Sample> = Vec::with_capacity(4096);
-    let mut text = String::new();
-    let mut ryu_buf = ryu::Buffer::new();
     let mut tail = None;
-    let mut write_err = None;
-    if let Some(w) = series.as_mut() {
-        w.write_all(SERIES_HEADER.as_bytes()).map_err(ReplayError::Series)?;
-    }
     let n = workers();
     let is_lines = matches!(source, Source::Lines(_));
 
-    let digest = std::thread::scope(|s| {
+    let (digest, sunk) = std::thread::scope(|s| {
         let (mut to_workers, mut from_workers): (Vec<SyncSender<Frame>>, Vec<Receiver<Decoded>>) =
             (Vec::new(), Vec::new());
         for _ in 0..n {
@@ -180,39 +179,61 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             drop(to_workers);
             source.finish_digest()
         });
+        // The sink: statistics, windows, rules, then the series and the hook, batch by batch.
+        let (to_sink, from_engine) = sync_channel::<Vec<Sample>>(SINK_FLIGHT);
+        let (recycle, recycled) = sync_channel::<Vec<Sample>>(SINK_FLIGHT + 1);
+        let sink_thread = spawn_named(s, "plumbline-sink", move || {
+            let (mut sink, mut series, mut on_samples) = (sink, series, on_samples);
+            let mut events = first_events;
+            let (mut text, mut ryu_buf) = (String::new(), ryu::Buffer::new());
+            let mut write_err = None;
+            if let Some(w) = series.as_mut() {
+                write_err = w.write_all(SERIES_HEADER.as_bytes()).err();
+            }
+            for mut batch in from_engine.iter() {
+                sink.consume(&batch, &mut events);
+                if write_err.is_none() {
+                    let out = (&mut on_samples, &mut series, &mut text, &mut ryu_buf);
+                    write_err = emit(&batch, &mut events, out, false).err();
+                }
+                events.clear();
+                batch.clear();
+                // Back to the engine for its next chunk; when the return queue is full the
+                // batch is simply freed.
+                let _ = recycle.try_send(batch);
+            }
+            if write_err.is_none() {
+                write_err =
+                    emit(&[], &mut events, (&mut on_samples, &mut series, &mut text, &mut ryu_buf), true)
+                        .err();
+            }
+            (sink, write_err)
+        });
 
         let mut k = 0;
+        let send = |samples: &mut Vec<Sample>| {
+            let next = recycled.try_recv().unwrap_or_else(|_| Vec::with_capacity(4096));
+            // The sink stops only when this side hangs up.
+            let _ = to_sink.send(std::mem::replace(samples, next));
+        };
         while let Ok(d) = from_workers[k % n].recv() {
             k += 1;
             for item in d.items {
                 match item {
                     Item::Record { role, rec } => {
-                        let input = Input::Message { role, recv: rec.recv, msg: rec.msg };
-                        monitor.push(input, &mut samples, &mut events)
+                        engine.push(Input::Message { role, recv: rec.recv, msg: rec.msg }, &mut samples)
                     }
                     Item::Bad { pos, role, reason } => {
                         tracing::debug!(%pos, role = role.map(|r| r.name()), reason = %reason, "rejected record");
                         if first_bad.len() < KEEP_BAD {
                             first_bad.push(BadRecord::new(pos, role, &reason));
                         }
-                        let input = Input::Rejected { role, reason: reason.code() };
-                        monitor.push(input, &mut samples, &mut events);
+                        engine.push(Input::Rejected { role, reason: reason.code() }, &mut samples);
                     }
                 }
             }
             progress(d.end);
-            if write_err.is_none() {
-                write_err = emit(
-                    &mut samples,
-                    &mut events,
-                    &mut on_samples,
-                    &mut series,
-                    &mut text,
-                    &mut ryu_buf,
-                    false,
-                )
-                .err();
-            }
+            send(&mut samples);
             if d.tail.is_some() {
                 tail = d.tail;
                 break;
@@ -220,14 +241,14 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         }
         // Dropping the receivers stops the workers and the framer if we left early.
         drop(from_workers);
-        monitor.finish(&mut samples, &mut events);
-        if write_err.is_none() {
-            write_err =
-                emit(&mut samples, &mut events, &mut on_samples, &mut series, &mut text, &mut ryu_buf, true)
-                    .err();
-        }
-        framer.join().unwrap_or_default()
+        engine.finish(&mut samples);
+        send(&mut samples);
+        drop(to_sink);
+        let sunk = sink_thread.join().expect("the sink thread does not panic");
+        (framer.join().unwrap_or_default(), sunk)
     });
+    let (sink, write_err) = sunk;
+    let monitor = Monitor::join(engine, sink);
     if let Some(e) = write_err {
         return Err(ReplayError::Series(e));
     }
@@ -260,21 +281,26 @@ fn spawn_named<'s, 'e, T: Send + 's>(
     std::thread::Builder::new().name(name.into()).spawn_scoped(s, f).expect("spawn a replay thread")
 }
 
-#[allow(clippy::too_many_arguments)]
+/// Where a batch goes after the sink: the caller's hook and the series.
+type Outputs<'r, 'a> = (
+    &'r mut Option<&'a mut SampleHook<'a>>,
+    &'r mut Option<&'a mut (dyn Write + Send)>,
+    &'r mut String,
+    &'r mut ryu::Buffer,
+);
+
 fn emit(
-    samples: &mut Vec<Sample>,
-    events: &mut Vec<AlertEvent>,
-    hook: &mut Option<&mut SampleHook<'_>>,
-    series: &mut Option<&mut dyn Write>,
-    text: &mut String,
-    ryu_buf: &mut ryu::Buffer,
+    samples: &[Sample],
+    events: &mut [AlertEvent],
+    out: Outputs<'_, '_>,
     force: bool,
 ) -> std::io::Result<()> {
+    let (hook, series, text, ryu_buf) = out;
     if let Some(f) = hook.as_mut() {
         f(samples, events);
     }
     if let Some(w) = series.as_mut() {
-        for smp in samples.iter() {
+        for smp in samples {
             series_row(text, smp, ryu_buf);
         }
         if force || text.len() > 1 << 16 {
@@ -285,7 +311,5 @@ fn emit(
             w.flush()?;
         }
     }
-    samples.clear();
-    events.clear();
     Ok(())
 }

@@ -79,7 +79,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         }
     };
     let opts = ReplayOptions {
-        series: series_file.as_mut().map(|w| w as &mut dyn Write),
+        series: series_file.as_mut().map(|w| w as &mut (dyn Write + Send)),
         progress: &progress,
         on_samples: Some(&mut hook),
     };
