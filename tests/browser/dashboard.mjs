@@ -22,6 +22,8 @@ const out = path.join(root, "target", "browser");
 mkdirSync(out, { recursive: true });
 const journal = path.join(out, "demo-alerts.jsonl");
 const browserPath = process.env.CHROMIUM || "/usr/bin/chromium";
+// The demo's alert warnings go to the journal; keep its log to errors.
+const env = { ...process.env, PLUMBLINE_LOG: process.env.PLUMBLINE_LOG || "error" };
 
 function freePort() {
   return new Promise((resolve, reject) => {
@@ -62,7 +64,7 @@ try {
     "--set", `http.listen=127.0.0.1:${http}`,
     "demo", "--duration", "90", "--journal", journal,
     "--listen", `tcp/127.0.0.1:${zport}`, "--no-multicast",
-  ], { cwd: root, stdio: ["ignore", "pipe", "inherit"] });
+  ], { cwd: root, env, stdio: ["ignore", "pipe", "inherit"] });
   let printed = "";
   demo.stdout.on("data", (d) => { printed += d.toString(); });
   const url = await until("the demo to print its dashboard URL", 30, () => {
@@ -159,7 +161,7 @@ try {
   demo = spawn(bin, [
     "--set", `http.listen=127.0.0.1:${http2}`, "--set", `http.token_file=${tokenFile}`,
     "demo", "--duration", "40", "--listen", `tcp/127.0.0.1:${zport2}`, "--no-multicast",
-  ], { cwd: root, stdio: ["ignore", "ignore", "inherit"] });
+  ], { cwd: root, env, stdio: ["ignore", "ignore", "inherit"] });
   const page2 = await browser.newPage({ viewport: { width: 1366, height: 900 } });
   await until("the second demo to serve", 30, async () => {
     try { return (await fetch(`http://127.0.0.1:${http2}/healthz`)).ok; } catch { return false; }
