@@ -194,7 +194,8 @@ impl Dashboard {
 
     /// Takes the samples and alert events the monitor made, at `now` on its clock.
     pub fn observe(&mut self, now: f64, samples: &[Sample], events: &[AlertEvent]) {
-        self.now = self.now.max(now);
+        // The monitor's clock as given: after a jump back the page follows it.
+        self.now = now;
         for s in samples {
             if s.role.is_some() {
                 continue;
@@ -219,13 +220,14 @@ impl Dashboard {
     /// The clock moved to `now`: takes a chart row when one is due and counts messages
     /// for the rates.
     pub fn tick(&mut self, now: f64, monitor: &Monitor) {
-        self.now = self.now.max(now);
-        let due = self.next_row.is_none_or(|t| now >= t);
+        self.now = now;
+        // Rows sit on the step's grid so that a late tick does not shift later rows; a clock
+        // that jumps back more than a step starts the grid again rather than waiting.
+        let step = self.params.step;
+        let due = self.next_row.is_none_or(|t| now >= t || now < t - 2.0 * step);
         if !due {
             return;
         }
-        // Rows sit on the step's grid so that a late tick does not shift later rows.
-        let step = self.params.step;
         self.next_row = Some(((now / step).floor() + 1.0) * step);
         let mut values = Vec::new();
         for c in &self.charts {
@@ -261,7 +263,7 @@ impl Dashboard {
             .zip(&self.latest)
             .map(|(&(m, label, unit), l)| {
                 let (value, t, age_s) = match l {
-                    Some(l) => (Some(l.value), Some(l.t), Some(now - l.seen_at)),
+                    Some(l) => (Some(l.value), Some(l.t), Some((now - l.seen_at).max(0.0))),
                     None => (None, None, None),
                 };
                 let state = match age_s {
@@ -304,7 +306,7 @@ impl Dashboard {
                 severity: a.event.severity,
                 metric: a.event.metric,
                 raised_t: a.event.t,
-                active_s: now - a.seen_at,
+                active_s: (now - a.seen_at).max(0.0),
                 value: a.event.value,
                 threshold: a.event.threshold,
             })

@@ -62,6 +62,9 @@ fn the_ring_keeps_history_over_step_rows() {
     // 2 s of history at 0.5 s: 4 rows, the newest ones.
     assert_eq!(snap.row_times, vec![23.0, 23.5, 24.0, 24.5]);
     assert!(snap.charts.iter().all(|c| c.lines.iter().all(|l| l.values.len() == 4)));
+    // The clock jumps back an hour: rows go on at once instead of waiting for it to return.
+    d.tick(24.5 - 3600.0, &m);
+    assert_eq!(*d.snapshot(&m).row_times.last().unwrap(), 24.5 - 3600.0);
 }
 
 #[test]
