@@ -8,7 +8,8 @@
 //! - **Charts**: a ring of rows taken every `step` of the monitor's clock over `history`
 //!   (default 2 minutes at 0.5 s: 240 rows). Each row reads one statistic of the shortest
 //!   sliding window per line (the mean, the minimum for clearance, the p99 for latency), or
-//!   `null` while that window is empty, so a gap shows as a gap and never as a zero.
+//!   `null` while that window is empty or its key has had no value for `stale_after`, so a
+//!   gap shows as a gap and never as a zero or a frozen value.
 //! - **Alerts**: the raised ones with the event time they were raised at (as in the alert
 //!   journal) and how long they have been active on the monitor's clock; the latest events.
 //! - **Topics**: per role, the message rate over the last 5 s of the monitor's clock,
@@ -159,6 +160,8 @@ pub struct Dashboard {
     capacity: usize,
     next_row: Option<f64>,
     latest: Vec<Option<Latest>>,
+    /// Per chart line (in chart order): when its key last had a value, on the monitor's clock.
+    line_seen: Vec<Option<f64>>,
     active: Vec<Active>,
     recent: VecDeque<AlertEvent>,
     /// Per role: (clock, messages) pairs for the rate, oldest first.
@@ -180,6 +183,7 @@ impl Dashboard {
             capacity,
             next_row: None,
             latest: vec![None; TILES.len()],
+            line_seen: vec![None; charts(order).iter().map(|c| c.lines.len()).sum()],
             active: Vec::new(),
             recent: VecDeque::with_capacity(RECENT_EVENTS),
             counts: vec![VecDeque::new(); Role::ALL.len()],
@@ -197,6 +201,11 @@ impl Dashboard {
         // The monitor's clock as given: after a jump back the page follows it.
         self.now = now;
         for s in samples {
+            for (k, l) in self.charts.iter().flat_map(|c| &c.lines).enumerate() {
+                if l.metric == s.metric && l.role == s.role {
+                    self.line_seen[k] = Some(now);
+                }
+            }
             if s.role.is_some() {
                 continue;
             }
@@ -229,17 +238,19 @@ impl Dashboard {
             return;
         }
         self.next_row = Some(((now / step).floor() + 1.0) * step);
+        // Windows move on event time, not on the monitor's clock, so a key that has gone
+        // quiet still holds its last window: its line breaks once it is stale instead.
+        let stale_after = self.params.stale_after;
         let mut values = Vec::new();
-        for c in &self.charts {
-            for l in &c.lines {
-                let v = monitor
-                    .windows
-                    .get(l.metric, l.role)
-                    .and_then(|ws| ws.first())
-                    .and_then(|w| w.stat(l.stat))
-                    .filter(|v| v.is_finite());
-                values.push(v);
-            }
+        for (l, seen) in self.charts.iter().flat_map(|c| &c.lines).zip(&self.line_seen) {
+            let fresh = seen.is_some_and(|t| now - t <= stale_after);
+            let v = monitor
+                .windows
+                .get(l.metric, l.role)
+                .and_then(|ws| ws.first())
+                .and_then(|w| w.stat(l.stat))
+                .filter(|v| fresh && v.is_finite());
+            values.push(v);
         }
         if self.rows.len() == self.capacity {
             self.rows.pop_front();

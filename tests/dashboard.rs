@@ -43,11 +43,18 @@ fn rows_read_the_shortest_window_and_gaps_stay_null() {
     s.clear();
     let extra = [sample(100.6, Metric::Clearance, 0.8), sample(100.7, Metric::Clearance, 0.3)];
     m.inject(&mut s, &extra, &mut e);
+    d.observe(100.7, &s, &e);
     d.tick(100.9, &m); // not due: rows sit on the 0.5 s grid
     d.tick(101.0, &m);
     let snap = d.snapshot(&m);
     assert_eq!(snap.row_times.len(), 3);
     assert_eq!(line(&snap, "clearance", "clearance_m")[2], Some(0.3));
+    // GOSPA last had a value at 100.4: at 101.5 (1.1 s later, past stale_after = 1 s) its
+    // line breaks although its window still holds the old values; clearance (0.8 s) holds.
+    d.tick(101.5, &m);
+    let snap = d.snapshot(&m);
+    assert_eq!(line(&snap, "gospa", "gospa")[3], None);
+    assert_eq!(line(&snap, "clearance", "clearance_m")[3], Some(0.3));
 }
 
 #[test]

@@ -177,6 +177,38 @@ try {
     +(await page2.locator("#chart-gospa").getAttribute("data-rows") || 0) > 0);
   ok("with a token file the page asks for the token and then streams");
   await page2.close();
+
+  // 5. A stack that goes quiet: a watcher fed 3 s of the shipped log, then nothing. Its
+  // roles and tiles must turn stale (after [dashboard] stale_after, 2 s) while the page
+  // still streams.
+  const short = path.join(out, "short.jsonl");
+  writeFileSync(short, readFileSync(path.join(root, "replay-logs", "campus-loop.jsonl"), "utf8")
+    .split("\n").slice(0, 400).join("\n") + "\n");
+  const [http3, zport3] = [await freePort(), await freePort()];
+  demo = spawn(bin, [
+    "--set", `http.listen=127.0.0.1:${http3}`, "watch", "--duration", "40",
+    "--listen", `tcp/127.0.0.1:${zport3}`, "--no-multicast",
+  ], { cwd: root, env, stdio: ["ignore", "ignore", "inherit"] });
+  await until("the watcher to be ready", 30, async () => {
+    try { return (await fetch(`http://127.0.0.1:${http3}/readyz`)).ok; } catch { return false; }
+  });
+  const page3 = await browser.newPage({ viewport: { width: 1366, height: 900 } });
+  await page3.goto(`http://127.0.0.1:${http3}/`);
+  const pub = spawn(bin, ["publish", short, "--restamp", "--connect", `tcp/127.0.0.1:${zport3}`, "--no-multicast"],
+    { cwd: root, env, stdio: ["ignore", "ignore", "inherit"] });
+  await until("estimate/objects live on the page", 20, async () =>
+    (await page3.locator('#topics tr[data-role="estimate/objects"]').getAttribute("data-state")) === "ok");
+  await new Promise((r) => pub.once("exit", r));
+  await until("the roles and the GOSPA tile to turn stale", 15, async () =>
+    (await page3.locator('#topics tr[data-role="estimate/objects"]').getAttribute("data-state")) === "stale" &&
+    (await page3.locator('#topics tr[data-role="reference/ego"]').getAttribute("data-state")) === "stale" &&
+    (await page3.locator('.tile[data-metric="gospa"]').getAttribute("data-state")) === "stale" &&
+    (await page3.locator("#link").getAttribute("data-state")) === "live");
+  const staleText = await page3.locator('.tile[data-metric="gospa"] .age').innerText();
+  if (!/STALE/.test(staleText)) throw new Error(`the stale tile says: ${staleText}`);
+  await page3.screenshot({ path: path.join(out, "dashboard-stale-wide.png"), fullPage: true });
+  ok("a quiet stack turns its roles and tiles stale while the page streams");
+  await page3.close();
 } catch (e) {
   failed = true;
   console.error("browser-check: FAILED:", e.message);

@@ -229,6 +229,12 @@ function drawTopics(topics) {
 function drawVerdicts(verdicts) {
   const tb = document.querySelector("#verdicts tbody");
   tb.replaceChildren();
+  if (verdicts.length === 0) {
+    const tr = el("tr", { class: "none" });
+    tr.append(el("td", { colspan: "6" }, "no rules in the config (see [[rule]] in the README)"));
+    tb.append(tr);
+    return;
+  }
   for (const v of verdicts) {
     const tr = el("tr", { "data-rule": v.rule, "data-verdict": v.verdict });
     tr.append(cell(v.rule), badge(v.verdict, "verdict-" + v.verdict), cell(v.severity),
