@@ -578,11 +578,12 @@ impl Config {
             ));
         }
         let d = &raw.dashboard;
+        let def = crate::dashboard::DashboardParams::default();
         let dashboard = crate::dashboard::DashboardParams {
-            rate_hz: positive(source, "dashboard.rate_hz", d.rate_hz, 5.0)?,
-            history: duration(source, "dashboard.history", &d.history, 120.0)?,
-            step: duration(source, "dashboard.step", &d.step, 0.5)?,
-            stale_after: duration(source, "dashboard.stale_after", &d.stale_after, 2.0)?,
+            rate_hz: positive(source, "dashboard.rate_hz", d.rate_hz, def.rate_hz)?,
+            history: duration(source, "dashboard.history", &d.history, def.history)?,
+            step: duration(source, "dashboard.step", &d.step, def.step)?,
+            stale_after: duration(source, "dashboard.stale_after", &d.stale_after, def.stale_after)?,
         };
         if dashboard.rate_hz > 50.0 {
             return Err(err(source, "dashboard.rate_hz", "a rate in (0, 50] snapshots per second"));

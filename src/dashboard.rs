@@ -25,6 +25,7 @@ use std::collections::VecDeque;
 
 use serde::Serialize;
 
+use crate::config::Config;
 use crate::core::Sample;
 use crate::metrics::Metric;
 use crate::monitor::Monitor;
@@ -67,7 +68,7 @@ struct Line {
 #[derive(Debug, Clone)]
 struct ChartDef {
     id: &'static str,
-    title: &'static str,
+    title: String,
     unit: &'static str,
     lines: Vec<Line>,
 }
@@ -76,13 +77,14 @@ fn line(metric: Metric, stat: Stat, label: &'static str) -> Line {
     Line { metric, role: None, stat, label }
 }
 
-fn charts(order: f64) -> Vec<ChartDef> {
+/// The charts; `w` is the label of the window they read (the shortest configured).
+fn charts(order: f64, w: &str) -> Vec<ChartDef> {
     // GOSPA's parts are terms of gospa^p: metres only for p = 1.
     let gospa_unit = if order == 1.0 { "m" } else { "m^p" };
     vec![
         ChartDef {
             id: "gospa",
-            title: "Tracking error (GOSPA, 1 s mean)",
+            title: format!("Tracking error (GOSPA, {w} mean)"),
             unit: gospa_unit,
             lines: vec![
                 line(Metric::Gospa, Stat::Mean, "gospa"),
@@ -93,7 +95,7 @@ fn charts(order: f64) -> Vec<ChartDef> {
         },
         ChartDef {
             id: "clearance",
-            title: "Clearance (1 s minimum) and its loss (1 s mean)",
+            title: format!("Clearance ({w} minimum) and its loss ({w} mean)"),
             unit: "m",
             lines: vec![
                 line(Metric::Clearance, Stat::Min, "clearance"),
@@ -105,7 +107,7 @@ fn charts(order: f64) -> Vec<ChartDef> {
         },
         ChartDef {
             id: "ego",
-            title: "Localisation error (1 s mean)",
+            title: format!("Localisation error ({w} mean)"),
             unit: "m",
             lines: vec![
                 line(Metric::EgoPositionError, Stat::Mean, "position"),
@@ -115,7 +117,7 @@ fn charts(order: f64) -> Vec<ChartDef> {
         },
         ChartDef {
             id: "latency",
-            title: "Arrival latency (1 s p99, per role)",
+            title: format!("Arrival latency ({w} p99, per role)"),
             unit: "s",
             lines: Role::ALL
                 .iter()
@@ -155,6 +157,8 @@ struct Active {
 pub struct Dashboard {
     params: DashboardParams,
     charts: Vec<ChartDef>,
+    /// Index of the window the charts read: the shortest sliding window.
+    chart_window: usize,
     /// Rows of the ring: the monitor's clock and one value per line of every chart.
     rows: VecDeque<(f64, Vec<Option<f64>>)>,
     capacity: usize,
@@ -173,17 +177,24 @@ pub struct Dashboard {
 const RATE_SPAN: f64 = 5.0;
 
 impl Dashboard {
-    /// An empty dashboard; `order` is the GOSPA order p (it sets the parts' unit).
-    pub fn new(params: DashboardParams, order: f64) -> Dashboard {
+    /// An empty dashboard for a config: its GOSPA order (the parts' unit) and its windows
+    /// (the charts read the shortest); `params` usually `cfg.dashboard`.
+    pub fn new(params: DashboardParams, cfg: &Config) -> Dashboard {
         let capacity = ((params.history / params.step).ceil() as usize).clamp(1, 100_000);
+        let chart_window =
+            (0..cfg.windows.len()).min_by(|&a, &b| cfg.windows[a].total_cmp(&cfg.windows[b])).unwrap_or(0);
+        let label = cfg.window_labels.get(chart_window).map_or("1s", String::as_str);
+        let charts = charts(cfg.tracking.order, label);
+        let lines = charts.iter().map(|c| c.lines.len()).sum();
         Dashboard {
             params,
-            charts: charts(order),
+            charts,
+            chart_window,
             rows: VecDeque::with_capacity(capacity),
             capacity,
             next_row: None,
             latest: vec![None; TILES.len()],
-            line_seen: vec![None; charts(order).iter().map(|c| c.lines.len()).sum()],
+            line_seen: vec![None; lines],
             active: Vec::new(),
             recent: VecDeque::with_capacity(RECENT_EVENTS),
             counts: vec![VecDeque::new(); Role::ALL.len()],
@@ -247,7 +258,7 @@ impl Dashboard {
             let v = monitor
                 .windows
                 .get(l.metric, l.role)
-                .and_then(|ws| ws.first())
+                .and_then(|ws| ws.get(self.chart_window))
                 .and_then(|w| w.stat(l.stat))
                 .filter(|v| fresh && v.is_finite());
             values.push(v);
@@ -305,7 +316,7 @@ impl Dashboard {
                         }
                     })
                     .collect();
-                Chart { id: c.id, title: c.title, unit: c.unit, lines }
+                Chart { id: c.id, title: c.title.clone(), unit: c.unit, lines }
             })
             .collect();
         let active = self
@@ -383,7 +394,10 @@ impl Dashboard {
                 ego_evaluated: c.ego.evaluated,
                 ego_skipped: c.ego.skipped,
             },
-            collisions: monitor.engine.collisions().0.len() as u64 + monitor.engine.collisions().1,
+            collisions: {
+                let (cols, dropped) = monitor.engine.collisions();
+                cols.len() as u64 + dropped
+            },
         }
     }
 }
@@ -461,7 +475,7 @@ pub struct Chart {
     /// Identifier.
     pub id: &'static str,
     /// Title.
-    pub title: &'static str,
+    pub title: String,
     /// Unit of the y axis.
     pub unit: &'static str,
     /// Lines.

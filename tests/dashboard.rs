@@ -27,7 +27,7 @@ fn line<'a>(snap: &'a plumbline::dashboard::Snapshot, chart: &str, metric: &str)
 fn rows_read_the_shortest_window_and_gaps_stay_null() {
     let cfg = Config::defaults(); // windows 1 s, 10 s, 60 s
     let mut m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), 1.0);
+    let mut d = Dashboard::new(params(), &cfg);
     let (mut s, mut e) = (Vec::new(), Vec::new());
     d.tick(100.0, &m); // row 1: nothing yet
     let extra = [sample(100.2, Metric::Gospa, 1.0), sample(100.4, Metric::Gospa, 3.0)];
@@ -61,7 +61,7 @@ fn rows_read_the_shortest_window_and_gaps_stay_null() {
 fn the_ring_keeps_history_over_step_rows() {
     let cfg = Config::defaults();
     let m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), 1.0);
+    let mut d = Dashboard::new(params(), &cfg);
     for k in 0..50 {
         d.tick(k as f64 * 0.5, &m);
     }
@@ -78,7 +78,7 @@ fn the_ring_keeps_history_over_step_rows() {
 fn tiles_go_from_no_data_to_ok_to_stale() {
     let cfg = Config::defaults();
     let m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), 1.0);
+    let mut d = Dashboard::new(params(), &cfg);
     d.observe(10.0, &[], &[]);
     let tile = |d: &Dashboard| d.snapshot(&m).tiles.into_iter().find(|t| t.metric == "gospa").unwrap();
     assert_eq!(tile(&d).state, "no_data");
@@ -113,7 +113,7 @@ fn event(kind: &'static str, t: f64) -> AlertEvent {
 fn an_alert_is_active_from_raise_to_clear() {
     let cfg = Config::defaults();
     let m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), 1.0);
+    let mut d = Dashboard::new(params(), &cfg);
     d.observe(50.0, &[], &[event("raised", 49.9)]);
     d.observe(53.0, &[], &[]);
     let snap = d.snapshot(&m);
@@ -139,7 +139,7 @@ fn an_alert_is_active_from_raise_to_clear() {
 fn topic_rate_and_state_follow_the_monitor_clock() {
     let cfg = Config::defaults();
     let mut m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), 1.0);
+    let mut d = Dashboard::new(params(), &cfg);
     let (mut s, mut e) = (Vec::new(), Vec::new());
     // 10 Hz estimated poses for 3 s, ticking every 0.5 s.
     for k in 0..=30 {

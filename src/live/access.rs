@@ -6,7 +6,7 @@ use std::collections::HashMap;
 use std::net::IpAddr;
 use std::path::Path;
 
-/// The bearer token and whether its file is readable by others.
+/// The bearer token the data endpoints require.
 #[derive(Debug, Clone)]
 pub struct Token {
     secret: String,

@@ -137,7 +137,7 @@ pub fn run(
         Some(p) => Some(Journal::open(p).map_err(|e| format!("{}: {e}", p.display()))?),
     };
     let mut monitor = Monitor::new(cfg);
-    let mut dashboard = Dashboard::new(cfg.dashboard, cfg.tracking.order);
+    let mut dashboard = Dashboard::new(cfg.dashboard, cfg);
     let snapshot_every = 1.0 / cfg.dashboard.rate_hz;
     let mut last_snapshot: Option<Instant> = None;
     let (mut samples, mut events) = (Vec::new(), Vec::new());
