@@ -41,7 +41,7 @@ impl Footprint {
         // one closed form.
         let (mu, hl) = ((rear + front) / 2.0, (front - rear) / 2.0);
         let rect = Rect { c: [x + c * mu, y + s * mu], cos: c, sin: s, hl, hw: h };
-        Placed { poly: self.polygon(x, y, yaw), rect }
+        Placed { footprint: *self, pose: [x, y, yaw], poly: std::cell::OnceCell::new(), rect }
     }
 
     /// Distance from the pose origin to the farthest corner.
@@ -130,14 +130,23 @@ impl Rect {
     }
 }
 
-/// The footprint at a pose: its polygon (for general obstacles) and its rectangle (for the
-/// closed forms).
+/// The footprint at a pose: its rectangle (for the closed forms) and, built on first use
+/// only, its polygon (for general polygon obstacles, which most poses never meet).
 #[derive(Debug, Clone)]
 pub struct Placed {
-    /// The rectangle as a polygon.
-    pub poly: Polygon<f64>,
+    footprint: Footprint,
+    pose: [f64; 3],
+    poly: std::cell::OnceCell<Polygon<f64>>,
     /// The rectangle.
     pub rect: Rect,
+}
+
+impl Placed {
+    /// The rectangle as a polygon (the same corners as [`Footprint::polygon`]).
+    pub fn poly(&self) -> &Polygon<f64> {
+        let [x, y, yaw] = self.pose;
+        self.poly.get_or_init(|| self.footprint.polygon(x, y, yaw))
+    }
 }
 
 fn polygon(pts: &[[f64; 2]]) -> Polygon<f64> {
@@ -258,13 +267,13 @@ impl Body {
             Solid::Disc { c, r } => (fp.rect.point_distance(*c) - r).max(0.0),
             Solid::Rect(b) => fp.rect.distance(b),
             Solid::Poly(p) => {
-                if fp.poly.intersects(p) {
+                if fp.poly().intersects(p) {
                     0.0
                 } else {
-                    Euclidean::distance(&fp.poly, p)
+                    Euclidean::distance(fp.poly(), p)
                 }
             }
-            Solid::Line(l) => Euclidean::distance(&fp.poly, l),
+            Solid::Line(l) => Euclidean::distance(fp.poly(), l),
         }
     }
 

@@ -177,7 +177,7 @@ proptest::proptest! {
         proptest::prop_assert!((a - b).abs() < 1e-9, "rect {a} vs geo {b}");
         let disc = Body::disc(id, [bx, by], r).distance(&placed);
         let p = geo::Point::new(bx, by);
-        let want = if placed.poly.intersects(&p) { 0.0 } else { (Euclidean::distance(&placed.poly, &p) - r).max(0.0) };
+        let want = if placed.poly().intersects(&p) { 0.0 } else { (Euclidean::distance(placed.poly(), &p) - r).max(0.0) };
         proptest::prop_assert!((disc - want).abs() < 1e-9, "disc {disc} vs geo {want}");
     }
 }
