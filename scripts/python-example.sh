@@ -7,16 +7,13 @@ if ! python3 -c "import zenoh" 2>/dev/null; then
   echo "python-example: eclipse-zenoh not installed: skipped"
   exit 0
 fi
-bin=${PLUMBLINE_BIN:-target/debug/plumbline}
+. scripts/lib.sh
 dir=$(mktemp -d)
-zport=$(python3 -c 'import socket; s=socket.socket(); s.bind(("127.0.0.1",0)); print(s.getsockname()[1])')
-hport=$(python3 -c 'import socket; s=socket.socket(); s.bind(("127.0.0.1",0)); print(s.getsockname()[1])')
+zport=$(port)
+hport=$(port)
 "$bin" --set "http.listen=127.0.0.1:$hport" watch --listen "tcp/127.0.0.1:$zport" --no-multicast --report "$dir/r.json" >"$dir/watch.log" 2>&1 &
 pid=$!
-for _ in $(seq 1 100); do
-  curl -sf "127.0.0.1:$hport/readyz" >/dev/null 2>&1 && break
-  sleep 0.1
-done
+wait_ready "$hport" "$dir/watch.log"
 python3 examples/python_publisher.py --connect "tcp/127.0.0.1:$zport" --seconds 3
 sleep 1
 kill -TERM "$pid"
