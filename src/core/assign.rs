@@ -192,6 +192,8 @@ pub struct Matching {
 pub struct MatchScratch {
     parent: Vec<usize>,
     edges: Vec<(usize, usize, f64)>,
+    ysort: Vec<(f64, usize)>,
+    roots: Vec<usize>,
     comp_rows: Vec<usize>,
     comp_cols: Vec<usize>,
     local_row: Vec<usize>,
@@ -252,10 +254,25 @@ pub fn match_with_cutoff(
         return out;
     }
 
-    // Edges of the graph of pairs closer than c.
+    // Edges of the graph of pairs closer than c, found by a sweep over the estimates
+    // sorted by x: a pair whose x coordinates differ by c or more is no edge, so each
+    // reference scans only the estimates inside its x band. A k-d tree would prune
+    // harder, but at tens of objects a side the sorted band is already the cheaper.
+    s.ysort.clear();
+    s.ysort.extend(ys.iter().enumerate().map(|(j, y)| (y[0], j)));
+    s.ysort.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+    // The band is a hair wider than c so that rounding in its bounds never drops a pair;
+    // the test on d below stays the exact rule.
+    let band = c * (1.0 + 1e-9);
     s.edges.clear();
     for (i, x) in xs.iter().enumerate() {
-        for (j, y) in ys.iter().enumerate() {
+        let first = s.edges.len();
+        let lo = s.ysort.partition_point(|&(yx, _)| yx < x[0] - band);
+        for &(yx, j) in &s.ysort[lo..] {
+            if yx > x[0] + band {
+                break;
+            }
+            let y = ys[j];
             let (dx, dy) = (x[0] - y[0], x[1] - y[1]);
             let d2 = dx * dx + dy * dy;
             if d2 < c2 {
@@ -266,6 +283,9 @@ pub fn match_with_cutoff(
                 }
             }
         }
+        // Edges in (reference, estimate) order, as a full scan would list them, so that
+        // ties between equal-cost assignments resolve the same way.
+        s.edges[first..].sort_unstable_by_key(|&(_, j, _)| j);
     }
     if s.edges.is_empty() {
         return out;
@@ -282,7 +302,9 @@ pub fn match_with_cutoff(
     // Group edges by component root; components with a single edge are trivial.
     s.order.clear();
     s.order.extend(0..s.edges.len());
-    let roots: Vec<usize> = s.edges.iter().map(|&(i, _, _)| find(&mut s.parent, i)).collect();
+    let mut roots = std::mem::take(&mut s.roots);
+    roots.clear();
+    roots.extend(s.edges.iter().map(|&(i, _, _)| find(&mut s.parent, i)));
     s.order.sort_unstable_by_key(|&e| roots[e]);
     s.local_row.clear();
     s.local_row.resize(m, NONE);
@@ -303,6 +325,7 @@ pub fn match_with_cutoff(
         }
         start = end;
     }
+    s.roots = roots;
     out.pairs.sort_unstable_by_key(|&(i, _, _)| i);
     finish(&mut out, p);
     out
@@ -452,6 +475,32 @@ mod tests {
                 };
                 assert!((cost(&a) - cost(&b)).abs() < 1e-9, "{} vs {}", cost(&a), cost(&b));
             }
+        }
+    }
+
+    #[test]
+    fn sweep_keeps_every_pair_at_large_coordinates() {
+        // Points on a lattice of spacing c / 2 far from the origin (UTM-like eastings), so
+        // many pairs sit at exactly c or a rounding step from it: the band sweep must find
+        // the same pairs as the dense solve, which looks at every pair.
+        let mut solver = ShortestPath::default();
+        let mut s = MatchScratch::default();
+        let c = 2.0;
+        for offset in [0.0, 4.3e5, 5.1e6] {
+            let xs: Vec<[f64; 2]> =
+                (0..12).map(|k| [offset + (k % 4) as f64 * 1.0, offset + (k / 4) as f64 * 1.0]).collect();
+            let ys: Vec<[f64; 2]> =
+                (0..12).map(|k| [offset + (k % 4) as f64 * 1.0 + 0.3, offset + (k / 4) as f64 * 2.0]).collect();
+            let a = match_with_cutoff(&xs, &ys, c, 1.0, true, &mut solver, &mut s);
+            let b = match_with_cutoff(&xs, &ys, c, 1.0, false, &mut solver, &mut s);
+            assert_eq!(a.pairs.len(), b.pairs.len(), "offset {offset}");
+            assert!((a.localization - b.localization).abs() < 1e-9, "offset {offset}");
+            // x distance exactly c, no y offset: never a pair; a hair under: a pair.
+            let m = match_with_cutoff(&[[offset, offset]], &[[offset + c, offset]], c, 1.0, true, &mut solver, &mut s);
+            assert!(m.pairs.is_empty(), "offset {offset}");
+            let under = offset + c - (offset + c) * f64::EPSILON;
+            let m = match_with_cutoff(&[[offset, offset]], &[[under, offset]], c, 1.0, true, &mut solver, &mut s);
+            assert_eq!(m.pairs.len(), usize::from(under - offset < c), "offset {offset}");
         }
     }
 
