@@ -194,6 +194,9 @@ pub struct MatchScratch {
     edges: Vec<(usize, usize, f64)>,
     ysort: Vec<(f64, usize)>,
     roots: Vec<usize>,
+    count: Vec<usize>,
+    slot: Vec<usize>,
+    sorted: Vec<(usize, usize, f64)>,
     comp_rows: Vec<usize>,
     comp_cols: Vec<usize>,
     local_row: Vec<usize>,
@@ -201,6 +204,17 @@ pub struct MatchScratch {
     order: Vec<usize>,
     cost: Vec<f64>,
     out: Vec<Option<usize>>,
+}
+
+/// A key that sorts finite floats in their numeric order as plain integers.
+#[inline]
+fn order_key(v: f64) -> u64 {
+    let b = v.to_bits();
+    if b >> 63 == 1 {
+        !b
+    } else {
+        b | 1 << 63
+    }
 }
 
 fn find(parent: &mut [usize], mut a: usize) -> usize {
@@ -256,11 +270,10 @@ pub fn match_with_cutoff(
 
     // Edges of the graph of pairs closer than c, found by a sweep over the estimates
     // sorted by x: a pair whose x coordinates differ by c or more is no edge, so each
-    // reference scans only the estimates inside its x band. A k-d tree would prune
-    // harder, but at tens of objects a side the sorted band is already the cheaper.
+    // reference looks only at the estimates inside its x band.
     s.ysort.clear();
     s.ysort.extend(ys.iter().enumerate().map(|(j, y)| (y[0], j)));
-    s.ysort.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+    s.ysort.sort_unstable_by_key(|&(x, _)| order_key(x));
     // The band is a hair wider than c so that rounding in its bounds never drops a pair;
     // the test on d below stays the exact rule.
     let band = c * (1.0 + 1e-9);
@@ -272,8 +285,7 @@ pub fn match_with_cutoff(
             if yx > x[0] + band {
                 break;
             }
-            let y = ys[j];
-            let (dx, dy) = (x[0] - y[0], x[1] - y[1]);
+            let (dx, dy) = (x[0] - ys[j][0], x[1] - ys[j][1]);
             let d2 = dx * dx + dy * dy;
             if d2 < c2 {
                 let d = d2.sqrt();
@@ -283,9 +295,10 @@ pub fn match_with_cutoff(
                 }
             }
         }
-        // Edges in (reference, estimate) order, as a full scan would list them, so that
-        // ties between equal-cost assignments resolve the same way.
-        s.edges[first..].sort_unstable_by_key(|&(_, j, _)| j);
+        // Edges in (reference, estimate) order, as a scan of every pair lists them.
+        if s.edges.len() - first > 1 {
+            s.edges[first..].sort_unstable_by_key(|&(_, j, _)| j);
+        }
     }
     if s.edges.is_empty() {
         return out;
@@ -299,13 +312,26 @@ pub fn match_with_cutoff(
             s.parent[a] = b;
         }
     }
-    // Group edges by component root; components with a single edge are trivial.
-    s.order.clear();
-    s.order.extend(0..s.edges.len());
+    // Group edges by component root with a counting sort (roots are node numbers below
+    // m + n), keeping each component's edges in their listed order; components with a
+    // single edge are trivial.
     let mut roots = std::mem::take(&mut s.roots);
     roots.clear();
     roots.extend(s.edges.iter().map(|&(i, _, _)| find(&mut s.parent, i)));
-    s.order.sort_unstable_by_key(|&e| roots[e]);
+    s.count.clear();
+    s.count.resize(m + n + 1, 0);
+    for &r in &roots {
+        s.count[r + 1] += 1;
+    }
+    for k in 1..s.count.len() {
+        s.count[k] += s.count[k - 1];
+    }
+    s.order.clear();
+    s.order.resize(s.edges.len(), 0);
+    for (e, &r) in roots.iter().enumerate() {
+        s.order[s.count[r]] = e;
+        s.count[r] += 1;
+    }
     s.local_row.clear();
     s.local_row.resize(m, NONE);
     s.local_col.clear();
@@ -326,7 +352,17 @@ pub fn match_with_cutoff(
         start = end;
     }
     s.roots = roots;
-    out.pairs.sort_unstable_by_key(|&(i, _, _)| i);
+    // Into reference order by placing each pair at its row (rows are unique among pairs).
+    if out.pairs.len() > 1 {
+        s.slot.clear();
+        s.slot.resize(m, NONE);
+        for (k, &(i, _, _)) in out.pairs.iter().enumerate() {
+            s.slot[i] = k;
+        }
+        s.sorted.clear();
+        s.sorted.extend(s.slot.iter().filter(|&&k| k != NONE).map(|&k| out.pairs[k]));
+        std::mem::swap(&mut out.pairs, &mut s.sorted);
+    }
     finish(&mut out, p);
     out
 }
@@ -489,17 +525,27 @@ mod tests {
         for offset in [0.0, 4.3e5, 5.1e6] {
             let xs: Vec<[f64; 2]> =
                 (0..12).map(|k| [offset + (k % 4) as f64 * 1.0, offset + (k / 4) as f64 * 1.0]).collect();
-            let ys: Vec<[f64; 2]> =
-                (0..12).map(|k| [offset + (k % 4) as f64 * 1.0 + 0.3, offset + (k / 4) as f64 * 2.0]).collect();
+            let ys: Vec<[f64; 2]> = (0..12)
+                .map(|k| [offset + (k % 4) as f64 * 1.0 + 0.3, offset + (k / 4) as f64 * 2.0])
+                .collect();
             let a = match_with_cutoff(&xs, &ys, c, 1.0, true, &mut solver, &mut s);
             let b = match_with_cutoff(&xs, &ys, c, 1.0, false, &mut solver, &mut s);
             assert_eq!(a.pairs.len(), b.pairs.len(), "offset {offset}");
             assert!((a.localization - b.localization).abs() < 1e-9, "offset {offset}");
             // x distance exactly c, no y offset: never a pair; a hair under: a pair.
-            let m = match_with_cutoff(&[[offset, offset]], &[[offset + c, offset]], c, 1.0, true, &mut solver, &mut s);
+            let m = match_with_cutoff(
+                &[[offset, offset]],
+                &[[offset + c, offset]],
+                c,
+                1.0,
+                true,
+                &mut solver,
+                &mut s,
+            );
             assert!(m.pairs.is_empty(), "offset {offset}");
             let under = offset + c - (offset + c) * f64::EPSILON;
-            let m = match_with_cutoff(&[[offset, offset]], &[[under, offset]], c, 1.0, true, &mut solver, &mut s);
+            let m =
+                match_with_cutoff(&[[offset, offset]], &[[under, offset]], c, 1.0, true, &mut solver, &mut s);
             assert_eq!(m.pairs.len(), usize::from(under - offset < c), "offset {offset}");
         }
     }
