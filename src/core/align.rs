@@ -228,26 +228,40 @@ pub fn points_of(set: &ObjectSet, ego: Option<&Pose>, out: &mut Vec<Point>) {
     }
 }
 
+/// The ids of `points` with their positions, sorted by id: what [`interpolate_points`]
+/// looks the later set up in. Built once per set, when it arrives.
+pub fn id_index(points: &[Point], index: &mut Vec<(u64, usize)>) {
+    index.clear();
+    index.extend(points.iter().enumerate().map(|(i, o)| (o.id, i)));
+    index.sort_unstable();
+}
+
 /// Per-id interpolation of two point sets at `t`: ids present in both, positions linear,
-/// yaw along the shorter arc; size and covariance from the earlier set. `index` is scratch.
+/// yaw along the shorter arc; size and covariance from the earlier set. `b_index` is
+/// [`id_index`] of `b`. The output follows the order of `a`.
 pub fn interpolate_points(
     a: &[Point],
     ta: f64,
     b: &[Point],
     tb: f64,
+    b_index: &[(u64, usize)],
     t: f64,
-    index: &mut Vec<(u64, usize)>,
     out: &mut Vec<Point>,
 ) {
     let w = weight(ta, tb, t);
-    index.clear();
-    index.extend(b.iter().enumerate().map(|(i, o)| (o.id, i)));
-    index.sort_unstable();
+    // Consecutive sets of one publisher mostly list their ids in the same order, so the
+    // object after the last match is tried before the index is searched.
+    let mut next = 0;
     for pa in a {
-        let Ok(k) = index.binary_search_by_key(&pa.id, |&(id, _)| id) else {
-            continue;
+        let kb = match b.get(next) {
+            Some(pb) if pb.id == pa.id => next,
+            _ => match b_index.binary_search_by_key(&pa.id, |&(id, _)| id) {
+                Ok(k) => b_index[k].1,
+                Err(_) => continue,
+            },
         };
-        let pb = &b[index[k].1];
+        next = kb + 1;
+        let pb = &b[kb];
         out.push(Point {
             x: pa.x + (pb.x - pa.x) * w,
             y: pa.y + (pb.y - pa.y) * w,
@@ -298,7 +312,8 @@ mod tests {
         for k in 1..10 {
             let t = k as f64 * 0.01;
             out.clear();
-            interpolate_points(&[at(0.0)], 0.0, &[at(0.1)], 0.1, t, &mut idx, &mut out);
+            id_index(&[at(0.1)], &mut idx);
+            interpolate_points(&[at(0.0)], 0.0, &[at(0.1)], 0.1, &idx, t, &mut out);
             assert_eq!(out.len(), 1);
             assert!((out[0].x - (1.0 + 2.0 * t)).abs() < 1e-12);
             assert!((out[0].y - (-3.0 + 0.5 * t)).abs() < 1e-12);
@@ -310,10 +325,24 @@ mod tests {
         let (mut idx, mut out) = (Vec::new(), Vec::new());
         let a = [Object::at(1, 0.0, 0.0), Object::at(2, 5.0, 5.0)].map(|o| Point::of(&o));
         let b = [Object::at(2, 6.0, 5.0), Object::at(3, 9.0, 9.0)].map(|o| Point::of(&o));
-        interpolate_points(&a, 0.0, &b, 1.0, 0.25, &mut idx, &mut out);
+        id_index(&b, &mut idx);
+        interpolate_points(&a, 0.0, &b, 1.0, &idx, 0.25, &mut out);
         assert_eq!(out.len(), 1);
         assert_eq!(out[0].id, 2);
         assert_eq!(out[0].x, 5.25);
+    }
+
+    #[test]
+    fn interpolation_pairs_ids_whatever_their_order() {
+        // The later set lists its ids in another order, drops one and adds one: every id
+        // in both is paired with itself (the in-order shortcut and the index search).
+        let (mut idx, mut out) = (Vec::new(), Vec::new());
+        let a = [1, 2, 3, 5].map(|id| Point::of(&Object::at(id, id as f64, 0.0)));
+        let b = [3, 1, 2, 4].map(|id| Point::of(&Object::at(id, id as f64 + 2.0, 1.0)));
+        id_index(&b, &mut idx);
+        interpolate_points(&a, 0.0, &b, 1.0, &idx, 0.5, &mut out);
+        let got: Vec<(u64, f64, f64)> = out.iter().map(|p| (p.id, p.x, p.y)).collect();
+        assert_eq!(got, vec![(1, 2.0, 0.5), (2, 3.0, 0.5), (3, 4.0, 0.5)]);
     }
 
     #[test]

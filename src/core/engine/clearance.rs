@@ -121,7 +121,7 @@ impl Engine {
     /// Reference objects at `t` (none when the alignment finds nothing).
     fn reference_points_at(&self, t: f64) -> Vec<Point> {
         let mut pts = Vec::new();
-        let mut scratch = (Vec::new(), Vec::new(), Vec::new());
+        let mut scratch = (Vec::new(), Vec::new());
         match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
             Ok(Resolved::One(set, _)) => {
                 if let Ok(p) = self.ref_points(set, &mut scratch.0) {
@@ -132,7 +132,7 @@ impl Engine {
                 if let (Ok(pa), Ok(pb)) =
                     (self.ref_points(&a.1, &mut scratch.0), self.ref_points(&b.1, &mut scratch.1))
                 {
-                    align::interpolate_points(pa, a.0, pb, b.0, t, &mut scratch.2, &mut pts);
+                    align::interpolate_points(pa, a.0, pb, b.0, &b.1.by_id, t, &mut pts);
                 }
             }
             Err(_) => {}

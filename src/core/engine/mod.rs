@@ -131,19 +131,23 @@ fn miss_reason(m: Miss, what: &'static str) -> &'static str {
     }
 }
 
-/// A reference set as buffered: its points, converted once on arrival.
+/// A reference set as buffered: its points, converted once on arrival, and their ids
+/// sorted for interpolation (an ego-frame set moved into the world keeps its order).
 #[derive(Debug)]
 pub(super) struct RefSet {
     stamp: f64,
     ego_frame: bool,
     points: Vec<Point>,
+    by_id: Vec<(u64, usize)>,
 }
 
 impl RefSet {
     fn new(set: &ObjectSet) -> RefSet {
         let mut points = Vec::with_capacity(set.objects.len());
         align::points_of(set, None, &mut points);
-        RefSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points }
+        let mut by_id = Vec::with_capacity(points.len());
+        align::id_index(&points, &mut by_id);
+        RefSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points, by_id }
     }
 }
 
@@ -180,7 +184,6 @@ pub struct Engine {
     wb: Vec<Point>,
     xp: Vec<[f64; 2]>,
     yp: Vec<[f64; 2]>,
-    index: Vec<(u64, usize)>,
     ids: (Vec<u64>, Vec<u64>, Vec<(u64, u64)>),
     clear: clearance::ClearState,
 }
@@ -212,7 +215,6 @@ impl Engine {
             wb: Vec::new(),
             xp: Vec::new(),
             yp: Vec::new(),
-            index: Vec::new(),
             ids: Default::default(),
             clear: clearance::ClearState::new(cp),
         }
@@ -420,7 +422,6 @@ impl Engine {
     fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
         let (mut xs, mut wa, mut wb) =
             (std::mem::take(&mut self.xs), std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
-        let mut index = std::mem::take(&mut self.index);
         xs.clear();
         let res = match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
             Err(m) => Err(miss_reason(m, "objects")),
@@ -430,11 +431,11 @@ impl Engine {
             }),
             Ok(Resolved::Two(a, b)) => self.ref_points(&a.1, &mut wa).and_then(|pa| {
                 let pb = self.ref_points(&b.1, &mut wb)?;
-                align::interpolate_points(pa, a.0, pb, b.0, t, &mut index, &mut xs);
+                align::interpolate_points(pa, a.0, pb, b.0, &b.1.by_id, t, &mut xs);
                 Ok(How::Interpolated)
             }),
         };
-        (self.xs, self.wa, self.wb, self.index) = (xs, wa, wb, index);
+        (self.xs, self.wa, self.wb) = (xs, wa, wb);
         res
     }
 
