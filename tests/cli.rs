@@ -267,3 +267,27 @@ fn html_reports_are_self_contained_with_plots() {
     let namespaces = page.matches("http://www.w3.org/2000/svg").count();
     assert_eq!(external, namespaces, "only SVG namespace URIs may appear");
 }
+
+#[test]
+fn a_reader_that_quits_early_does_not_panic_the_command() {
+    // `plumbline replay LOG | head -c 0`: stdout is a pipe whose reader is already gone.
+    // The summary cannot be written; the command must still write its report and exit
+    // with the code of what it found (0 on the shipped log), not die in a panic (101).
+    use std::process::Stdio;
+    let dir = tempfile::tempdir().unwrap();
+    let report = dir.path().join("r.json");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_plumbline"))
+        .args(["replay", "replay-logs/campus-loop.jsonl", "--report", report.to_str().unwrap()])
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("binary runs");
+    drop(child.stdout.take());
+    let out = child.wait_with_output().unwrap();
+    let stderr = text(&out.stderr);
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert_eq!(out.status.code(), Some(0), "{stderr}");
+    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    assert_eq!(r["steps"]["tracking"]["evaluated"], 600, "{r}");
+}

@@ -76,7 +76,7 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
     };
     let tol = if cfg.gate.is_empty() { gate::default_tolerances(&base, &cand) } else { cfg.gate.clone() };
     let rows = gate::compare(&base, &cand, &tol);
-    print!("{}", gate_table(&rows));
+    out!("{}", gate_table(&rows));
     if let Some(p) = &a.junit {
         if let Err(e) = std::fs::write(p, gate::junit(&rows, &cand)) {
             return super::fail("gate", format!("{}: {e}", p.display()));
@@ -93,7 +93,7 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
         .get("verdicts")
         .and_then(Value::as_array)
         .is_some_and(|v| v.iter().any(|v| v["verdict"] == "fail" && v["severity"] == "critical"));
-    println!("{regressed} regression(s){}", if critical { ", and a critical rule failed" } else { "" });
+    outln!("{regressed} regression(s){}", if critical { ", and a critical rule failed" } else { "" });
     if regressed > 0 || critical {
         super::EXIT_FAIL
     } else {
@@ -211,20 +211,26 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
         }
     }
     let agg = aggregate(cfg, &runs, unreadable);
-    println!(
+    outln!(
         "campaign of {} runs ({} unreadable), {} with a critical failure",
         agg.runs,
         agg.unreadable.len(),
         agg.critical_failures
     );
-    println!("{:<28} {:<9} {:>9} {:>9} {:>22}", "rule", "severity", "failures", "rate", "95% interval (CP)");
+    outln!("{:<28} {:<9} {:>9} {:>9} {:>22}", "rule", "severity", "failures", "rate", "95% interval (CP)");
     for r in &agg.rules {
         match &r.failure_rate {
-            Some(x) => println!(
+            Some(x) => outln!(
                 "{:<28} {:<9} {:>4}/{:<4} {:>9.4} {:>10.4} .. {:<9.4}",
-                r.rule, r.severity, x.failures, x.runs, x.rate, x.lower, x.upper
+                r.rule,
+                r.severity,
+                x.failures,
+                x.runs,
+                x.rate,
+                x.lower,
+                x.upper
             ),
-            None => println!("{:<28} {:<9} {:>9}", r.rule, r.severity, "no data"),
+            None => outln!("{:<28} {:<9} {:>9}", r.rule, r.severity, "no data"),
         }
     }
     if let Some(p) = &a.html {
@@ -330,15 +336,20 @@ pub fn compare_cmd(cfg: &Config, a: &CompareArgs) -> u8 {
             Comparison { metric: m.name().into(), ks, verdict }
         })
         .collect();
-    println!("field {} against {} simulated runs, alpha {}", a.field.display(), sims.len(), a.alpha);
-    println!("{:<24} {:>8} {:>8} {:>10} {:>12}  verdict", "metric", "field n", "sim n", "KS D", "p-value");
+    outln!("field {} against {} simulated runs, alpha {}", a.field.display(), sims.len(), a.alpha);
+    outln!("{:<24} {:>8} {:>8} {:>10} {:>12}  verdict", "metric", "field n", "sim n", "KS D", "p-value");
     for r in &rows {
         match &r.ks {
-            Some(k) => println!(
+            Some(k) => outln!(
                 "{:<24} {:>8} {:>8} {:>10.4} {:>12.4e}  {}",
-                r.metric, k.n1, k.n2, k.statistic, k.p_value, r.verdict
+                r.metric,
+                k.n1,
+                k.n2,
+                k.statistic,
+                k.p_value,
+                r.verdict
             ),
-            None => println!("{:<24} {:>8} {:>8} {:>10} {:>12}  {}", r.metric, 0, 0, "-", "-", r.verdict),
+            None => outln!("{:<24} {:>8} {:>8} {:>10} {:>12}  {}", r.metric, 0, 0, "-", "-", r.verdict),
         }
     }
     if let Some(p) = &a.report {

@@ -286,8 +286,8 @@ pub fn demo_cmd(cfg: &Config, sets: &[String], a: &DemoArgs) -> u8 {
         Ok(x) => x,
         Err(e) => return fail("demo", e),
     };
-    println!("plumbline demo: the Aldermoor campus shuttle, live over zenoh");
-    println!("dashboard at http://{0}/  metrics at http://{0}/metrics  (Ctrl-C to stop)", server.addr);
+    outln!("plumbline demo: the Aldermoor campus shuttle, live over zenoh");
+    outln!("dashboard at http://{0}/  metrics at http://{0}/metrics  (Ctrl-C to stop)", server.addr);
     let session = match zenoh_io::open(&cfg) {
         Ok(s) => s,
         Err(e) => return fail("demo", e),
@@ -309,7 +309,7 @@ pub fn demo_cmd(cfg: &Config, sets: &[String], a: &DemoArgs) -> u8 {
     server.stop();
     match r {
         Ok(rep) => {
-            println!("{}", super::replay::summary(&rep));
+            outln!("{}", super::replay::summary(&rep));
             super::EXIT_OK
         }
         Err(e) => fail("demo", e),

@@ -1,6 +1,17 @@
 //! The command line: flags, glue and user-facing messages. Each command lives in its own
 //! file; metric logic stays in the library.
 
+/// `print!` to stdout that survives a closed stdout (see [`write_out`]).
+macro_rules! out {
+    ($($arg:tt)*) => { $crate::cli::write_out(format_args!($($arg)*)) };
+}
+
+/// `println!` to stdout that survives a closed stdout (see [`write_out`]).
+macro_rules! outln {
+    () => { $crate::cli::write_out(format_args!("\n")) };
+    ($($arg:tt)*) => { $crate::cli::write_out(format_args!("{}\n", format_args!($($arg)*))) };
+}
+
 mod campaign;
 mod convert;
 #[cfg(feature = "live")]
@@ -101,6 +112,25 @@ pub fn run(cli: Cli) -> ExitCode {
         Command::Load(a) => live::load_cmd(&cfg, a),
     };
     ExitCode::from(code)
+}
+
+/// Writes to stdout. A reader that quit early (`plumbline replay LOG | head`) closes the
+/// pipe: the rest of the text is dropped without a panic and the command goes on, so its
+/// report and series files are still written and its exit code still says what it found.
+/// Any other write error is logged once.
+pub(crate) fn write_out(args: std::fmt::Arguments<'_>) {
+    use std::io::Write;
+    use std::sync::atomic::{AtomicBool, Ordering};
+    static GONE: AtomicBool = AtomicBool::new(false);
+    if GONE.load(Ordering::Relaxed) {
+        return;
+    }
+    if let Err(e) = std::io::stdout().lock().write_fmt(args) {
+        GONE.store(true, Ordering::Relaxed);
+        if e.kind() != std::io::ErrorKind::BrokenPipe {
+            tracing::warn!(error = %e, "stdout cannot be written; the rest of the text is dropped");
+        }
+    }
 }
 
 /// Prints a command's error and returns the input/config exit code.

@@ -105,7 +105,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         }
     }
     if !a.quiet {
-        print!("{}", summary(&out.report));
+        out!("{}", summary(&out.report));
     }
     if critical_failed(&out.report.verdicts) {
         super::EXIT_FAIL
