@@ -554,3 +554,47 @@ fn a_full_recorder_disk_is_reported_and_monitoring_goes_on() {
     let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
     assert_eq!(r["steps"]["tracking"]["evaluated"], 600, "{}", r["steps"]);
 }
+
+#[test]
+fn restamped_publishing_keeps_the_recorded_latencies() {
+    // A log that starts with its slowest role (estimate/objects, recorded latency about
+    // 65 ms; the ego poses arrive 2 to 20 ms after their stamps). `publish --restamp` moves
+    // the arrival clock onto the wall clock, so the watcher must see each message about as
+    // late as it was recorded: never earlier than its stamp. Shifting by the first stamp
+    // instead would make every latency relative to the first message's and negative.
+    let dir = tempfile::tempdir().unwrap();
+    let text =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl"))
+            .unwrap();
+    let lines: Vec<&str> = text.lines().take(600).collect();
+    let first = lines.iter().position(|l| l.contains("\"rig/estimate/objects\"")).unwrap();
+    let short = dir.path().join("short.jsonl");
+    std::fs::write(&short, lines[first..].join("\n") + "\n").unwrap();
+    let rec = dir.path().join("rec.plb");
+    let zport = free_port();
+    let mut w = Watcher::start(zport, &["--record", rec.to_str().unwrap()]);
+    let connect = format!("tcp/127.0.0.1:{zport}");
+    let st = bin()
+        .args(["publish", short.to_str().unwrap(), "--restamp", "--connect", &connect, "--no-multicast"])
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .status()
+        .unwrap();
+    assert!(st.success());
+    std::thread::sleep(Duration::from_millis(500));
+    w.signal("-TERM");
+    assert!(matches!(w.wait(), Some(0) | Some(1)));
+    let lat: Vec<(plumbline::msg::Role, f64)> = samples(&rec)
+        .iter()
+        .filter(|s| s.metric == Metric::Latency)
+        .map(|s| (s.role.unwrap(), s.value))
+        .collect();
+    assert!(lat.len() > 300, "{} latency samples", lat.len());
+    let min = lat.iter().map(|l| l.1).fold(f64::INFINITY, f64::min);
+    // 1 ms of slack for the two clocks read at different moments on one machine.
+    assert!(min > -0.001, "a message seen {:.4} s before its stamp", -min);
+    let est: Vec<f64> =
+        lat.iter().filter(|l| l.0 == plumbline::msg::Role::EstimateObjects).map(|l| l.1).collect();
+    let mean = est.iter().sum::<f64>() / est.len() as f64;
+    assert!((0.03..0.5).contains(&mean), "estimate/objects latency {mean:.4} s (recorded 30-79 ms)");
+}

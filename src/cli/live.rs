@@ -88,7 +88,8 @@ pub struct PublishArgs {
     /// Postcard payloads instead of JSON.
     #[arg(long)]
     pub binary: bool,
-    /// Shift stamps so the first record is stamped now.
+    /// Shift stamps onto the wall clock: the log's first arrival becomes now, and every
+    /// message keeps its recorded latency.
     #[arg(long)]
     pub restamp: bool,
     /// Session settings.

@@ -63,7 +63,7 @@ pub fn run(
     session: &zenoh::Session,
     stop: &AtomicBool,
 ) -> Result<u64, String> {
-    let start = Instant::now();
+    let mut start = Instant::now();
     let mut first: Option<f64> = None;
     let mut offset = 0.0;
     let mut n = 0u64;
@@ -74,8 +74,15 @@ pub fn run(
             return;
         }
         let at = rec.recv.unwrap_or(rec.msg.stamp());
+        // The pacing clock and the restamping offset are both anchored at the first record:
+        // the log's arrival clock is moved onto the wall clock (the first record arrives
+        // now), so each message keeps its recorded latency (recv - stamp). Anchoring the
+        // pacing before the log was opened sent the first messages in a burst, and shifting
+        // by the first stamp made the first latency the zero point: both showed as
+        // messages arriving before their stamps.
         let t0 = *first.get_or_insert_with(|| {
-            offset = wall_now() - rec.msg.stamp();
+            start = Instant::now();
+            offset = wall_now() - at;
             at
         });
         if let Some(rate) = opts.rate {
