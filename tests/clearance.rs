@@ -180,4 +180,37 @@ proptest::proptest! {
         let want = if placed.poly().intersects(&p) { 0.0 } else { (Euclidean::distance(placed.poly(), &p) - r).max(0.0) };
         proptest::prop_assert!((disc - want).abs() < 1e-9, "disc {disc} vs geo {want}");
     }
+
+    /// Source: the `geo` crate's polygon distance (vertex-to-edge minimum over R-trees of
+    /// both rings) and intersection test. The footprint's distance to random simple
+    /// polygons (star-shaped, 3 to 9 vertices, convex or not, near, touching or far) and to
+    /// two-point obstacles must agree with it.
+    #[test]
+    fn polygon_distances_match_geo(
+        x in -15.0f64..15.0, y in -15.0f64..15.0, yaw in -3.2f64..3.2,
+        cx in -15.0f64..15.0, cy in -15.0f64..15.0,
+        radii in proptest::collection::vec(0.2f64..6.0, 3..10),
+        turn in 0.0f64..6.3,
+    ) {
+        use geo::{Distance, Euclidean, Intersects};
+        let fp = Footprint { length: 4.0, width: 1.8, origin_to_rear: 1.0 };
+        let placed = fp.place(x, y, yaw);
+        let k = radii.len();
+        let pts: Vec<[f64; 2]> = radii
+            .iter()
+            .enumerate()
+            .map(|(i, r)| {
+                let a = turn + i as f64 * std::f64::consts::TAU / k as f64;
+                [cx + r * a.cos(), cy + r * a.sin()]
+            })
+            .collect();
+        let poly = geo::Polygon::new(geo::LineString::from(pts.iter().map(|p| (p[0], p[1])).collect::<Vec<_>>()), vec![]);
+        let want = if placed.poly().intersects(&poly) { 0.0 } else { Euclidean::distance(placed.poly(), &poly) };
+        let got = Body::poly(ObstacleId::Map(0), &pts).distance(&placed);
+        proptest::prop_assert!((got - want).abs() < 1e-9, "polygon {got} vs geo {want}");
+        let seg = geo::LineString::from(vec![(pts[0][0], pts[0][1]), (pts[1][0], pts[1][1])]);
+        let want = if placed.poly().intersects(&seg) { 0.0 } else { Euclidean::distance(placed.poly(), &seg) };
+        let got = Body::poly(ObstacleId::Map(0), &pts[..2]).distance(&placed);
+        proptest::prop_assert!((got - want).abs() < 1e-9, "two-point obstacle {got} vs geo {want}");
+    }
 }
