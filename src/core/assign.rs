@@ -243,6 +243,7 @@ pub fn match_with_cutoff(
     if m == 0 || n == 0 {
         return out;
     }
+    out.pairs.reserve(m.min(n));
     let cp = pow_p(c, p);
     let c2 = c * c;
     if !sparse {

@@ -132,6 +132,7 @@ impl Engine {
                 if let (Ok(pa), Ok(pb)) =
                     (self.ref_points(&a.1, &mut scratch.0), self.ref_points(&b.1, &mut scratch.1))
                 {
+                    pts.reserve(pa.len());
                     align::interpolate_points(pa, a.0, pb, b.0, &b.1.by_id, t, &mut pts);
                 }
             }
