@@ -28,7 +28,7 @@ use std::collections::VecDeque;
 use serde::Serialize;
 
 use super::{Engine, Pending, RefSet};
-use crate::core::align::{self, Point, Resolved, Timeline};
+use crate::core::align::{self, Point, Timeline};
 use crate::core::engine::Sample;
 use crate::core::ClearanceParams;
 use crate::geometry::{nearer, nearest_of, Body, Nearest, ObstacleId, ObstacleIndex};
@@ -121,23 +121,8 @@ impl Engine {
     /// Reference objects at `t` (none when the alignment finds nothing).
     fn reference_points_at(&self, t: f64) -> Vec<Point> {
         let mut pts = Vec::new();
-        let mut scratch = (Vec::new(), Vec::new());
-        match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
-            Ok(Resolved::One(set, _)) => {
-                if let Ok(p) = self.ref_points(set, &mut scratch.0) {
-                    pts.extend_from_slice(p);
-                }
-            }
-            Ok(Resolved::Two(a, b)) => {
-                if let (Ok(pa), Ok(pb)) =
-                    (self.ref_points(&a.1, &mut scratch.0), self.ref_points(&b.1, &mut scratch.1))
-                {
-                    pts.reserve(pa.len());
-                    align::interpolate_points(pa, a.0, pb, b.0, &b.1.by_id, t, &mut pts);
-                }
-            }
-            Err(_) => {}
-        }
+        // A miss leaves the list empty; the tracking step counts misses, clearance does not.
+        let _ = self.reference_into(t, &mut Vec::new(), &mut Vec::new(), &mut pts);
         pts
     }
 

@@ -423,20 +423,34 @@ impl Engine {
         let (mut xs, mut wa, mut wb) =
             (std::mem::take(&mut self.xs), std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
         xs.clear();
-        let res = match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
-            Err(m) => Err(miss_reason(m, "objects")),
-            Ok(Resolved::One(set, how)) => self.ref_points(set, &mut wa).map(|p| {
-                xs.extend_from_slice(p);
-                how
-            }),
-            Ok(Resolved::Two(a, b)) => self.ref_points(&a.1, &mut wa).and_then(|pa| {
-                let pb = self.ref_points(&b.1, &mut wb)?;
-                align::interpolate_points(pa, a.0, pb, b.0, &b.1.by_id, t, &mut xs);
-                Ok(How::Interpolated)
-            }),
-        };
+        let res = self.reference_into(t, &mut wa, &mut wb, &mut xs);
         (self.xs, self.wa, self.wb) = (xs, wa, wb);
         res
+    }
+
+    /// The reference objects at `t` by the alignment rule (exact, interpolated per id, or
+    /// the fallback), appended to `out`; `wa` and `wb` are scratch for ego-frame sets.
+    /// Nothing is appended when it fails.
+    fn reference_into(
+        &self,
+        t: f64,
+        wa: &mut Vec<Point>,
+        wb: &mut Vec<Point>,
+        out: &mut Vec<Point>,
+    ) -> Result<How, &'static str> {
+        match align::resolve(&self.ref_objects, t, self.ap.tolerance) {
+            Err(m) => Err(miss_reason(m, "objects")),
+            Ok(Resolved::One(set, how)) => self.ref_points(set, wa).map(|p| {
+                out.extend_from_slice(p);
+                how
+            }),
+            Ok(Resolved::Two(a, b)) => self.ref_points(&a.1, wa).and_then(|pa| {
+                let pb = self.ref_points(&b.1, wb)?;
+                out.reserve(pa.len());
+                align::interpolate_points(pa, a.0, pb, b.0, &b.1.by_id, t, out);
+                Ok(How::Interpolated)
+            }),
+        }
     }
 
     /// A reference set's world-frame points: cached at arrival for world-frame sets, moved
