@@ -196,7 +196,6 @@ pub struct MatchScratch {
     roots: Vec<usize>,
     count: Vec<usize>,
     slot: Vec<usize>,
-    sorted: Vec<(usize, usize, f64)>,
     comp_rows: Vec<usize>,
     comp_cols: Vec<usize>,
     local_row: Vec<usize>,
@@ -337,6 +336,9 @@ pub fn match_with_cutoff(
     s.local_row.resize(m, NONE);
     s.local_col.clear();
     s.local_col.resize(n, NONE);
+    // Each reference's assigned edge, read out in reference order at the end.
+    s.slot.clear();
+    s.slot.resize(m, NONE);
     let mut start = 0;
     while start < s.order.len() {
         let root = roots[s.order[start]];
@@ -345,25 +347,15 @@ pub fn match_with_cutoff(
             end += 1;
         }
         if end - start == 1 {
-            let (i, j, d) = s.edges[s.order[start]];
-            out.pairs.push((i, j, d));
+            let e = s.order[start];
+            s.slot[s.edges[e].0] = e;
         } else {
-            solve_component(s, start, end, cp, p, solver, &mut out);
+            solve_component(s, start, end, cp, p, solver);
         }
         start = end;
     }
     s.roots = roots;
-    // Into reference order by placing each pair at its row (rows are unique among pairs).
-    if out.pairs.len() > 1 {
-        s.slot.clear();
-        s.slot.resize(m, NONE);
-        for (k, &(i, _, _)) in out.pairs.iter().enumerate() {
-            s.slot[i] = k;
-        }
-        s.sorted.clear();
-        s.sorted.extend(s.slot.iter().filter(|&&k| k != NONE).map(|&k| out.pairs[k]));
-        std::mem::swap(&mut out.pairs, &mut s.sorted);
-    }
+    out.pairs.extend(s.slot.iter().filter(|&&e| e != NONE).map(|&e| s.edges[e]));
     finish(&mut out, p);
     out
 }
@@ -375,7 +367,6 @@ fn solve_component(
     cp: f64,
     p: f64,
     solver: &mut dyn Assigner,
-    out: &mut Matching,
 ) {
     s.comp_rows.clear();
     s.comp_cols.clear();
@@ -406,7 +397,7 @@ fn solve_component(
             let e = s.edges[s.order[k]];
             e.0 == i && e.1 == j
         }) {
-            out.pairs.push(s.edges[s.order[k]]);
+            s.slot[i] = s.order[k];
         }
     }
     for &i in &s.comp_rows {
