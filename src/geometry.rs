@@ -164,6 +164,19 @@ fn ring_gap(a: &LineString<f64>, b: &LineString<f64>) -> f64 {
     one_way(a, b).min(one_way(b, a))
 }
 
+/// The footprint's distance to a general shape: 0 when they intersect, else the gap
+/// between the footprint's ring and the shape's `ring`.
+fn gap<G>(fp: &Placed, shape: &G, ring: &LineString<f64>) -> f64
+where
+    Polygon<f64>: Intersects<G>,
+{
+    if fp.poly().intersects(shape) {
+        0.0
+    } else {
+        ring_gap(fp.poly().exterior(), ring)
+    }
+}
+
 fn polygon(pts: &[[f64; 2]]) -> Polygon<f64> {
     let ring: Vec<Coord<f64>> = pts.iter().map(|p| Coord { x: p[0], y: p[1] }).collect();
     Polygon::new(LineString::from(ring), vec![])
@@ -281,20 +294,8 @@ impl Body {
         match &self.solid {
             Solid::Disc { c, r } => (fp.rect.point_distance(*c) - r).max(0.0),
             Solid::Rect(b) => fp.rect.distance(b),
-            Solid::Poly(p) => {
-                if fp.poly().intersects(p) {
-                    0.0
-                } else {
-                    ring_gap(fp.poly().exterior(), p.exterior())
-                }
-            }
-            Solid::Line(l) => {
-                if fp.poly().intersects(l) {
-                    0.0
-                } else {
-                    ring_gap(fp.poly().exterior(), l)
-                }
-            }
+            Solid::Poly(p) => gap(fp, p, p.exterior()),
+            Solid::Line(l) => gap(fp, l, l),
         }
     }
 
