@@ -63,9 +63,8 @@ pub fn run(
     session: &zenoh::Session,
     stop: &AtomicBool,
 ) -> Result<u64, String> {
-    let mut start = Instant::now();
-    let mut first: Option<f64> = None;
-    let mut offset = 0.0;
+    // (first arrival in the log, when it was sent, wall-clock offset for restamping)
+    let mut anchor: Option<(f64, Instant, f64)> = None;
     let mut n = 0u64;
     let mut err = None;
     read_all(cfg, log, &mut |item, _| {
@@ -80,11 +79,7 @@ pub fn run(
         // pacing before the log was opened sent the first messages in a burst, and shifting
         // by the first stamp made the first latency the zero point: both showed as
         // messages arriving before their stamps.
-        let t0 = *first.get_or_insert_with(|| {
-            start = Instant::now();
-            offset = wall_now() - at;
-            at
-        });
+        let (t0, start, offset) = *anchor.get_or_insert_with(|| (at, Instant::now(), wall_now() - at));
         if let Some(rate) = opts.rate {
             let due = Duration::from_secs_f64(((at - t0) / rate).max(0.0));
             if let Some(wait) = due.checked_sub(start.elapsed()) {
