@@ -8,7 +8,6 @@ macro_rules! out {
 
 /// `println!` to stdout that survives a closed stdout (see [`write_out`]).
 macro_rules! outln {
-    () => { $crate::cli::write_out(format_args!("\n")) };
     ($($arg:tt)*) => { $crate::cli::write_out(format_args!("{}\n", format_args!($($arg)*))) };
 }
 
