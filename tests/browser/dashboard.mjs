@@ -105,12 +105,12 @@ try {
   await page.screenshot({ path: path.join(out, "dashboard-wide.png"), fullPage: true });
 
   // 2. An alert raised by the demo appears with the journal's rule name and time.
-  const shown = await until("an active alert on the page", 45, async () => {
-    const li = page.locator("#alerts-active li[data-rule]").first();
-    if ((await li.count()) === 0) return null;
-    return { rule: await li.getAttribute("data-rule"), t: Number(await li.getAttribute("data-raised-t")),
-      text: await li.innerText() };
-  });
+  // Rule, time and text are read from one element in one step: the list re-renders
+  // between separate reads, and a newer alert could take the first place in between.
+  const shown = await until("an active alert on the page", 45, () => page.evaluate(() => {
+    const li = document.querySelector("#alerts-active li[data-rule]");
+    return li && { rule: li.dataset.rule, t: Number(li.dataset.raisedT), text: li.innerText };
+  }));
   await page.screenshot({ path: path.join(out, "dashboard-alert-wide.png"), fullPage: true });
   const raised = await until(`the journal to hold ${shown.rule} raised at ${shown.t}`, 5, () =>
     readJournal().find((e) => e.kind === "raised" && e.rule === shown.rule && e.t === shown.t));
