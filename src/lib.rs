@@ -43,3 +43,4 @@ pub mod rules;
 pub mod scenario;
 pub mod stats;
 pub mod windows;
+pub mod wire;

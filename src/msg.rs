@@ -448,9 +448,10 @@ pub fn decode_postcard(kind: MsgKind, bytes: &[u8], limits: &Limits) -> Result<M
     fn parse<'a, T: Deserialize<'a>>(bytes: &'a [u8]) -> Result<T, Reject> {
         postcard::from_bytes(bytes).map_err(|e| Reject::Malformed(e.to_string()))
     }
+    // Object sets and poses by the direct reader when it can (see `crate::wire`).
     let msg = match kind {
-        MsgKind::Objects => Msg::Objects(parse(bytes)?),
-        MsgKind::Pose => Msg::Pose(parse(bytes)?),
+        MsgKind::Objects => Msg::Objects(crate::wire::object_set(bytes).map_or_else(|| parse(bytes), Ok)?),
+        MsgKind::Pose => Msg::Pose(crate::wire::pose(bytes).map_or_else(|| parse(bytes), Ok)?),
         MsgKind::Path => Msg::Path(parse(bytes)?),
         MsgKind::Obstacles => Msg::Obstacles(parse(bytes)?),
     };

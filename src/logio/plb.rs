@@ -181,7 +181,9 @@ fn decode_record(
     payload: &[u8],
     pos: Position,
 ) -> Item {
-    let rec = match postcard::from_bytes::<LogRecord>(payload) {
+    // The direct reader takes object sets and poses; the rest, and anything it cannot
+    // read, goes the serde way, which also words the errors.
+    let rec = match crate::wire::log_record(payload).map_or_else(|| postcard::from_bytes(payload), Ok) {
         Err(e) => return Item::Bad { pos, role: None, reason: Reject::Malformed(e.to_string()) },
         Ok(rec) => rec,
     };
