@@ -12,10 +12,11 @@ use std::path::Path;
 use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
 
 use crate::config::Config;
-use crate::core::engine::{Input, Sample};
+use crate::core::engine::{Input, Prepared, Sample};
 use crate::logio::chunks::{Frame, LineFramer, RecordFramer};
-use crate::logio::{jsonl, plb, Form, Item, LogError, Tail};
+use crate::logio::{jsonl, plb, Form, Item, LogError, Position, Tail};
 use crate::monitor::Monitor;
+use crate::msg::{Reject, Role};
 use crate::report::{series_row, BadRecord, Report, RunInputs, SERIES_HEADER};
 use crate::rules::AlertEvent;
 
@@ -109,8 +110,23 @@ impl Source {
     }
 }
 
+/// A decoded record, its message already prepared for the engine.
+enum Ready {
+    Record { role: Role, recv: Option<f64>, msg: Prepared },
+    Bad { pos: Position, role: Option<Role>, reason: Reject },
+}
+
+impl From<Item> for Ready {
+    fn from(item: Item) -> Ready {
+        match item {
+            Item::Record { role, rec } => Ready::Record { role, recv: rec.recv, msg: rec.msg.into() },
+            Item::Bad { pos, role, reason } => Ready::Bad { pos, role, reason },
+        }
+    }
+}
+
 struct Decoded {
-    items: Vec<Item>,
+    items: Vec<Ready>,
     end: u64,
     tail: Option<Tail>,
 }
@@ -148,13 +164,16 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             let roles = &header_roles;
             let limits = &limits;
             let decode = move || {
+                let mut decoded = Vec::new();
                 for frame in rx_in.iter() {
-                    let mut items = Vec::new();
                     let (end, tail) = match frame {
                         Frame::Tail(t) => (t.offset, Some(t)),
-                        f if is_lines => (jsonl::decode_frame(cfg, limits, f, &mut items), None),
-                        f => plb::decode_frame(cfg, roles, limits, f, &mut items),
+                        f if is_lines => (jsonl::decode_frame(cfg, limits, f, &mut decoded), None),
+                        f => plb::decode_frame(cfg, roles, limits, f, &mut decoded),
                     };
+                    // Prepared here, while the messages are in this core's cache; the
+                    // objects are dropped on the thread that made them.
+                    let items: Vec<Ready> = decoded.drain(..).map(Ready::from).collect();
                     if tx_out.send(Decoded { items, end, tail }).is_err() {
                         break;
                     }
@@ -220,10 +239,10 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             k += 1;
             for item in d.items {
                 match item {
-                    Item::Record { role, rec } => {
-                        engine.push(Input::Message { role, recv: rec.recv, msg: rec.msg }, &mut samples)
+                    Ready::Record { role, recv, msg } => {
+                        engine.push(Input::Prepared { role, recv, msg }, &mut samples)
                     }
-                    Item::Bad { pos, role, reason } => {
+                    Ready::Bad { pos, role, reason } => {
                         tracing::debug!(%pos, role = role.map(|r| r.name()), reason = %reason, "rejected record");
                         if first_bad.len() < KEEP_BAD {
                             first_bad.push(BadRecord::new(pos, role, &reason));

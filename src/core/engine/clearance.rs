@@ -24,10 +24,11 @@
 //! before t.
 
 use std::collections::VecDeque;
+use std::sync::Arc;
 
 use serde::Serialize;
 
-use super::{Engine, Pending, RefSet};
+use super::{Engine, Pending, PointSet};
 use crate::core::align::{self, Point, Timeline};
 use crate::core::engine::Sample;
 use crate::core::ClearanceParams;
@@ -62,7 +63,7 @@ pub(super) struct ClearState {
     pub(super) cp: ClearanceParams,
     map: Timeline<ObstacleIndex>,
     plans: Timeline<Plan>,
-    pub(super) est_sets: Timeline<RefSet>,
+    pub(super) est_sets: Timeline<Arc<PointSet>>,
     pub(super) clears: VecDeque<Pending<Pose>>,
     pub(super) last_clear_t: Option<f64>,
     prev_ego: Option<(f64, Pose, Option<f64>)>,

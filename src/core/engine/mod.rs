@@ -7,6 +7,7 @@
 //! stamp when a record has none), so replay and live produce the same samples.
 
 use std::collections::{BTreeMap, VecDeque};
+use std::sync::Arc;
 
 use serde::Serialize;
 
@@ -19,7 +20,7 @@ use crate::metrics::nees::{nees, NeesPool};
 use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
 use crate::metrics::transport::Transport;
 use crate::metrics::{ego, gospa, ospa, Metric};
-use crate::msg::{Msg, ObjectSet, Pose, Role};
+use crate::msg::{Msg, ObjectSet, ObstacleSet, Path, Pose, Role};
 pub use clearance::Collision;
 
 /// One input to the engine.
@@ -33,6 +34,16 @@ pub enum Input {
         recv: Option<f64>,
         /// The message.
         msg: Msg,
+    },
+    /// An accepted message already prepared by [`Prepared::from`] (replay prepares on its
+    /// decoding threads; the engine does the same for [`Input::Message`]).
+    Prepared {
+        /// The role it arrived on.
+        role: Role,
+        /// Arrival time on the monitor's clock, if known.
+        recv: Option<f64>,
+        /// The prepared message.
+        msg: Prepared,
     },
     /// A message rejected while decoding or validating.
     Rejected {
@@ -131,23 +142,70 @@ fn miss_reason(m: Miss, what: &'static str) -> &'static str {
     }
 }
 
-/// A reference set as buffered: its points, converted once on arrival, and their ids
-/// sorted for interpolation (an ego-frame set moved into the world keeps its order).
-#[derive(Debug)]
-pub(super) struct RefSet {
+/// An object set as the engine keeps it: its points, converted once on arrival, and their
+/// ids sorted for interpolation (an ego-frame set moved into the world keeps its order).
+#[derive(Debug, Clone)]
+pub struct PointSet {
     stamp: f64,
     ego_frame: bool,
     points: Vec<Point>,
     by_id: Vec<(u64, usize)>,
 }
 
-impl RefSet {
-    fn new(set: &ObjectSet) -> RefSet {
+impl PointSet {
+    /// Converts an object set.
+    pub fn of(set: &ObjectSet) -> PointSet {
         let mut points = Vec::with_capacity(set.objects.len());
         align::points_of(set, None, &mut points);
         let mut by_id = Vec::with_capacity(points.len());
         align::id_index(&points, &mut by_id);
-        RefSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points, by_id }
+        PointSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points, by_id }
+    }
+}
+
+/// A message in the form the engine works on: object sets converted to points. A pure
+/// function of the message, so it may run on any thread: replay runs it on its decoding
+/// threads, where the message is still in cache, and the engine never touches the objects.
+#[derive(Debug, Clone)]
+pub enum Prepared {
+    /// An object set's points (shared by the tracking step and the clearance look-up).
+    Objects(Arc<PointSet>),
+    /// A pose.
+    Pose(Pose),
+    /// A path.
+    Path(Path),
+    /// A site map.
+    Obstacles(ObstacleSet),
+}
+
+impl From<Msg> for Prepared {
+    fn from(msg: Msg) -> Prepared {
+        match msg {
+            Msg::Objects(set) => Prepared::Objects(Arc::new(PointSet::of(&set))),
+            Msg::Pose(p) => Prepared::Pose(p),
+            Msg::Path(p) => Prepared::Path(p),
+            Msg::Obstacles(o) => Prepared::Obstacles(o),
+        }
+    }
+}
+
+impl Prepared {
+    /// The message's stamp.
+    pub fn stamp(&self) -> f64 {
+        match self {
+            Prepared::Objects(s) => s.stamp,
+            Prepared::Pose(m) => m.stamp,
+            Prepared::Path(m) => m.stamp,
+            Prepared::Obstacles(m) => m.stamp,
+        }
+    }
+
+    /// How many object states it carries.
+    pub fn object_count(&self) -> usize {
+        match self {
+            Prepared::Objects(s) => s.points.len(),
+            _ => 0,
+        }
     }
 }
 
@@ -163,10 +221,10 @@ pub(super) struct Pending<T> {
 pub struct Engine {
     tp: TrackingParams,
     ap: AlignParams,
-    ref_objects: Timeline<RefSet>,
+    ref_objects: Timeline<Arc<PointSet>>,
     ref_ego: Timeline<Pose>,
     est_ego: Timeline<Pose>,
-    tracks: VecDeque<Pending<ObjectSet>>,
+    tracks: VecDeque<Pending<Arc<PointSet>>>,
     egos: VecDeque<Pending<Pose>>,
     now: f64,
     last_track_t: Option<f64>,
@@ -256,11 +314,12 @@ impl Engine {
                 }
             }
             Input::Dropped { role } => self.transport[role.index()].dropped += 1,
-            Input::Message { role, recv, msg } => self.message(role, recv, msg, out),
+            Input::Message { role, recv, msg } => self.message(role, recv, msg.into(), out),
+            Input::Prepared { role, recv, msg } => self.message(role, recv, msg, out),
         }
     }
 
-    fn message(&mut self, role: Role, recv: Option<f64>, msg: Msg, out: &mut Vec<Sample>) {
+    fn message(&mut self, role: Role, recv: Option<f64>, msg: Prepared, out: &mut Vec<Sample>) {
         let stamp = msg.stamp();
         let arrival = recv.unwrap_or(stamp);
         self.advance(arrival, out);
@@ -278,9 +337,9 @@ impl Engine {
         }
         let deadline = arrival + self.ap.max_wait;
         match (role, msg) {
-            (Role::ReferenceObjects, Msg::Objects(set)) => self.ref_objects.insert(stamp, RefSet::new(&set)),
-            (Role::EstimateObjects, Msg::Objects(set)) => {
-                self.clear.est_sets.insert(stamp, RefSet::new(&set));
+            (Role::ReferenceObjects, Prepared::Objects(set)) => self.ref_objects.insert(stamp, set),
+            (Role::EstimateObjects, Prepared::Objects(set)) => {
+                self.clear.est_sets.insert(stamp, Arc::clone(&set));
                 if self.tracks.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
                     if let Some(p) = self.tracks.pop_front() {
@@ -289,7 +348,7 @@ impl Engine {
                 }
                 self.tracks.push_back(Pending { t: stamp, deadline, item: set });
             }
-            (Role::ReferenceEgo, Msg::Pose(p)) => {
+            (Role::ReferenceEgo, Prepared::Pose(p)) => {
                 self.ref_ego.insert(stamp, p.clone());
                 if self.clear.clears.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
@@ -299,9 +358,9 @@ impl Engine {
                 }
                 self.clear.clears.push_back(Pending { t: stamp, deadline, item: p });
             }
-            (Role::PlanPath, Msg::Path(p)) => self.on_plan(&p, out),
-            (Role::ReferenceObstacles, Msg::Obstacles(o)) => self.on_obstacles(&o),
-            (Role::EstimateEgo, Msg::Pose(p)) => {
+            (Role::PlanPath, Prepared::Path(p)) => self.on_plan(&p, out),
+            (Role::ReferenceObstacles, Prepared::Obstacles(o)) => self.on_obstacles(&o),
+            (Role::EstimateEgo, Prepared::Pose(p)) => {
                 self.est_ego.insert(stamp, p.clone());
                 if self.egos.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
@@ -335,7 +394,7 @@ impl Engine {
         }
     }
 
-    fn tracking_ready(&self, p: &Pending<ObjectSet>) -> bool {
+    fn tracking_ready(&self, p: &Pending<Arc<PointSet>>) -> bool {
         let t = p.t;
         if !self.ref_objects.has_at_or_after(t) {
             return false;
@@ -343,7 +402,7 @@ impl Engine {
         if self.tp.region > 0.0 && !self.ref_ego.has_at_or_after(t) {
             return false;
         }
-        if align::is_ego_frame(&p.item) && !self.frame_source().has_at_or_after(t) {
+        if p.item.ego_frame && !self.frame_source().has_at_or_after(t) {
             return false;
         }
         true
@@ -413,9 +472,15 @@ impl Engine {
             .map_err(|m| miss_reason(m, "frame"))
     }
 
-    fn world_points(&self, set: &ObjectSet, at: f64, out: &mut Vec<Point>) -> Result<(), &'static str> {
-        let ego = if align::is_ego_frame(set) { Some(self.frame_pose(at)?) } else { None };
-        align::points_of(set, ego.as_ref(), out);
+    fn world_points(&self, set: &PointSet, at: f64, out: &mut Vec<Point>) -> Result<(), &'static str> {
+        let ego = if set.ego_frame { Some(self.frame_pose(at)?) } else { None };
+        let start = out.len();
+        out.extend_from_slice(&set.points);
+        if let Some(ego) = ego {
+            for p in &mut out[start..] {
+                align::to_world(p, &ego);
+            }
+        }
         Ok(())
     }
 
@@ -457,7 +522,7 @@ impl Engine {
     /// by the frame pose at the set's stamp into `scratch` for ego-frame sets.
     fn ref_points<'a>(
         &self,
-        set: &'a RefSet,
+        set: &'a PointSet,
         scratch: &'a mut Vec<Point>,
     ) -> Result<&'a [Point], &'static str> {
         if !set.ego_frame {
@@ -473,7 +538,7 @@ impl Engine {
         Ok(scratch)
     }
 
-    fn eval_tracking(&mut self, t: f64, est: &ObjectSet, out: &mut Vec<Sample>) {
+    fn eval_tracking(&mut self, t: f64, est: &PointSet, out: &mut Vec<Sample>) {
         self.last_track_t = Some(t);
         let how = match self.reference_at(t) {
             Ok(h) => h,
