@@ -25,6 +25,10 @@ struct RefState {
     last_est: Option<u64>,
     gap_while_present: bool,
     last_present: f64,
+    /// The last step (1-based count) it was present at, and assigned at: whether it is
+    /// present or assigned now is one look-up of its state, not a set of this step's ids.
+    present_step: u64,
+    assigned_step: u64,
 }
 
 #[derive(Debug, Clone)]
@@ -32,6 +36,13 @@ struct EstState {
     last_seen: f64,
     owner: Option<u64>,
     owner_left_at: Option<f64>,
+    seen_step: u64,
+}
+
+impl EstState {
+    fn new(t: f64) -> EstState {
+        EstState { last_seen: t, owner: None, owner_left_at: None, seen_step: 0 }
+    }
 }
 
 /// What one step produced.
@@ -52,10 +63,10 @@ pub struct TrackLifeStep {
 pub struct TrackLife {
     refs: HashMap<u64, RefState>,
     ests: HashMap<u64, EstState>,
+    /// The estimate ids of the previous step and of this one; their iteration order is
+    /// the order deletion delays are emitted in.
     prev_ests: HashSet<u64>,
     cur_ests: HashSet<u64>,
-    cur_refs: HashSet<u64>,
-    assigned_refs: HashSet<u64>,
     forget_after: f64,
     last_t: f64,
     steps: u64,
@@ -71,8 +82,6 @@ impl TrackLife {
             ests: HashMap::default(),
             prev_ests: HashSet::default(),
             cur_ests: HashSet::default(),
-            cur_refs: HashSet::default(),
-            assigned_refs: HashSet::default(),
             forget_after,
             last_t: f64::NEG_INFINITY,
             steps: 0,
@@ -95,8 +104,7 @@ impl TrackLife {
         out.establishment.clear();
         out.deletion.clear();
         self.last_t = t;
-        self.cur_refs.clear();
-        self.cur_refs.extend(refs_present.iter().copied());
+        let step = self.steps + 1;
         self.cur_ests.clear();
         self.cur_ests.extend(ests_present.iter().copied());
 
@@ -107,13 +115,16 @@ impl TrackLife {
                 last_est: None,
                 gap_while_present: false,
                 last_present: t,
+                present_step: 0,
+                assigned_step: 0,
             });
             st.last_present = t;
+            st.present_step = step;
         }
-        self.assigned_refs.clear();
         for &(r, e) in pairs {
-            self.assigned_refs.insert(r);
+            // Assigned references are present, so their state exists (inserted above).
             if let Some(st) = self.refs.get_mut(&r) {
+                st.assigned_step = step;
                 if !st.established {
                     st.established = true;
                     out.establishment.push(t - st.first_in_region);
@@ -127,49 +138,46 @@ impl TrackLife {
                 }
                 st.last_est = Some(e);
             }
-            let es =
-                self.ests.entry(e).or_insert(EstState { last_seen: t, owner: None, owner_left_at: None });
+            let es = self.ests.entry(e).or_insert_with(|| EstState::new(t));
             es.owner = Some(r);
             es.owner_left_at = None;
         }
         for &r in refs_present {
-            if !self.assigned_refs.contains(&r) {
-                if let Some(st) = self.refs.get_mut(&r) {
-                    if st.last_est.is_some() {
-                        st.gap_while_present = true;
-                    }
+            if let Some(st) = self.refs.get_mut(&r) {
+                if st.assigned_step != step && st.last_est.is_some() {
+                    st.gap_while_present = true;
                 }
             }
         }
+        let refs = &self.refs;
+        // The state of a reference present at this step.
+        let present = |id: u64| refs.get(&id).filter(|s| s.present_step == step);
         for &e in ests_present {
-            let es =
-                self.ests.entry(e).or_insert(EstState { last_seen: t, owner: None, owner_left_at: None });
+            let es = self.ests.entry(e).or_insert_with(|| EstState::new(t));
             es.last_seen = t;
+            es.seen_step = step;
             if let Some(owner) = es.owner {
-                if self.cur_refs.contains(&owner) {
+                if present(owner).is_some() {
                     es.owner_left_at = None;
                 } else if es.owner_left_at.is_none() {
-                    es.owner_left_at = self.refs.get(&owner).map(|s| s.last_present);
+                    es.owner_left_at = refs.get(&owner).map(|s| s.last_present);
                 }
             }
         }
         // Estimates seen at the previous step and gone now.
         for e in self.prev_ests.iter() {
-            if self.cur_ests.contains(e) {
+            let Some(es) = self.ests.get_mut(e) else { continue };
+            if es.seen_step == step {
                 continue;
             }
-            if let Some(es) = self.ests.get_mut(e) {
-                // The owner may have left at this very step, together with the track.
-                let left = es.owner_left_at.take().or_else(|| {
-                    es.owner
-                        .filter(|o| !self.cur_refs.contains(o))
-                        .and_then(|o| self.refs.get(&o).map(|s| s.last_present))
-                });
-                if let Some(left) = left {
-                    out.deletion.push(es.last_seen - left);
-                }
-                es.owner = None;
+            // The owner may have left at this very step, together with the track.
+            let left = es.owner_left_at.take().or_else(|| {
+                es.owner.filter(|&o| present(o).is_none()).and_then(|o| refs.get(&o).map(|s| s.last_present))
+            });
+            if let Some(left) = left {
+                out.deletion.push(es.last_seen - left);
             }
+            es.owner = None;
         }
         std::mem::swap(&mut self.prev_ests, &mut self.cur_ests);
 
