@@ -323,8 +323,17 @@ impl Window {
 
     /// Adds a value at event time `t`.
     pub fn add(&mut self, t: f64, v: f64) {
+        self.add_binned(t, v, Sketch::bin(v));
+    }
+
+    /// [`Window::add`] with the value's sketch bin already computed (`Sketch::bin(v)`), so
+    /// that the windows of one metric compute it once.
+    fn add_binned(&mut self, t: f64, v: f64, bin: u16) {
         let idx = self.index(t);
-        self.advance_to(idx);
+        // Buckets expire only when the end moves forward.
+        if idx > self.head {
+            self.advance_to(idx);
+        }
         if idx <= self.head - self.k {
             self.late += 1;
             return;
@@ -334,26 +343,31 @@ impl Window {
         if idx == self.head {
             self.last = Some(v);
         }
-        let pos = match self.buckets.iter().rposition(|b| b.index <= idx) {
-            Some(p) if self.buckets[p].index == idx => p,
-            found => {
-                let at = found.map_or(0, |p| p + 1);
-                let mut b = self.spare.pop().unwrap_or(Bucket {
-                    index: idx,
-                    count: 0,
-                    sum: 0.0,
-                    min: f64::INFINITY,
-                    max: f64::NEG_INFINITY,
-                    bins: Vec::new(),
-                });
-                b.index = idx;
-                b.count = 0;
-                b.sum = 0.0;
-                b.min = f64::INFINITY;
-                b.max = f64::NEG_INFINITY;
-                self.buckets.insert(at, b);
-                at
-            }
+        // Values mostly land in the newest bucket.
+        let newest = self.buckets.len().wrapping_sub(1);
+        let pos = match self.buckets.back().filter(|b| b.index == idx).map(|_| newest) {
+            Some(p) => p,
+            None => match self.buckets.iter().rposition(|b| b.index <= idx) {
+                Some(p) if self.buckets[p].index == idx => p,
+                found => {
+                    let at = found.map_or(0, |p| p + 1);
+                    let mut b = self.spare.pop().unwrap_or(Bucket {
+                        index: idx,
+                        count: 0,
+                        sum: 0.0,
+                        min: f64::INFINITY,
+                        max: f64::NEG_INFINITY,
+                        bins: Vec::new(),
+                    });
+                    b.index = idx;
+                    b.count = 0;
+                    b.sum = 0.0;
+                    b.min = f64::INFINITY;
+                    b.max = f64::NEG_INFINITY;
+                    self.buckets.insert(at, b);
+                    at
+                }
+            },
         };
         let b = &mut self.buckets[pos];
         b.count += 1;
@@ -361,7 +375,6 @@ impl Window {
         b.min = b.min.min(v);
         b.max = b.max.max(v);
         if let Some(total) = self.total.as_mut() {
-            let bin = Sketch::bin(v);
             b.bins.push(bin);
             total.insert(bin);
         }
@@ -533,8 +546,9 @@ impl WindowSet {
         let (lengths, k) = (&self.lengths, self.buckets);
         let ws = self.keys[key_index(metric, role)]
             .get_or_insert_with(|| lengths.iter().map(|&l| Window::new(l, k, true)).collect());
+        let bin = Sketch::bin(v);
         for w in ws {
-            w.add(t, v);
+            w.add_binned(t, v, bin);
         }
     }
 
