@@ -173,3 +173,228 @@ fn varint_edges_match_postcard() {
         assert_eq!(fast, want, "direct reader on {id:02x?}");
     }
 }
+
+// ---- JSON Lines: the direct reader against the serde_json path (`decode_line_serde`). ----
+
+use plumbline::config::Config;
+use plumbline::logio::jsonl::{decode_line_serde, format_line};
+use plumbline::msg::{validate, Limits, Role};
+
+fn role_of(cfg: &Config) -> impl Fn(&str) -> Option<Role> + '_ {
+    move |k| plumbline::logio::role_for(cfg, &[], k)
+}
+
+/// Both readers on one line, each followed by validation as `decode_line` does: when the
+/// direct one reads the line, serde_json reads it too, to the same record (bit for bit, so
+/// -0.0 and 0.0 differ) or the same rejection.
+fn agree(cfg: &Config, line: &[u8]) -> Option<bool> {
+    let limits = Limits { max_objects: usize::MAX };
+    let fast = wire::json::record(line, role_of(cfg))?;
+    let slow = decode_line_serde(cfg, &limits, line);
+    Some(match (validate(&fast.1.msg, &limits), slow) {
+        (Ok(()), Ok((rs, s))) => fast.0 == rs && same(&fast.1, &s),
+        (Err(ef), Err((rs, es))) => rs == Some(fast.0) && ef == es,
+        (f, s) => panic!("the direct reader gives {f:?}, serde_json {s:?}"),
+    })
+}
+
+#[test]
+fn every_line_of_the_shipped_log_is_read_directly_and_equally() {
+    let cfg = Config::defaults();
+    let p = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl");
+    let text = std::fs::read_to_string(p).unwrap();
+    let (mut direct, mut declined) = (0, 0);
+    for line in text.lines() {
+        match agree(&cfg, line.as_bytes()) {
+            Some(true) => direct += 1,
+            Some(false) => panic!("the readers differ on {line}"),
+            None => declined += 1,
+        }
+    }
+    // The shipped log's plans and site map are the kinds left to serde.
+    let other = text.lines().filter(|l| l.contains("plan/path") || l.contains("reference/obstacles")).count();
+    assert_eq!(declined, other);
+    assert!(direct > 1000, "{direct} lines read directly");
+}
+
+/// A JSON number token: integers, fractions, exponents, negative zero, mantissas past 2^53
+/// and values out of range (which both readers must refuse alike).
+fn number_text() -> impl Strategy<Value = String> {
+    prop_oneof![
+        any::<f64>().prop_filter("finite", |v| v.is_finite()).prop_map(|v| format!("{v:?}")),
+        (-1e7..1e7f64).prop_map(|v| format!("{v}")),
+        // Up to 38 characters: tokens over 40 are left to serde by design.
+        "-?(0|[1-9][0-9]{0,15})(\\.[0-9]{1,15})?([eE][+-]?[0-9]{1,3})?",
+        Just("-0".to_string()),
+        Just("9007199254740993".to_string()),
+        Just("0.1e-400".to_string()),
+        Just("1e309".to_string()),
+    ]
+}
+
+fn ws() -> impl Strategy<Value = &'static str> {
+    prop_oneof![Just(""), Just(""), Just(" "), Just("\t"), Just(" \r ")]
+}
+
+/// One field `"name": value` with optional whitespace around the colon.
+fn field(name: &'static str, value: impl Strategy<Value = String>) -> impl Strategy<Value = String> {
+    (value, ws(), ws()).prop_map(move |(v, a, b)| format!("\"{name}\"{a}:{b}{v}"))
+}
+
+fn opt_number() -> impl Strategy<Value = String> {
+    prop_oneof![number_text(), Just("null".to_string())]
+}
+
+fn numbers(n: usize) -> impl Strategy<Value = String> {
+    proptest::collection::vec(number_text(), n).prop_map(|v| format!("[{}]", v.join(",")))
+}
+
+/// Fields in a shuffled order, optional ones sometimes left out.
+fn object_text(
+    required: Vec<BoxedStrategy<String>>,
+    optional: Vec<BoxedStrategy<String>>,
+) -> BoxedStrategy<String> {
+    let opts: Vec<_> = optional.into_iter().map(proptest::option::of).collect();
+    (required, opts, ws())
+        .prop_flat_map(|(mut fs, opts, w)| {
+            fs.extend(opts.into_iter().flatten());
+            Just(fs).prop_shuffle().prop_map(move |fs| format!("{{{w}{}}}", fs.join(&format!(",{w}"))))
+        })
+        .boxed()
+}
+
+fn object_json() -> BoxedStrategy<String> {
+    object_text(
+        vec![
+            field("id", prop_oneof!["[0-9]{1,19}", Just("18446744073709551615".to_string())]).boxed(),
+            field("x", number_text()).boxed(),
+            field("y", number_text()).boxed(),
+        ],
+        vec![
+            field("vx", opt_number()).boxed(),
+            field("vy", opt_number()).boxed(),
+            field("yaw", opt_number()).boxed(),
+            field("length", opt_number()).boxed(),
+            field("width", opt_number()).boxed(),
+            field("cov", prop_oneof![numbers(4), Just("null".to_string())]).boxed(),
+            field("class", prop_oneof!["\"[a-z\u{e9}]{0,8}\"", Just("null".to_string())]).boxed(),
+        ],
+    )
+}
+
+fn line_json() -> BoxedStrategy<String> {
+    let objects = proptest::collection::vec(object_json(), 0..6).prop_map(|v| format!("[{}]", v.join(",")));
+    let set = object_text(
+        vec![field("stamp", number_text()).boxed()],
+        vec![
+            field(
+                "frame",
+                prop_oneof![
+                    Just("\"world\"".to_string()),
+                    Just("\"ego\"".to_string()),
+                    Just("null".to_string())
+                ],
+            )
+            .boxed(),
+            field("objects", objects).boxed(),
+        ],
+    );
+    let pose = object_text(
+        vec![
+            field("stamp", number_text()).boxed(),
+            field("x", number_text()).boxed(),
+            field("y", number_text()).boxed(),
+            field("yaw", number_text()).boxed(),
+        ],
+        vec![
+            field("v", opt_number()).boxed(),
+            field("cov", prop_oneof![numbers(9), Just("null".to_string())]).boxed(),
+        ],
+    );
+    prop_oneof![
+        (set, opt_number())
+            .prop_map(|(m, r)| format!("{{\"key\":\"rig/estimate/objects\",\"recv\":{r},\"msg\":{m}}}")),
+        (pose, opt_number())
+            .prop_map(|(m, r)| format!("{{\"key\":\"rig/reference/ego\",\"msg\":{m},\"recv\":{r}}} ")),
+    ]
+    .boxed()
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 3000, ..ProptestConfig::default() })]
+
+    /// Generated lines (number forms, whitespace, nulls, field orders): the direct reader
+    /// reads exactly the lines serde_json reads, to the same record.
+    #[test]
+    fn json_lines_read_as_serde_json_reads_them(line in line_json()) {
+        let cfg = Config::defaults();
+        let slow_ok = decode_line_serde(&cfg, &Limits { max_objects: usize::MAX }, line.as_bytes()).is_ok();
+        match agree(&cfg, line.as_bytes()) {
+            Some(same) => prop_assert!(same, "the readers differ on {}", line),
+            None => prop_assert!(!slow_ok, "a well-formed line left to serde: {}", line),
+        }
+    }
+
+    /// Damaged lines: whatever the direct reader reads, serde_json reads alike.
+    #[test]
+    fn damaged_json_lines_are_read_no_differently(
+        r in record(),
+        edits in proptest::collection::vec((any::<usize>(), any::<u8>(), 0u8..3), 1..6),
+    ) {
+        let cfg = Config::defaults();
+        let r = LogRecord { key: "rig/estimate/objects".into(), ..r };
+        let mut bytes = format_line(&r).trim_end().as_bytes().to_vec();
+        for (at, b, op) in edits {
+            if bytes.is_empty() { break; }
+            let at = at % bytes.len();
+            match op {
+                0 => bytes[at] = b,
+                1 => { bytes.remove(at); }
+                _ => bytes.insert(at, b),
+            }
+        }
+        if let Some(same) = agree(&cfg, &bytes) {
+            prop_assert!(same);
+        }
+    }
+}
+
+/// Numbers at the edges of the exact fast path and of the grammar, each against serde_json
+/// (values written out by hand; 2^53 + 1 = 9007199254740993 rounds to 2^53, IEEE 754).
+#[test]
+fn json_number_edges_read_as_serde_json_reads_them() {
+    let cfg = Config::defaults();
+    for n in [
+        "0",
+        "-0",
+        "-0.0",
+        "0.000",
+        "1.5",
+        "9007199254740991",
+        "9007199254740992",
+        "9007199254740993",
+        "0.1234567890123456789012",
+        "12345678901234567.5",
+        "1e22",
+        "1E-5",
+        "123.456e2",
+        "-7",
+        "01",
+        "1.",
+        ".5",
+        "+1",
+        "1e",
+        "--1",
+        "1e400",
+        "NaN",
+        "Infinity",
+    ] {
+        let line =
+            format!("{{\"key\":\"rig/reference/ego\",\"msg\":{{\"stamp\":{n},\"x\":0,\"y\":0,\"yaw\":0}}}}");
+        let slow_ok = decode_line_serde(&cfg, &Limits::default(), line.as_bytes()).is_ok();
+        match agree(&cfg, line.as_bytes()) {
+            Some(same) => assert!(same, "{n}"),
+            None => assert!(!slow_ok, "{n} left to serde"),
+        }
+    }
+}

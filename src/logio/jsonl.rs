@@ -118,6 +118,23 @@ pub fn decode_line(
     limits: &Limits,
     line: &[u8],
 ) -> Result<(Role, LogRecord), (Option<Role>, Reject)> {
+    // Object sets and poses by the direct reader when it can (see `crate::wire::json`);
+    // what it declines goes the serde way, which also words the errors.
+    match crate::wire::json::record(line, |k| role_for(cfg, &[], k)) {
+        Some((role, rec)) => {
+            validate(&rec.msg, limits).map_err(|e| (Some(role), e))?;
+            Ok((role, rec))
+        }
+        None => decode_line_serde(cfg, limits, line),
+    }
+}
+
+/// [`decode_line`] by serde_json alone (the reference the direct reader is tested against).
+pub fn decode_line_serde(
+    cfg: &Config,
+    limits: &Limits,
+    line: &[u8],
+) -> Result<(Role, LogRecord), (Option<Role>, Reject)> {
     let text = std::str::from_utf8(line).map_err(|e| (None, Reject::Malformed(e.to_string())))?;
     let decoding = Cell::new(None);
     let mut de = serde_json::Deserializer::from_str(text);

@@ -1,5 +1,6 @@
-//! A direct reader of the binary (postcard) form for the two messages that make up nearly
-//! every record of a log: object sets and poses.
+//! Direct readers of the two log forms for the two messages that make up nearly every
+//! record of a log: object sets and poses. This file reads the binary (postcard) form;
+//! [`json`] reads JSON Lines.
 //!
 //! postcard's serde path decodes them correctly but slowly: every field goes through the
 //! derived visitor and the generic sequence access with its error plumbing, about 440
@@ -11,6 +12,8 @@
 //! caller then takes the serde path, which decodes the rare kinds and words the errors, so
 //! the two agree by construction on every input the fast one accepts; the property tests
 //! in `tests/wire.rs` check that on random messages and on damaged bytes.
+
+pub mod json;
 
 use compact_str::CompactString;
 

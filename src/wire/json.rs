@@ -1,0 +1,382 @@
+//! A direct reader of JSON Lines records that carry object sets and poses.
+//!
+//! serde_json reads a record correctly but field by field through the derived visitors;
+//! in a JSONL replay that was the largest cost. This reader accepts a strict subset of
+//! JSON: the record's fields `key` (before `msg`), `recv` and `msg`, the message's own
+//! fields, each at most once and in any order, `null` for absent options, whitespace
+//! anywhere JSON allows it. It gives up (`None`) on anything else (escapes or control
+//! characters in strings, unknown or repeated fields, `msg` before `key`, an unbound key,
+//! other message kinds, numbers it cannot read exactly as serde_json does), and the caller
+//! takes the serde path, which decodes those and words the errors.
+//!
+//! Numbers are checked against JSON's grammar, then read by Rust's `f64::from_str`, which
+//! rounds correctly, as serde_json does with its `float_roundtrip` feature: both give the
+//! double nearest the decimal, integers included (serde_json converts an integer token to
+//! the nearest double too), and both read `-0` as negative zero. A result out of range
+//! (serde_json's "number out of range") and tokens over 40 characters go to serde.
+//! `tests/wire.rs` holds this reader to the serde path on generated and damaged lines.
+
+use compact_str::CompactString;
+
+use crate::logio::LogRecord;
+use crate::msg::{Frame, Msg, MsgKind, Object, ObjectSet, Pose, Role};
+
+/// Longest number token read here.
+const MAX_NUMBER: usize = 40;
+
+struct Parser<'a> {
+    b: &'a [u8],
+    at: usize,
+}
+
+impl<'a> Parser<'a> {
+    #[inline]
+    fn peek(&mut self) -> Option<u8> {
+        while let Some(&c) = self.b.get(self.at) {
+            if !matches!(c, b' ' | b'\t' | b'\n' | b'\r') {
+                return Some(c);
+            }
+            self.at += 1;
+        }
+        None
+    }
+
+    #[inline]
+    fn eat(&mut self, c: u8) -> Option<()> {
+        (self.peek()? == c).then(|| self.at += 1)
+    }
+
+    /// A string's bytes, without escapes or control characters (not yet checked as UTF-8:
+    /// field names are only compared with ASCII names).
+    fn raw_str(&mut self) -> Option<&'a [u8]> {
+        self.eat(b'"')?;
+        let start = self.at;
+        loop {
+            match *self.b.get(self.at)? {
+                b'"' => break,
+                c if c == b'\\' || c < 0x20 => return None,
+                _ => self.at += 1,
+            }
+        }
+        self.at += 1;
+        Some(&self.b[start..self.at - 1])
+    }
+
+    /// A string without escapes or control characters.
+    fn str(&mut self) -> Option<&'a str> {
+        std::str::from_utf8(self.raw_str()?).ok()
+    }
+
+    /// A number token by JSON's grammar: its bytes and whether it is an integer.
+    fn number(&mut self) -> Option<(&'a [u8], bool)> {
+        self.peek()?;
+        let (b, start) = (self.b, self.at);
+        let digits = |mut i: usize| {
+            while b.get(i).is_some_and(u8::is_ascii_digit) {
+                i += 1;
+            }
+            i
+        };
+        let mut i = start + usize::from(b.get(start) == Some(&b'-'));
+        i = match b.get(i)? {
+            b'0' => i + 1,
+            b'1'..=b'9' => digits(i + 1),
+            _ => return None,
+        };
+        let mut integer = true;
+        if b.get(i) == Some(&b'.') {
+            let end = digits(i + 1);
+            if end == i + 1 {
+                return None;
+            }
+            (i, integer) = (end, false);
+        }
+        if matches!(b.get(i), Some(b'e' | b'E')) {
+            i += 1;
+            if matches!(b.get(i), Some(b'+' | b'-')) {
+                i += 1;
+            }
+            let end = digits(i);
+            if end == i {
+                return None;
+            }
+            (i, integer) = (end, false);
+        }
+        if i - start > MAX_NUMBER {
+            return None;
+        }
+        self.at = i;
+        Some((&b[start..i], integer))
+    }
+
+    fn f64(&mut self) -> Option<f64> {
+        let t = self.number()?.0;
+        if let Some(v) = exact_decimal(t) {
+            return Some(v);
+        }
+        // The token is ASCII by construction.
+        let v: f64 = std::str::from_utf8(t).ok()?.parse().ok()?;
+        v.is_finite().then_some(v)
+    }
+
+    fn u64(&mut self) -> Option<u64> {
+        match self.number()? {
+            (t, true) if t[0] != b'-' => std::str::from_utf8(t).ok()?.parse().ok(),
+            _ => None,
+        }
+    }
+
+    /// Consumes a `null` if one is next.
+    fn null(&mut self) -> Option<bool> {
+        if self.peek()? != b'n' {
+            return Some(false);
+        }
+        self.b[self.at..].starts_with(b"null").then(|| {
+            self.at += 4;
+            true
+        })
+    }
+
+    fn opt_f64(&mut self) -> Option<Option<f64>> {
+        Some(if self.null()? { None } else { Some(self.f64()?) })
+    }
+
+    fn opt_floats<const N: usize>(&mut self) -> Option<Option<[f64; N]>> {
+        if self.null()? {
+            return Some(None);
+        }
+        self.eat(b'[')?;
+        let mut out = [0.0; N];
+        for (k, v) in out.iter_mut().enumerate() {
+            if k > 0 {
+                self.eat(b',')?;
+            }
+            *v = self.f64()?;
+        }
+        self.eat(b']')?;
+        Some(Some(out))
+    }
+
+    /// An object's fields: `each` reads the value of every name (and says which of the
+    /// known names it was); a name unknown or seen twice gives up.
+    fn fields(&mut self, mut each: impl FnMut(&mut Self, &'a [u8]) -> Option<u32>) -> Option<u32> {
+        self.eat(b'{')?;
+        let mut seen = 0u32;
+        if self.peek()? == b'}' {
+            self.at += 1;
+            return Some(seen);
+        }
+        loop {
+            let name = self.raw_str()?;
+            self.eat(b':')?;
+            let bit = each(self, name)?;
+            if seen & bit != 0 {
+                return None;
+            }
+            seen |= bit;
+            match self.peek()? {
+                b',' => self.at += 1,
+                b'}' => {
+                    self.at += 1;
+                    return Some(seen);
+                }
+                _ => return None,
+            }
+        }
+    }
+
+    fn object(&mut self) -> Option<Object> {
+        let mut o = Object::at(0, 0.0, 0.0);
+        let seen = self.fields(|p, name| {
+            Some(match name {
+                b"id" => {
+                    o.id = p.u64()?;
+                    1
+                }
+                b"x" => {
+                    o.x = p.f64()?;
+                    2
+                }
+                b"y" => {
+                    o.y = p.f64()?;
+                    4
+                }
+                b"vx" => {
+                    o.vx = p.opt_f64()?;
+                    8
+                }
+                b"vy" => {
+                    o.vy = p.opt_f64()?;
+                    16
+                }
+                b"yaw" => {
+                    o.yaw = p.opt_f64()?;
+                    32
+                }
+                b"length" => {
+                    o.length = p.opt_f64()?;
+                    64
+                }
+                b"width" => {
+                    o.width = p.opt_f64()?;
+                    128
+                }
+                b"cov" => {
+                    o.cov = p.opt_floats::<4>()?;
+                    256
+                }
+                b"class" => {
+                    o.class = if p.null()? { None } else { Some(CompactString::from(p.str()?)) };
+                    512
+                }
+                _ => return None,
+            })
+        })?;
+        (seen & 7 == 7).then_some(o)
+    }
+
+    fn object_set(&mut self) -> Option<ObjectSet> {
+        let mut set = ObjectSet { stamp: 0.0, frame: None, objects: Vec::new() };
+        let seen = self.fields(|p, name| {
+            Some(match name {
+                b"stamp" => {
+                    set.stamp = p.f64()?;
+                    1
+                }
+                b"frame" => {
+                    set.frame = match p.null()? {
+                        true => None,
+                        false => Some(match p.raw_str()? {
+                            b"world" => Frame::World,
+                            b"ego" => Frame::Ego,
+                            _ => return None,
+                        }),
+                    };
+                    2
+                }
+                b"objects" => {
+                    p.eat(b'[')?;
+                    // At least 20 bytes an object (`{"id":0,"x":0,"y":0}`, comma aside).
+                    set.objects.reserve((p.b.len() - p.at) / 20);
+                    if p.peek()? == b']' {
+                        p.at += 1;
+                    } else {
+                        loop {
+                            set.objects.push(p.object()?);
+                            match p.peek()? {
+                                b',' => p.at += 1,
+                                b']' => break p.at += 1,
+                                _ => return None,
+                            }
+                        }
+                    }
+                    4
+                }
+                _ => return None,
+            })
+        })?;
+        (seen & 1 == 1).then_some(set)
+    }
+
+    fn pose(&mut self) -> Option<Pose> {
+        let mut m = Pose { stamp: 0.0, x: 0.0, y: 0.0, yaw: 0.0, v: None, cov: None };
+        let seen = self.fields(|p, name| {
+            Some(match name {
+                b"stamp" => {
+                    m.stamp = p.f64()?;
+                    1
+                }
+                b"x" => {
+                    m.x = p.f64()?;
+                    2
+                }
+                b"y" => {
+                    m.y = p.f64()?;
+                    4
+                }
+                b"yaw" => {
+                    m.yaw = p.f64()?;
+                    8
+                }
+                b"v" => {
+                    m.v = p.opt_f64()?;
+                    16
+                }
+                b"cov" => {
+                    m.cov = p.opt_floats::<9>()?;
+                    32
+                }
+                _ => return None,
+            })
+        })?;
+        (seen & 15 == 15).then_some(m)
+    }
+}
+
+/// Powers of ten exactly representable as doubles.
+const POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18,
+    1e19, 1e20, 1e21, 1e22,
+];
+
+/// A plain decimal (`-?digits(.digits)?`, no exponent) whose digits, read as one integer,
+/// stay below 2^53 and whose fraction has at most 22 digits: that integer and the power of
+/// ten are exact doubles, so one IEEE division gives the correctly rounded value (Clinger,
+/// "How to read floating point numbers accurately", 1990: the fast path), the same double
+/// `f64::from_str` gives. Anything else: `None`.
+fn exact_decimal(t: &[u8]) -> Option<f64> {
+    let (neg, digits) = match t.split_first()? {
+        (b'-', rest) => (true, rest),
+        _ => (false, t),
+    };
+    let (mut m, mut frac, mut dot) = (0u64, 0usize, false);
+    for &c in digits {
+        match c {
+            b'0'..=b'9' => {
+                m = m * 10 + u64::from(c - b'0');
+                if m >= 1 << 53 {
+                    return None;
+                }
+                frac += usize::from(dot);
+            }
+            b'.' => dot = true,
+            _ => return None,
+        }
+    }
+    let v = m as f64 / *POW10.get(frac)?;
+    Some(if neg { -v } else { v })
+}
+
+/// Reads one line (without its newline) whose key `role_of` binds to a role carrying
+/// object sets or poses; `None` when the serde path must decide.
+pub fn record(line: &[u8], role_of: impl Fn(&str) -> Option<Role>) -> Option<(Role, LogRecord)> {
+    let mut p = Parser { b: line, at: 0 };
+    let (mut key, mut role, mut recv, mut msg) = (None, None, None, None);
+    let seen = p.fields(|p, name| {
+        Some(match name {
+            b"key" => {
+                let k = p.str()?;
+                role = Some(role_of(k)?);
+                key = Some(k);
+                1
+            }
+            b"recv" => {
+                recv = p.opt_f64()?;
+                2
+            }
+            b"msg" => {
+                msg = Some(match role?.kind() {
+                    MsgKind::Objects => Msg::Objects(p.object_set()?),
+                    MsgKind::Pose => Msg::Pose(p.pose()?),
+                    MsgKind::Path | MsgKind::Obstacles => return None,
+                });
+                4
+            }
+            _ => return None,
+        })
+    })?;
+    if p.peek().is_some() || seen & 5 != 5 {
+        return None;
+    }
+    Some((role?, LogRecord { key: key?.to_string(), recv, msg: msg? }))
+}
