@@ -124,9 +124,8 @@ impl Summary {
         let sum = self.sum + self.comp;
         let (p50, p95, p99) = match &self.hist {
             None => {
-                let mut v = self.exact.clone();
-                v.sort_unstable_by(f64::total_cmp);
-                (quantile_sorted(&v, 0.5), quantile_sorted(&v, 0.95), quantile_sorted(&v, 0.99))
+                let [p50, p95, p99] = quantiles_selected(&mut self.exact.clone(), [0.5, 0.95, 0.99]);
+                (p50, p95, p99)
             }
             Some((neg, pos)) => {
                 (hist_quantile(neg, pos, 0.5), hist_quantile(neg, pos, 0.95), hist_quantile(neg, pos, 0.99))
@@ -170,6 +169,29 @@ fn hist_quantile(neg: &Histogram<u64>, pos: &Histogram<u64>, q: f64) -> f64 {
     }
 }
 
+/// The quantiles of `v` for ascending `qs`, by [`quantile_sorted`]'s rule, found by
+/// selection instead of a full sort: the same order statistics (under `f64::total_cmp`, as
+/// the sort), each selection working on what lies above the previous one.
+pub fn quantiles_selected<const N: usize>(v: &mut [f64], qs: [f64; N]) -> [f64; N] {
+    let mut out = [f64::NAN; N];
+    if v.is_empty() {
+        return out;
+    }
+    let n = v.len();
+    let mut from = 0;
+    for (o, q) in out.iter_mut().zip(qs) {
+        let pos = q * (n - 1) as f64;
+        let (lo, hi) = (pos.floor() as usize, pos.ceil() as usize);
+        let (_, a, above) = v[from..].select_nth_unstable_by(lo - from, f64::total_cmp);
+        let a = *a;
+        // The next order statistic is the least of those above.
+        let b = if hi == lo { a } else { above.iter().copied().min_by(f64::total_cmp).unwrap_or(a) };
+        *o = a + (b - a) * (pos - lo as f64);
+        from = lo;
+    }
+    out
+}
+
 /// The q-quantile of sorted values by linear interpolation (numpy's default).
 pub fn quantile_sorted(v: &[f64], q: f64) -> f64 {
     if v.is_empty() {
@@ -184,6 +206,27 @@ pub fn quantile_sorted(v: &[f64], q: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        /// Selection gives the very quantiles of the full sort (bit for bit), whatever the
+        /// values: ties, signed zeros, infinities, one value.
+        #[test]
+        fn selected_quantiles_equal_sorted_ones(
+            mut v in proptest::collection::vec(prop_oneof![
+                -5.0..5.0f64, Just(0.0), Just(-0.0), Just(1.0), Just(f64::INFINITY), Just(f64::NEG_INFINITY)
+            ], 1..300),
+        ) {
+            let mut sorted = v.clone();
+            sorted.sort_unstable_by(f64::total_cmp);
+            let qs = [0.0, 0.25, 0.5, 0.95, 0.99, 1.0];
+            let got = quantiles_selected(&mut v, qs);
+            for (g, q) in got.iter().zip(qs) {
+                let want = quantile_sorted(&sorted, q);
+                prop_assert!(g.to_bits() == want.to_bits() || (g.is_nan() && want.is_nan()), "q {}: {} vs {}", q, g, want);
+            }
+        }
+    }
 
     #[test]
     fn exact_stats_by_hand() {
