@@ -192,7 +192,7 @@ pub struct Matching {
 pub struct MatchScratch {
     parent: Vec<usize>,
     edges: Vec<(usize, usize, f64)>,
-    ysort: Vec<(f64, usize)>,
+    ysort: Vec<(u64, usize)>,
     roots: Vec<usize>,
     count: Vec<usize>,
     slot: Vec<usize>,
@@ -272,17 +272,19 @@ pub fn match_with_cutoff(
     // sorted by x: a pair whose x coordinates differ by c or more is no edge, so each
     // reference looks only at the estimates inside its x band.
     s.ysort.clear();
-    s.ysort.extend(ys.iter().enumerate().map(|(j, y)| (y[0], j)));
-    s.ysort.sort_unstable_by_key(|&(x, _)| order_key(x));
+    // Sorted by integer keys of x (computed once, not at every comparison).
+    s.ysort.extend(ys.iter().enumerate().map(|(j, y)| (order_key(y[0]), j)));
+    s.ysort.sort_unstable();
     // The band is a hair wider than c so that rounding in its bounds never drops a pair;
     // the test on d below stays the exact rule.
     let band = c * (1.0 + 1e-9);
     s.edges.clear();
     for (i, x) in xs.iter().enumerate() {
         let first = s.edges.len();
-        let lo = s.ysort.partition_point(|&(yx, _)| yx < x[0] - band);
-        for &(yx, j) in &s.ysort[lo..] {
-            if yx > x[0] + band {
+        let (from, to) = (order_key(x[0] - band), order_key(x[0] + band));
+        let lo = s.ysort.partition_point(|&(k, _)| k < from);
+        for &(k, j) in &s.ysort[lo..] {
+            if k > to {
                 break;
             }
             let (dx, dy) = (x[0] - ys[j][0], x[1] - ys[j][1]);
