@@ -110,10 +110,12 @@ impl<'a> Parser<'a> {
     }
 
     fn f64(&mut self) -> Option<f64> {
-        let t = self.number()?.0;
-        if let Some(v) = exact_decimal(t) {
+        self.peek()?;
+        if let Some((v, end)) = exact_decimal(self.b, self.at) {
+            self.at = end;
             return Some(v);
         }
+        let t = self.number()?.0;
         // The token is ASCII by construction.
         let v: f64 = std::str::from_utf8(t).ok()?.parse().ok()?;
         v.is_finite().then_some(v)
@@ -319,32 +321,45 @@ const POW10: [f64; 23] = [
     1e19, 1e20, 1e21, 1e22,
 ];
 
-/// A plain decimal (`-?digits(.digits)?`, no exponent) whose digits, read as one integer,
-/// stay below 2^53 and whose fraction has at most 22 digits: that integer and the power of
-/// ten are exact doubles, so one IEEE division gives the correctly rounded value (Clinger,
-/// "How to read floating point numbers accurately", 1990: the fast path), the same double
-/// `f64::from_str` gives. Anything else: `None`.
-fn exact_decimal(t: &[u8]) -> Option<f64> {
-    let (neg, digits) = match t.split_first()? {
-        (b'-', rest) => (true, rest),
-        _ => (false, t),
-    };
-    let (mut m, mut frac, mut dot) = (0u64, 0usize, false);
-    for &c in digits {
-        match c {
-            b'0'..=b'9' => {
-                m = m * 10 + u64::from(c - b'0');
-                if m >= 1 << 53 {
-                    return None;
-                }
-                frac += usize::from(dot);
-            }
-            b'.' => dot = true,
-            _ => return None,
+/// A plain decimal at `b[i..]` (`-?(0|[1-9][0-9]*)(\.[0-9]+)?`, JSON's grammar without an
+/// exponent) whose digits, read as one integer, stay below 2^53 and whose fraction has at
+/// most 22 digits: that integer and the power of ten are exact doubles, so one IEEE division
+/// gives the correctly rounded value (Clinger, "How to read floating point numbers
+/// accurately", 1990: the fast path), the same double `f64::from_str` gives. Returns the
+/// value and where it ends; anything else (`None`) goes the general way.
+fn exact_decimal(b: &[u8], mut i: usize) -> Option<(f64, usize)> {
+    let neg = b.get(i) == Some(&b'-');
+    i += usize::from(neg);
+    let digit = |i: usize| b.get(i).filter(|c| c.is_ascii_digit()).map(|c| u64::from(c - b'0'));
+    // A leading zero stands alone.
+    if digit(i)? == 0 && digit(i + 1).is_some() {
+        return None;
+    }
+    let (mut m, mut frac) = (0u64, 0usize);
+    while let Some(d) = digit(i) {
+        m = m * 10 + d;
+        i += 1;
+        if m >= 1 << 53 {
+            return None;
         }
     }
+    if b.get(i) == Some(&b'.') {
+        i += 1;
+        digit(i)?;
+        while let Some(d) = digit(i) {
+            m = m * 10 + d;
+            i += 1;
+            frac += 1;
+            if m >= 1 << 53 {
+                return None;
+            }
+        }
+    }
+    if matches!(b.get(i), Some(b'e' | b'E')) {
+        return None;
+    }
     let v = m as f64 / *POW10.get(frac)?;
-    Some(if neg { -v } else { v })
+    Some((if neg { -v } else { v }, i))
 }
 
 /// Reads one line (without its newline) whose key `role_of` binds to a role carrying
