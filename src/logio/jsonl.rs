@@ -163,9 +163,12 @@ pub fn decode_line_serde(
 
 /// Decodes a chunk of whole lines.
 pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<Item>) {
-    let lines = chunk.bytes.split_inclusive(|&b| b == b'\n');
-    for (line_no, raw) in (chunk.first..).zip(lines) {
-        let mut line = raw;
+    // Lines with their newline, as `split_inclusive` cuts them, found by memchr.
+    let bytes = &chunk.bytes;
+    let (mut start, mut line_no) = (0, chunk.first);
+    while start < bytes.len() {
+        let end = memchr::memchr(b'\n', &bytes[start..]).map_or(bytes.len(), |k| start + k + 1);
+        let mut line = &bytes[start..end];
         while let [rest @ .., b'\n' | b'\r'] = line {
             line = rest;
         }
@@ -175,6 +178,7 @@ pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<
                 Err((role, reason)) => Item::Bad { pos: Position::Line(line_no), role, reason },
             });
         }
+        (start, line_no) = (end, line_no + 1);
     }
 }
 

@@ -121,11 +121,25 @@ impl<'a> Parser<'a> {
         v.is_finite().then_some(v)
     }
 
+    /// An unsigned integer token (`0|[1-9][0-9]*`) that fits u64; serde_json reads any
+    /// other number into a u64 field as an error.
     fn u64(&mut self) -> Option<u64> {
-        match self.number()? {
-            (t, true) if t[0] != b'-' => std::str::from_utf8(t).ok()?.parse().ok(),
-            _ => None,
+        self.peek()?;
+        let (b, mut i) = (self.b, self.at);
+        let digit = |i: usize| b.get(i).filter(|c| c.is_ascii_digit()).map(|c| u64::from(c - b'0'));
+        if digit(i)? == 0 && digit(i + 1).is_some() {
+            return None;
         }
+        let mut v = 0u64;
+        while let Some(d) = digit(i) {
+            v = v.checked_mul(10)?.checked_add(d)?;
+            i += 1;
+        }
+        if matches!(b.get(i), Some(b'.' | b'e' | b'E')) {
+            return None;
+        }
+        self.at = i;
+        Some(v)
     }
 
     /// Consumes a `null` if one is next.
@@ -187,8 +201,8 @@ impl<'a> Parser<'a> {
         }
     }
 
-    fn object(&mut self) -> Option<Object> {
-        let mut o = Object::at(0, 0.0, 0.0);
+    /// Reads an object into `o` (in place: an object is 168 bytes).
+    fn object(&mut self, o: &mut Object) -> Option<()> {
         let seen = self.fields(|p, name| {
             Some(match name {
                 b"id" => {
@@ -234,7 +248,7 @@ impl<'a> Parser<'a> {
                 _ => return None,
             })
         })?;
-        (seen & 7 == 7).then_some(o)
+        (seen & 7 == 7).then_some(())
     }
 
     fn object_set(&mut self) -> Option<ObjectSet> {
@@ -264,7 +278,8 @@ impl<'a> Parser<'a> {
                         p.at += 1;
                     } else {
                         loop {
-                            set.objects.push(p.object()?);
+                            set.objects.push(Object::at(0, 0.0, 0.0));
+                            p.object(set.objects.last_mut()?)?;
                             match p.peek()? {
                                 b',' => p.at += 1,
                                 b']' => break p.at += 1,
