@@ -311,9 +311,15 @@ impl Body {
     }
 
     fn aabb_distance(&self, x: f64, y: f64) -> f64 {
+        self.aabb_distance_2(x, y).sqrt()
+    }
+
+    /// Squared distance from a point to the body's box, 0 inside (computed as rstar's
+    /// `AABB::distance_2` computes it, so both searches see the same bounds).
+    fn aabb_distance_2(&self, x: f64, y: f64) -> f64 {
         let dx = (self.lo[0] - x).max(0.0).max(x - self.hi[0]);
         let dy = (self.lo[1] - y).max(0.0).max(y - self.hi[1]);
-        (dx * dx + dy * dy).sqrt()
+        dx * dx + dy * dy
     }
 }
 
@@ -327,6 +333,9 @@ pub struct Nearest {
 }
 
 type Entry = GeomWithData<Rectangle<[f64; 2]>, usize>;
+
+/// Maps of up to this many bodies are searched without the tree.
+const SMALL_MAP: usize = 16;
 
 /// An R-tree over a set of obstacles (a site map).
 #[derive(Debug, Clone, Default)]
@@ -366,14 +375,42 @@ impl ObstacleIndex {
     /// `radius`. Candidates come in order of their box's distance from the centre; the
     /// search stops once that lower bound (minus the radius) exceeds the best distance.
     pub fn nearest(&self, fp: &Placed, centre: [f64; 2], radius: f64) -> Option<Nearest> {
+        if self.bodies.len() <= SMALL_MAP {
+            // A few bodies: the same candidates in the same order (box distance, ties by
+            // index), without the tree's per-query heap (measured: 8,000 instructions a query
+            // on a five-body map, most of it the heap).
+            let mut order = [(0.0, 0usize); SMALL_MAP];
+            let n = self.bodies.len();
+            for (i, b) in self.bodies.iter().enumerate() {
+                let d2 = b.aabb_distance_2(centre[0], centre[1]);
+                let mut k = i;
+                while k > 0 && order[k - 1].0 > d2 {
+                    order[k] = order[k - 1];
+                    k -= 1;
+                }
+                order[k] = (d2, i);
+            }
+            return self.nearest_among(order[..n].iter().copied(), fp, radius);
+        }
+        let by_tree = self.tree.nearest_neighbor_iter_with_distance_2(&centre).map(|(e, d2)| (d2, e.data));
+        self.nearest_among(by_tree, fp, radius)
+    }
+
+    /// The search over candidates `(squared box distance, body)` in increasing distance.
+    fn nearest_among(
+        &self,
+        candidates: impl Iterator<Item = (f64, usize)>,
+        fp: &Placed,
+        radius: f64,
+    ) -> Option<Nearest> {
         let mut best: Option<Nearest> = None;
-        for (e, d2) in self.tree.nearest_neighbor_iter_with_distance_2(&centre) {
+        for (d2, i) in candidates {
             if let Some(b) = best {
                 if d2.sqrt() - radius > b.distance {
                     break;
                 }
             }
-            let body = &self.bodies[e.data];
+            let body = &self.bodies[i];
             let d = body.distance(fp);
             if best.is_none_or(|b| d < b.distance) {
                 best = Some(Nearest { distance: d, id: body.id });
@@ -413,6 +450,33 @@ pub fn nearer(a: Option<Nearest>, b: Option<Nearest>) -> Option<Nearest> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        /// A small map searched without the tree finds what the tree's search finds: the
+        /// same distance, and the same obstacle unless two are equally near.
+        #[test]
+        fn small_map_search_equals_the_tree_search(
+            bodies in proptest::collection::vec((-30.0..30.0f64, -30.0..30.0f64, 0.1..6.0f64, 0.1..6.0f64, -3.2..3.2f64, any::<bool>()), 1..=SMALL_MAP),
+            pose in (-35.0..35.0f64, -35.0..35.0f64, -3.2..3.2f64),
+        ) {
+            let bodies: Vec<Body> = bodies.iter().enumerate().map(|(i, &(x, y, a, b, yaw, disc))| {
+                let id = ObstacleId::Map(i as u64);
+                if disc { Body::disc(id, [x, y], a / 2.0) } else { Body::rect(id, x, y, yaw, a, b) }
+            }).collect();
+            let index = ObstacleIndex::new(bodies);
+            let fp = Footprint { length: 4.0, width: 2.0, origin_to_rear: 1.0 };
+            let placed = fp.place(pose.0, pose.1, pose.2);
+            let (centre, radius) = ([pose.0, pose.1], 3.5);
+            let small = index.nearest(&placed, centre, radius).unwrap();
+            let tree = index
+                .nearest_among(index.tree.nearest_neighbor_iter_with_distance_2(&centre).map(|(e, d2)| (d2, e.data)), &placed, radius)
+                .unwrap();
+            prop_assert_eq!(small.distance.to_bits(), tree.distance.to_bits());
+            let tied = index.bodies().iter().filter(|b| b.distance(&placed) == small.distance).count() > 1;
+            prop_assert!(tied || small.id == tree.id);
+        }
+    }
 
     fn fp() -> Footprint {
         Footprint { length: 4.0, width: 2.0, origin_to_rear: 1.0 }
