@@ -2,6 +2,7 @@
 //!
 //! The crate is split into a pure core and thin edges:
 //! - [`msg`]: the messages of the interchange contract and their validation (no I/O);
+//! - [`wire`]: direct readers of both log forms for object sets and poses (no I/O);
 //! - [`config`]: two-stage configuration (no I/O; the caller passes file text);
 //! - [`core`]: time alignment, assignment and the evaluation engine (no I/O, no clock);
 //! - [`gate`]: baseline comparison and JUnit XML (pure);
@@ -21,6 +22,15 @@
 //! - [`html`]: self-contained HTML reports with SVG plots (pure);
 //! - [`cli`]: the command line (edge).
 #![deny(missing_docs)]
+
+/// `eprintln!` that survives a closed stderr: a message that cannot be written has nowhere
+/// else to go and is dropped, where `eprintln!` would panic.
+macro_rules! errln {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stderr().lock(), $($arg)*);
+    }};
+}
 
 pub mod campaign;
 pub mod cli;

@@ -291,3 +291,21 @@ fn a_reader_that_quits_early_does_not_panic_the_command() {
     let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
     assert_eq!(r["steps"]["tracking"]["evaluated"], 600, "{r}");
 }
+
+#[test]
+fn a_closed_stderr_does_not_panic_the_command() {
+    // `plumbline replay MISSING 2>&-`-like: stderr is a pipe whose reader is gone. The
+    // error message cannot be written; the exit code must still say the input could not be
+    // read (2), not a panic (101).
+    use std::process::Stdio;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_plumbline"))
+        .args(["replay", "no-such-log.jsonl"])
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("binary runs");
+    drop(child.stderr.take());
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+}

@@ -205,7 +205,7 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
         match r {
             Ok(rep) => runs.push(rep),
             Err(e) => {
-                eprintln!("plumbline campaign: {}: {e}", log.display());
+                errln!("plumbline campaign: {}: {e}", log.display());
                 unreadable.push(log.display().to_string());
             }
         }

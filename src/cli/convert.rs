@@ -19,7 +19,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     let mut w = match LogWriter::create(cfg, &a.output) {
         Ok(w) => w,
         Err(e) => {
-            eprintln!("plumbline convert: {}: {e}", a.output.display());
+            errln!("plumbline convert: {}: {e}", a.output.display());
             return super::EXIT_INPUT;
         }
     };
@@ -36,28 +36,23 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         }
         Item::Bad { pos, reason, .. } => {
             bad += 1;
-            eprintln!("plumbline convert: {}: {pos}: skipped: {reason}", a.input.display());
+            errln!("plumbline convert: {}: {pos}: skipped: {reason}", a.input.display());
         }
     });
     let outcome = match read {
         Ok(o) => o,
         Err(e) => {
-            eprintln!("plumbline convert: {e}");
+            errln!("plumbline convert: {e}");
             return super::EXIT_INPUT;
         }
     };
     if let Some(e) = err.or_else(|| w.finish().err()) {
-        eprintln!("plumbline convert: {}: {e}", a.output.display());
+        errln!("plumbline convert: {}: {e}", a.output.display());
         return super::EXIT_INPUT;
     }
     if let Some(t) = &outcome.tail {
-        eprintln!(
-            "plumbline convert: {}: damaged tail at byte {}: {}",
-            a.input.display(),
-            t.offset,
-            t.reason
-        );
+        errln!("plumbline convert: {}: damaged tail at byte {}: {}", a.input.display(), t.offset, t.reason);
     }
-    eprintln!("plumbline convert: {n} records written to {}, {bad} skipped", a.output.display());
+    errln!("plumbline convert: {n} records written to {}, {bad} skipped", a.output.display());
     super::EXIT_OK
 }

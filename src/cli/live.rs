@@ -145,7 +145,7 @@ pub fn load_cmd(cfg: &Config, a: &LoadArgs) -> u8 {
     match r {
         Ok(n) => {
             let el = t0.elapsed().as_secs_f64();
-            eprintln!("plumbline load: {n} messages in {el:.2} s ({:.0}/s)", n as f64 / el);
+            errln!("plumbline load: {n} messages in {el:.2} s ({:.0}/s)", n as f64 / el);
             super::EXIT_OK
         }
         Err(e) => fail("load", e),
@@ -188,7 +188,7 @@ pub fn watch_cmd(cfg: &Config, a: &WatchArgs) -> u8 {
         Ok(x) => x,
         Err(e) => return fail("watch", e),
     };
-    eprintln!("plumbline watch: dashboard at http://{0}/  metrics at http://{0}/metrics", server.addr);
+    errln!("plumbline watch: dashboard at http://{0}/  metrics at http://{0}/metrics", server.addr);
     let session = match zenoh_io::open(&cfg) {
         Ok(s) => s,
         Err(e) => return fail("watch", e),
@@ -259,7 +259,7 @@ pub fn publish_cmd(cfg: &Config, a: &PublishArgs) -> u8 {
     let _ = zenoh::Wait::wait(session.close());
     match r {
         Ok(n) => {
-            eprintln!("plumbline publish: {n} records published");
+            errln!("plumbline publish: {n} records published");
             super::EXIT_OK
         }
         Err(e) => fail("publish", e),

@@ -88,7 +88,7 @@ pub fn run(cli: Cli) -> ExitCode {
     let cfg = match load_config(cli.config.as_ref(), &cli.sets) {
         Ok(c) => c,
         Err(e) => {
-            eprintln!("plumbline: invalid config: {e}");
+            errln!("plumbline: invalid config: {e}");
             return ExitCode::from(EXIT_INPUT);
         }
     };
@@ -134,7 +134,7 @@ pub(crate) fn write_out(args: std::fmt::Arguments<'_>) {
 
 /// Prints a command's error and returns the input/config exit code.
 pub(crate) fn fail(cmd: &str, e: impl std::fmt::Display) -> u8 {
-    eprintln!("plumbline {cmd}: {e}");
+    errln!("plumbline {cmd}: {e}");
     EXIT_INPUT
 }
 

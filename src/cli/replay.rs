@@ -51,7 +51,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         Some(p) => match File::create(p) {
             Ok(f) => Some(BufWriter::with_capacity(1 << 20, f)),
             Err(e) => {
-                eprintln!("plumbline replay: {}: {e}", p.display());
+                errln!("plumbline replay: {}: {e}", p.display());
                 return super::EXIT_INPUT;
             }
         },
@@ -61,7 +61,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         Some(p) => match Journal::open(p) {
             Ok(j) => Some(j),
             Err(e) => {
-                eprintln!("plumbline replay: {}: {e}", p.display());
+                errln!("plumbline replay: {}: {e}", p.display());
                 return super::EXIT_INPUT;
             }
         },
@@ -87,20 +87,20 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         Ok(o) => o,
         Err(e) => {
             bar.finish_and_clear();
-            eprintln!("plumbline replay: cannot read input: {e}");
+            errln!("plumbline replay: cannot read input: {e}");
             return super::EXIT_INPUT;
         }
     };
     bar.finish_and_clear();
     if let Some(p) = &a.report {
         if let Err(e) = std::fs::write(p, out.report.to_json()) {
-            eprintln!("plumbline replay: {}: {e}", p.display());
+            errln!("plumbline replay: {}: {e}", p.display());
             return super::EXIT_INPUT;
         }
     }
     if let Some(p) = &a.html {
         if let Err(e) = std::fs::write(p, crate::html::run_report(&out.report, &plots)) {
-            eprintln!("plumbline replay: {}: {e}", p.display());
+            errln!("plumbline replay: {}: {e}", p.display());
             return super::EXIT_INPUT;
         }
     }

@@ -41,7 +41,7 @@ pub struct Args {
 pub fn run(cfg: &Config, a: &Args) -> u8 {
     let ok = |x: f64| x.is_finite() && x > 0.0;
     if !(ok(a.duration) && ok(a.rate) && a.rate <= 1000.0 && a.noise.is_finite() && a.noise >= 0.0) {
-        eprintln!("plumbline scenario: --duration and --rate must be > 0 (rate <= 1000), --noise >= 0");
+        errln!("plumbline scenario: --duration and --rate must be > 0 (rate <= 1000), --noise >= 0");
         return super::EXIT_INPUT;
     }
     let p = ScenarioParams {
@@ -59,21 +59,21 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     let mut w = match crate::logio::LogWriter::create(cfg, &a.out) {
         Ok(w) => w,
         Err(e) => {
-            eprintln!("plumbline scenario: {}: {e}", a.out.display());
+            errln!("plumbline scenario: {}: {e}", a.out.display());
             return super::EXIT_INPUT;
         }
     };
     for r in &records {
         if let Err(e) = w.write(r) {
-            eprintln!("plumbline scenario: {}: {e}", a.out.display());
+            errln!("plumbline scenario: {}: {e}", a.out.display());
             return super::EXIT_INPUT;
         }
     }
     if let Err(e) = w.finish() {
-        eprintln!("plumbline scenario: {}: {e}", a.out.display());
+        errln!("plumbline scenario: {}: {e}", a.out.display());
         return super::EXIT_INPUT;
     }
-    eprintln!("plumbline scenario: {} records written to {}", records.len(), a.out.display());
+    errln!("plumbline scenario: {} records written to {}", records.len(), a.out.display());
     super::EXIT_OK
 }
 
@@ -82,11 +82,11 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
 fn family(cfg: &Config, a: &Args, base: &ScenarioParams, n: usize) -> u8 {
     use rand::{Rng, SeedableRng};
     if a.format != "plb" && a.format != "jsonl" {
-        eprintln!("plumbline scenario: --format: plb or jsonl");
+        errln!("plumbline scenario: --format: plb or jsonl");
         return super::EXIT_INPUT;
     }
     if let Err(e) = std::fs::create_dir_all(&a.out) {
-        eprintln!("plumbline scenario: {}: {e}", a.out.display());
+        errln!("plumbline scenario: {}: {e}", a.out.display());
         return super::EXIT_INPUT;
     }
     let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(a.seed ^ 0x5eed_f00d);
@@ -102,21 +102,21 @@ fn family(cfg: &Config, a: &Args, base: &ScenarioParams, n: usize) -> u8 {
         let mut w = match crate::logio::LogWriter::create(cfg, &path) {
             Ok(w) => w,
             Err(e) => {
-                eprintln!("plumbline scenario: {}: {e}", path.display());
+                errln!("plumbline scenario: {}: {e}", path.display());
                 return super::EXIT_INPUT;
             }
         };
         for r in generate(cfg, &p) {
             if let Err(e) = w.write(&r) {
-                eprintln!("plumbline scenario: {}: {e}", path.display());
+                errln!("plumbline scenario: {}: {e}", path.display());
                 return super::EXIT_INPUT;
             }
         }
         if let Err(e) = w.finish() {
-            eprintln!("plumbline scenario: {}: {e}", path.display());
+            errln!("plumbline scenario: {}: {e}", path.display());
             return super::EXIT_INPUT;
         }
     }
-    eprintln!("plumbline scenario: {n} runs written to {}", a.out.display());
+    errln!("plumbline scenario: {n} runs written to {}", a.out.display());
     super::EXIT_OK
 }

@@ -178,9 +178,7 @@ fn load_token(limits: &HttpParams) -> Result<Option<Token>, String> {
     let (token, warning) = Token::load(std::path::Path::new(f))?;
     if let Some(TokenWarning::ReadableByOthers(mode)) = warning {
         tracing::warn!(file = %f, mode = format!("{mode:o}"), "token file is readable by others");
-        eprintln!(
-            "plumbline: warning: http.token_file {f} is readable by others (mode {mode:o}); chmod 600 it"
-        );
+        errln!("plumbline: warning: http.token_file {f} is readable by others (mode {mode:o}); chmod 600 it");
     }
     Ok(Some(token))
 }
@@ -214,7 +212,7 @@ pub fn start(
             {
                 Ok(rt) => rt,
                 Err(e) => {
-                    eprintln!("plumbline: HTTP runtime: {e}");
+                    errln!("plumbline: HTTP runtime: {e}");
                     return;
                 }
             };

@@ -179,7 +179,7 @@ pub fn run(
                                 if let Err(e) = w.write(&rec) {
                                     if !record_failed {
                                         tracing::error!(error = %e, "recorder write failed; monitoring goes on");
-                                        eprintln!("plumbline: recorder: {e}; monitoring goes on");
+                                        errln!("plumbline: recorder: {e}; monitoring goes on");
                                         record_failed = true;
                                     }
                                 }
@@ -269,7 +269,7 @@ pub fn run(
             if let Some(w) = recorder.as_mut() {
                 if let Err(e) = w.flush() {
                     if !record_failed {
-                        eprintln!("plumbline: recorder: {e}; monitoring goes on");
+                        errln!("plumbline: recorder: {e}; monitoring goes on");
                         record_failed = true;
                     }
                 }
@@ -302,7 +302,7 @@ pub fn run(
         let (p50, p99) =
             (ingest.value_at_quantile(0.5) as f64 / 1e3, ingest.value_at_quantile(0.99) as f64 / 1e3);
         tracing::info!(messages = ingest.len(), p50_us = p50, p99_us = p99, "receipt to gauge update");
-        eprintln!(
+        errln!(
             "plumbline: receipt to gauge update over {} messages: p50 {p50:.1} us, p99 {p99:.1} us",
             ingest.len()
         );

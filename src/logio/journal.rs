@@ -28,7 +28,7 @@ impl Journal {
         if let Err(err) = self.file.write_all(line.as_bytes()).and_then(|_| self.file.flush()) {
             if !self.failed {
                 tracing::error!(path = %self.path, error = %err, "alert journal write failed; alerts go on");
-                eprintln!("plumbline: alert journal {}: {err}", self.path);
+                errln!("plumbline: alert journal {}: {err}", self.path);
                 self.failed = true;
             }
         }
