@@ -272,8 +272,9 @@ impl<'a> Parser<'a> {
                 }
                 b"objects" => {
                     p.eat(b'[')?;
-                    // At least 20 bytes an object (`{"id":0,"x":0,"y":0}`, comma aside).
-                    set.objects.reserve((p.b.len() - p.at) / 20);
+                    // At least 20 bytes an object (`{"id":0,"x":0,"y":0}`, comma aside), and no
+                    // more than the cautious preallocation.
+                    set.objects.reserve(((p.b.len() - p.at) / 20).min(super::PREALLOCATE));
                     if p.peek()? == b']' {
                         p.at += 1;
                     } else {

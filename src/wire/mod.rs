@@ -23,6 +23,9 @@ use crate::msg::{Frame, Msg, Object, ObjectSet, Pose};
 /// Smallest encoding of an object: a one-byte id, x, y and seven absent-option tags.
 const MIN_OBJECT_BYTES: usize = 1 + 16 + 7;
 
+/// Most objects reserved ahead of reading them (about 1 MiB, as serde's cautious size hint).
+pub(crate) const PREALLOCATE: usize = (1 << 20) / std::mem::size_of::<Object>();
+
 struct Reader<'a> {
     b: &'a [u8],
     at: usize,
@@ -132,8 +135,10 @@ impl<'a> Reader<'a> {
             None
         };
         let n = self.len()?;
-        // A damaged count must not reserve more than the bytes left could hold.
-        let mut objects = Vec::with_capacity(n.min((self.b.len() - self.at) / MIN_OBJECT_BYTES));
+        // A damaged count must not reserve more than the bytes left could hold, nor more
+        // than serde's cautious preallocation (1 MiB) before the objects are there.
+        let mut objects =
+            Vec::with_capacity(n.min((self.b.len() - self.at) / MIN_OBJECT_BYTES).min(PREALLOCATE));
         for _ in 0..n {
             objects.push(self.object()?);
         }
