@@ -217,15 +217,9 @@ impl Point {
     }
 }
 
-/// Appends a set's objects as points, moved to the world frame by `ego` when given.
-pub fn points_of(set: &ObjectSet, ego: Option<&Pose>, out: &mut Vec<Point>) {
-    let start = out.len();
+/// Appends a set's objects as points, in the set's own frame.
+pub fn points_of(set: &ObjectSet, out: &mut Vec<Point>) {
     out.extend(set.objects.iter().map(Point::of));
-    if let Some(ego) = ego {
-        for p in &mut out[start..] {
-            to_world(p, ego);
-        }
-    }
 }
 
 /// The ids of `points` with their positions, sorted by id: what [`interpolate_points`]

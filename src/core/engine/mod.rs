@@ -156,7 +156,7 @@ impl PointSet {
     /// Converts an object set.
     pub fn of(set: &ObjectSet) -> PointSet {
         let mut points = Vec::with_capacity(set.objects.len());
-        align::points_of(set, None, &mut points);
+        align::points_of(set, &mut points);
         let mut by_id = Vec::with_capacity(points.len());
         align::id_index(&points, &mut by_id);
         PointSet { stamp: set.stamp, ego_frame: align::is_ego_frame(set), points, by_id }
@@ -472,18 +472,6 @@ impl Engine {
             .map_err(|m| miss_reason(m, "frame"))
     }
 
-    fn world_points(&self, set: &PointSet, at: f64, out: &mut Vec<Point>) -> Result<(), &'static str> {
-        let ego = if set.ego_frame { Some(self.frame_pose(at)?) } else { None };
-        let start = out.len();
-        out.extend_from_slice(&set.points);
-        if let Some(ego) = ego {
-            for p in &mut out[start..] {
-                align::to_world(p, &ego);
-            }
-        }
-        Ok(())
-    }
-
     fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
         let (mut xs, mut wa, mut wb) =
             (std::mem::take(&mut self.xs), std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
@@ -544,10 +532,11 @@ impl Engine {
             Ok(h) => h,
             Err(reason) => return self.counters.tracking.skip(reason),
         };
-        let mut ys = std::mem::take(&mut self.ys);
+        // The step's time is the set's stamp, so its frame pose is the one `ref_points` uses.
+        let (mut ys, mut scratch) = (std::mem::take(&mut self.ys), std::mem::take(&mut self.wa));
         ys.clear();
-        let frame = self.world_points(est, t, &mut ys);
-        self.ys = ys;
+        let frame = self.ref_points(est, &mut scratch).map(|p| ys.extend_from_slice(p));
+        (self.ys, self.wa) = (ys, scratch);
         if let Err(reason) = frame {
             return self.counters.tracking.skip(reason);
         }
