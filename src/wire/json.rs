@@ -175,13 +175,21 @@ impl<'a> Parser<'a> {
 
     /// An object's fields: `each` reads the value of every name (and says which of the
     /// known names it was); a name unknown or seen twice gives up.
-    fn fields(&mut self, mut each: impl FnMut(&mut Self, &'a [u8]) -> Option<u32>) -> Option<u32> {
+    fn fields(&mut self, each: impl FnMut(&mut Self, &'a [u8]) -> Option<u32>) -> Option<u32> {
         self.eat(b'{')?;
-        let mut seen = 0u32;
         if self.peek()? == b'}' {
             self.at += 1;
-            return Some(seen);
+            return Some(0);
         }
+        self.more_fields(0, each)
+    }
+
+    /// The rest of an object's fields from the next name on, `seen` those read already.
+    fn more_fields(
+        &mut self,
+        mut seen: u32,
+        mut each: impl FnMut(&mut Self, &'a [u8]) -> Option<u32>,
+    ) -> Option<u32> {
         loop {
             let name = self.raw_str()?;
             self.eat(b':')?;
@@ -201,9 +209,37 @@ impl<'a> Parser<'a> {
         }
     }
 
+    /// Consumes `lit` if the input goes on with it.
+    #[inline]
+    fn lit(&mut self, lit: &[u8]) -> Option<()> {
+        self.b[self.at..].starts_with(lit).then(|| self.at += lit.len())
+    }
+
+    /// The head that writers of this format put first, `{"id":N,"x":F,"y":F` without
+    /// whitespace, read without the field loop's name matching; on any difference nothing
+    /// is consumed and the field loop reads the object from its start.
+    fn compact_head(&mut self, o: &mut Object) -> Option<()> {
+        self.peek()?;
+        let start = self.at;
+        let head = (|| {
+            self.lit(b"{\"id\":")?;
+            o.id = self.u64()?;
+            self.lit(b",\"x\":")?;
+            o.x = self.f64()?;
+            self.lit(b",\"y\":")?;
+            o.y = self.f64()?;
+            Some(())
+        })();
+        if head.is_none() {
+            self.at = start;
+        }
+        head
+    }
+
     /// Reads an object into `o` (in place: an object is 168 bytes).
     fn object(&mut self, o: &mut Object) -> Option<()> {
-        let seen = self.fields(|p, name| {
+        let head = self.compact_head(o);
+        let each = |p: &mut Self, name: &'a [u8]| {
             Some(match name {
                 b"id" => {
                     o.id = p.u64()?;
@@ -247,7 +283,22 @@ impl<'a> Parser<'a> {
                 }
                 _ => return None,
             })
-        })?;
+        };
+        let seen = match head {
+            None => self.fields(each)?,
+            // id, x and y read: the object ends, or its other fields follow.
+            Some(()) => match self.peek()? {
+                b'}' => {
+                    self.at += 1;
+                    7
+                }
+                b',' => {
+                    self.at += 1;
+                    self.more_fields(7, each)?
+                }
+                _ => return None,
+            },
+        };
         (seen & 7 == 7).then_some(())
     }
 
@@ -338,44 +389,45 @@ const POW10: [f64; 23] = [
 ];
 
 /// A plain decimal at `b[i..]` (`-?(0|[1-9][0-9]*)(\.[0-9]+)?`, JSON's grammar without an
-/// exponent) whose digits, read as one integer, stay below 2^53 and whose fraction has at
-/// most 22 digits: that integer and the power of ten are exact doubles, so one IEEE division
+/// exponent) whose digits (at most 19), read as one integer, stay below 2^53: that integer
+/// and the power of ten (at most 10^19) are exact doubles, so one IEEE division
 /// gives the correctly rounded value (Clinger, "How to read floating point numbers
 /// accurately", 1990: the fast path), the same double `f64::from_str` gives. Returns the
 /// value and where it ends; anything else (`None`) goes the general way.
-fn exact_decimal(b: &[u8], mut i: usize) -> Option<(f64, usize)> {
-    let neg = b.get(i) == Some(&b'-');
-    i += usize::from(neg);
-    let digit = |i: usize| b.get(i).filter(|c| c.is_ascii_digit()).map(|c| u64::from(c - b'0'));
+fn exact_decimal(b: &[u8], i: usize) -> Option<(f64, usize)> {
+    let b = b.get(i..)?;
+    let neg = b.first() == Some(&b'-');
+    // Digits read into `m` as one integer; at most 19 of them cannot overflow a u64, and
+    // whether `m` stays below 2^53 is checked once at the end.
+    let mut m = 0u64;
+    let mut k = usize::from(neg);
+    let digits = |k: &mut usize, m: &mut u64| {
+        let from = *k;
+        while let Some(d) = b.get(*k).map(|c| c.wrapping_sub(b'0')).filter(|&d| d <= 9) {
+            *m = m.wrapping_mul(10).wrapping_add(u64::from(d));
+            *k += 1;
+        }
+        *k - from
+    };
+    let int_from = k;
+    let int_digits = digits(&mut k, &mut m);
     // A leading zero stands alone.
-    if digit(i)? == 0 && digit(i + 1).is_some() {
+    if int_digits == 0 || (int_digits > 1 && b[int_from] == b'0') {
         return None;
     }
-    let (mut m, mut frac) = (0u64, 0usize);
-    while let Some(d) = digit(i) {
-        m = m * 10 + d;
-        i += 1;
-        if m >= 1 << 53 {
+    let mut frac = 0;
+    if b.get(k) == Some(&b'.') {
+        k += 1;
+        frac = digits(&mut k, &mut m);
+        if frac == 0 {
             return None;
         }
     }
-    if b.get(i) == Some(&b'.') {
-        i += 1;
-        digit(i)?;
-        while let Some(d) = digit(i) {
-            m = m * 10 + d;
-            i += 1;
-            frac += 1;
-            if m >= 1 << 53 {
-                return None;
-            }
-        }
-    }
-    if matches!(b.get(i), Some(b'e' | b'E')) {
+    if int_digits + frac > 19 || m >= 1 << 53 || matches!(b.get(k), Some(b'e' | b'E')) {
         return None;
     }
     let v = m as f64 / *POW10.get(frac)?;
-    Some((if neg { -v } else { v }, i))
+    Some((if neg { -v } else { v }, i + k))
 }
 
 /// Reads one line (without its newline) whose key `role_of` binds to a role carrying
