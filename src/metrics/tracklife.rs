@@ -67,6 +67,8 @@ pub struct TrackLife {
     /// the order deletion delays are emitted in.
     prev_ests: HashSet<u64>,
     cur_ests: HashSet<u64>,
+    /// Per estimate of this step, the reference it is assigned to (scratch).
+    owner_of: Vec<Option<u64>>,
     forget_after: f64,
     last_t: f64,
     steps: u64,
@@ -82,6 +84,7 @@ impl TrackLife {
             ests: HashMap::default(),
             prev_ests: HashSet::default(),
             cur_ests: HashSet::default(),
+            owner_of: Vec::new(),
             forget_after,
             last_t: f64::NEG_INFINITY,
             steps: 0,
@@ -90,13 +93,14 @@ impl TrackLife {
     }
 
     /// One step at time `t`: the reference ids present (in the region), the estimate ids
-    /// present, and the assigned `(reference id, estimate id)` pairs.
+    /// present (ids unique within each list, as validation makes them), and the assigned
+    /// pairs as `(index into refs_present, index into ests_present)`, in reference order.
     pub fn step(
         &mut self,
         t: f64,
         refs_present: &[u64],
         ests_present: &[u64],
-        pairs: &[(u64, u64)],
+        pairs: &[(usize, usize)],
         out: &mut TrackLifeStep,
     ) {
         out.switches = 0;
@@ -108,7 +112,12 @@ impl TrackLife {
         self.cur_ests.clear();
         self.cur_ests.extend(ests_present.iter().copied());
 
-        for &r in refs_present {
+        // Each reference's state is looked up once: the pairs come in reference order, so
+        // whether it is assigned at this step is the next pair's reference index.
+        self.owner_of.clear();
+        self.owner_of.resize(ests_present.len(), None);
+        let mut next_pair = pairs.iter().peekable();
+        for (i, &r) in refs_present.iter().enumerate() {
             let st = self.refs.entry(r).or_insert(RefState {
                 first_in_region: t,
                 established: false,
@@ -120,43 +129,40 @@ impl TrackLife {
             });
             st.last_present = t;
             st.present_step = step;
-        }
-        for &(r, e) in pairs {
-            // Assigned references are present, so their state exists (inserted above).
-            if let Some(st) = self.refs.get_mut(&r) {
-                st.assigned_step = step;
-                if !st.established {
-                    st.established = true;
-                    out.establishment.push(t - st.first_in_region);
-                }
-                if st.last_est.is_some_and(|prev| prev != e) {
-                    out.switches += 1;
-                }
-                if st.gap_while_present {
-                    out.fragmentations += 1;
-                    st.gap_while_present = false;
-                }
-                st.last_est = Some(e);
-            }
-            let es = self.ests.entry(e).or_insert_with(|| EstState::new(t));
-            es.owner = Some(r);
-            es.owner_left_at = None;
-        }
-        for &r in refs_present {
-            if let Some(st) = self.refs.get_mut(&r) {
-                if st.assigned_step != step && st.last_est.is_some() {
+            let Some(&(_, j)) = next_pair.next_if(|&&(pi, _)| pi == i) else {
+                if st.last_est.is_some() {
                     st.gap_while_present = true;
                 }
+                continue;
+            };
+            let e = ests_present[j];
+            st.assigned_step = step;
+            if !st.established {
+                st.established = true;
+                out.establishment.push(t - st.first_in_region);
             }
+            if st.last_est.is_some_and(|prev| prev != e) {
+                out.switches += 1;
+            }
+            if st.gap_while_present {
+                out.fragmentations += 1;
+                st.gap_while_present = false;
+            }
+            st.last_est = Some(e);
+            self.owner_of[j] = Some(r);
         }
         let refs = &self.refs;
         // The state of a reference present at this step.
         let present = |id: u64| refs.get(&id).filter(|s| s.present_step == step);
-        for &e in ests_present {
+        for (j, &e) in ests_present.iter().enumerate() {
             let es = self.ests.entry(e).or_insert_with(|| EstState::new(t));
             es.last_seen = t;
             es.seen_step = step;
-            if let Some(owner) = es.owner {
+            if let Some(r) = self.owner_of[j] {
+                // Assigned now: its owner is present.
+                es.owner = Some(r);
+                es.owner_left_at = None;
+            } else if let Some(owner) = es.owner {
                 if present(owner).is_some() {
                     es.owner_left_at = None;
                 } else if es.owner_left_at.is_none() {
@@ -229,7 +235,11 @@ mod tests {
         let mut outs = Vec::new();
         for (t, r, e, p) in steps {
             let mut o = TrackLifeStep::default();
-            tl.step(*t, r, e, p, &mut o);
+            // Pairs by id, as the cases read, to indices in reference order.
+            let pos = |ids: &[u64], id: u64| ids.iter().position(|&x| x == id).unwrap();
+            let mut idx: Vec<(usize, usize)> = p.iter().map(|&(a, b)| (pos(r, a), pos(e, b))).collect();
+            idx.sort_unstable();
+            tl.step(*t, r, e, &idx, &mut o);
             outs.push(o);
         }
         let fin = tl.finish();

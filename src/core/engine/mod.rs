@@ -242,7 +242,7 @@ pub struct Engine {
     wb: Vec<Point>,
     xp: Vec<[f64; 2]>,
     yp: Vec<[f64; 2]>,
-    ids: (Vec<u64>, Vec<u64>, Vec<(u64, u64)>),
+    ids: (Vec<u64>, Vec<u64>, Vec<(usize, usize)>),
     clear: clearance::ClearState,
 }
 
@@ -595,7 +595,7 @@ impl Engine {
         ests.clear();
         ests.extend(self.ys.iter().map(|o| o.id));
         pairs.clear();
-        pairs.extend(m.pairs.iter().map(|&(i, j, _)| (self.xs[i].id, self.ys[j].id)));
+        pairs.extend(m.pairs.iter().map(|&(i, j, _)| (i, j)));
         self.tracklife.step(t, refs, ests, pairs, &mut self.tl_step);
         push(Metric::TrackSwitches, self.tl_step.switches as f64);
         push(Metric::Fragmentations, self.tl_step.fragmentations as f64);
