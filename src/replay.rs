@@ -12,7 +12,7 @@ use std::path::Path;
 use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
 
 use crate::config::Config;
-use crate::core::engine::{Input, Prepared, Sample};
+use crate::core::engine::{splice_plan_jobs, Input, PlanJob, Prepared, Sample};
 use crate::logio::chunks::{Frame, LineFramer, RecordFramer};
 use crate::logio::{jsonl, plb, Form, Item, LogError, Position, Tail};
 use crate::monitor::Monitor;
@@ -147,6 +147,9 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         monitor.push(map, &mut Vec::new(), &mut first_events);
     }
     let (mut engine, sink) = monitor.split();
+    // Plans' path quality (the costliest steps of a log with plans) runs on the sink
+    // thread, beside the engine; the sink puts its samples where the engine would have.
+    engine.defer_plan_jobs(true);
     let mut first_bad = Vec::new();
     let mut samples: Vec<Sample> = Vec::with_capacity(4096);
     let mut tail = None;
@@ -199,7 +202,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             source.finish_digest()
         });
         // The sink: statistics, windows, rules, then the series and the hook, batch by batch.
-        let (to_sink, from_engine) = sync_channel::<Vec<Sample>>(SINK_FLIGHT);
+        let (to_sink, from_engine) = sync_channel::<(Vec<Sample>, Vec<(usize, PlanJob)>)>(SINK_FLIGHT);
         let (recycle, recycled) = sync_channel::<Vec<Sample>>(SINK_FLIGHT + 1);
         let sink_thread = spawn_named(s, "plumbline-sink", move || {
             let (mut sink, mut series, mut on_samples) = (sink, series, on_samples);
@@ -209,7 +212,13 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             if let Some(w) = series.as_mut() {
                 write_err = w.write_all(SERIES_HEADER.as_bytes()).err();
             }
-            for mut batch in from_engine.iter() {
+            let mut spliced = Vec::new();
+            for (mut batch, jobs) in from_engine.iter() {
+                if !jobs.is_empty() {
+                    spliced.clear();
+                    splice_plan_jobs(&batch, &jobs, &mut spliced);
+                    std::mem::swap(&mut batch, &mut spliced);
+                }
                 sink.consume(&batch, &mut events);
                 if write_err.is_none() {
                     let out = (&mut on_samples, &mut series, &mut text, &mut ryu_buf);
@@ -230,10 +239,12 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         });
 
         let mut k = 0;
-        let send = |samples: &mut Vec<Sample>| {
+        let send = |samples: &mut Vec<Sample>, engine: &mut crate::core::Engine| {
             let next = recycled.try_recv().unwrap_or_else(|_| Vec::with_capacity(4096));
+            let mut jobs = Vec::new();
+            engine.take_plan_jobs(&mut jobs);
             // The sink stops only when this side hangs up.
-            let _ = to_sink.send(std::mem::replace(samples, next));
+            let _ = to_sink.send((std::mem::replace(samples, next), jobs));
         };
         while let Ok(d) = from_workers[k % n].recv() {
             k += 1;
@@ -252,7 +263,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
                 }
             }
             progress(d.end);
-            send(&mut samples);
+            send(&mut samples, &mut engine);
             if d.tail.is_some() {
                 tail = d.tail;
                 break;
@@ -261,12 +272,13 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         // Dropping the receivers stops the workers and the framer if we left early.
         drop(from_workers);
         engine.finish(&mut samples);
-        send(&mut samples);
+        send(&mut samples, &mut engine);
         drop(to_sink);
         let sunk = sink_thread.join().expect("the sink thread does not panic");
         (framer.join().unwrap_or_default(), sunk)
     });
     let (sink, write_err) = sunk;
+    engine.defer_plan_jobs(false);
     let monitor = Monitor::join(engine, sink);
     if let Some(e) = write_err {
         return Err(ReplayError::Series(e));

@@ -214,3 +214,33 @@ proptest::proptest! {
         proptest::prop_assert!((got - want).abs() < 1e-9, "two-point obstacle {got} vs geo {want}");
     }
 }
+
+/// Replay keeps plans' path quality as plan jobs and runs them on its sink thread; one
+/// monitor fed the same records runs them inside the engine, as live does. The samples
+/// are the same, in the same order, bit for bit.
+#[test]
+fn plan_jobs_run_beside_the_engine_give_the_inline_samples() {
+    use plumbline::logio::{read_all, Item};
+    use plumbline::monitor::Monitor;
+    let cfg = Config::defaults();
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl");
+    let (_, replayed) = shipped_samples();
+    let mut m = Monitor::new(&cfg);
+    let (mut inline, mut events) = (Vec::new(), Vec::new());
+    read_all(&cfg, &path, &mut |item, _| {
+        let input = match item {
+            Item::Record { role, rec } => Input::Message { role, recv: rec.recv, msg: rec.msg },
+            Item::Bad { role, reason, .. } => Input::Rejected { role, reason: reason.code() },
+        };
+        m.push(input, &mut inline, &mut events);
+    })
+    .unwrap();
+    m.finish(&mut inline, &mut events);
+    let plans = inline.iter().filter(|s| s.metric == Metric::PathClearance).count();
+    assert!(plans >= 250, "{plans} plans with a path clearance");
+    let key = |s: &Sample| (s.t.to_bits(), s.metric, s.role, s.value.to_bits());
+    assert_eq!(inline.len(), replayed.len());
+    for (k, (a, b)) in inline.iter().zip(&replayed).enumerate() {
+        assert_eq!(key(a), key(b), "sample {k}");
+    }
+}

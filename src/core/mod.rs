@@ -11,7 +11,7 @@ pub mod engine;
 use serde::Serialize;
 use thiserror::Error;
 
-pub use engine::{Collision, Engine, Input, Sample};
+pub use engine::{splice_plan_jobs, Collision, Engine, Input, PlanJob, Sample};
 
 /// A bad parameter, with the config key it came from.
 #[derive(Debug, Clone, Error, PartialEq)]

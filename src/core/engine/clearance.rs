@@ -54,14 +54,102 @@ pub struct Collision {
 
 #[derive(Debug)]
 pub(super) struct Plan {
-    dense: Vec<[f64; 2]>,
+    dense: Arc<Vec<[f64; 2]>>,
+}
+
+/// The costly part of a plan's path quality (shape, swept clearance, the shortest-path
+/// search): a pure function of what the engine took from its state when the plan arrived,
+/// so it gives the same samples on any thread. Replay runs it on its sink thread, beside
+/// the engine ([`Engine::defer_plan_jobs`]); otherwise the engine runs it at once.
+#[derive(Debug)]
+pub struct PlanJob {
+    t: f64,
+    cp: ClearanceParams,
+    map: Option<Arc<ObstacleIndex>>,
+    bodies: Vec<Point>,
+    work: PlanWork,
+}
+
+#[derive(Debug)]
+enum PlanWork {
+    /// No path: was there one from `start` to `goal`?
+    Missing { start: [f64; 2], goal: [f64; 2] },
+    /// A path (densified as `dense`); `excess`: its length over the shortest is due.
+    Quality { pts: Vec<[f64; 2]>, dense: Arc<Vec<[f64; 2]>>, excess: bool },
+}
+
+impl PlanJob {
+    /// Appends the plan's samples to `out`, in the order the engine gives them.
+    pub fn run(&self, out: &mut Vec<Sample>) {
+        let (t, cp, map, bodies) = (self.t, &self.cp, self.map.as_deref(), &self.bodies[..]);
+        let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
+        let (pts, dense, excess) = match &self.work {
+            PlanWork::Missing { start, goal } => {
+                let exists = grid_for(cp, map, &[*start, *goal], bodies).shortest(*start, *goal).is_some();
+                push(Metric::PathMissing, if exists { 1.0 } else { 0.0 });
+                return;
+            }
+            PlanWork::Quality { pts, dense, excess } => (pts, &dense[..], *excess),
+        };
+        push(Metric::PathMissing, 0.0);
+        let len = path::length(pts);
+        push(Metric::PathLength, len);
+        push(Metric::PathCurvatureMax, path::curvature_max(dense));
+        push(Metric::PathDeviation, path::deviation_max(dense, cp.deviation_window));
+        // Swept footprint: the footprint at every densified pose, heading from the tangent.
+        // Only the minimum is wanted, so a pose is skipped when it provably cannot go below
+        // it: from the last pose measured exactly (clearance d_k), no point of the footprint
+        // has moved more than |p - p_k| + r |yaw - yaw_k| (r its circumradius), so the
+        // clearance here is at least d_k minus that. Exact, not an approximation.
+        let r = cp.footprint.circumradius();
+        let mut min_clear: Option<f64> = None;
+        let mut anchor: Option<([f64; 2], f64, f64)> = None;
+        for (i, p) in dense.iter().enumerate() {
+            let yaw = tangent(dense, i);
+            if let (Some(m), Some((q, qyaw, dq))) = (min_clear, anchor) {
+                let moved = path::norm(p[0] - q[0], p[1] - q[1]) + r * wrap_angle(yaw - qyaw).abs();
+                if dq - moved >= m {
+                    continue;
+                }
+            }
+            if let Some(n) = clearance_with(cp, map, p[0], p[1], yaw, bodies) {
+                min_clear = Some(min_clear.map_or(n.distance, |m: f64| m.min(n.distance)));
+                anchor = Some((*p, yaw, n.distance));
+            }
+        }
+        if let Some(m) = min_clear {
+            push(Metric::PathClearance, m);
+            push(Metric::PathMargin, m - cp.inflation);
+        }
+        if excess {
+            let (s, g) = (pts[0], pts[pts.len() - 1]);
+            if let Some(best) = grid_for(cp, map, pts, bodies).shortest(s, g) {
+                if best > cp.grid_res {
+                    push(Metric::PathLengthExcess, len / best);
+                }
+            }
+        }
+    }
+}
+
+/// Runs the plan jobs a deferring engine kept for `samples` and puts their samples where
+/// the engine would have put them (each job's position is `samples.len()` when it was
+/// kept); `out` receives the whole batch.
+pub fn splice_plan_jobs(samples: &[Sample], jobs: &[(usize, PlanJob)], out: &mut Vec<Sample>) {
+    let mut from = 0;
+    for (at, job) in jobs {
+        out.extend_from_slice(&samples[from..*at]);
+        job.run(out);
+        from = *at;
+    }
+    out.extend_from_slice(&samples[from..]);
 }
 
 /// Clearance state inside the engine.
 #[derive(Debug)]
 pub(super) struct ClearState {
     pub(super) cp: ClearanceParams,
-    map: Timeline<ObstacleIndex>,
+    map: Timeline<Arc<ObstacleIndex>>,
     plans: Timeline<Plan>,
     pub(super) est_sets: Timeline<Arc<PointSet>>,
     pub(super) clears: VecDeque<Pending<Pose>>,
@@ -72,6 +160,8 @@ pub(super) struct ClearState {
     pub(super) collisions_dropped: u64,
     last_excess_t: f64,
     prev_plan: Option<(f64, [f64; 2], [f64; 2])>,
+    /// Plan jobs kept for the caller, with where their samples go (`None`: run at once).
+    pub(super) deferred: Option<Vec<(usize, PlanJob)>>,
 }
 
 impl ClearState {
@@ -89,6 +179,7 @@ impl ClearState {
             collisions_dropped: 0,
             last_excess_t: f64::NEG_INFINITY,
             prev_plan: None,
+            deferred: None,
         }
     }
 }
@@ -112,7 +203,7 @@ fn reach(p: &Point, radius: f64) -> f64 {
 
 impl Engine {
     pub(super) fn on_obstacles(&mut self, set: &ObstacleSet) {
-        self.clear.map.insert(set.stamp, ObstacleIndex::from_map(&set.obstacles));
+        self.clear.map.insert(set.stamp, Arc::new(ObstacleIndex::from_map(&set.obstacles)));
     }
 
     pub(super) fn clearance_ready(&self, t: f64) -> bool {
@@ -139,29 +230,13 @@ impl Engine {
         out
     }
 
-    fn map_at(&self, t: f64) -> Option<&ObstacleIndex> {
+    fn map_at(&self, t: f64) -> Option<&Arc<ObstacleIndex>> {
         self.clear.map.latest_at_or_before(t).map(|(_, m)| m)
     }
 
-    /// Clearance of the footprint at a pose against the map at `t` and `objects`. An object
-    /// is skipped when a circle bound shows it cannot be nearer than the best so far (the
-    /// map's nearest first), so only a few become polygons.
+    /// Clearance of the footprint at a pose against the map at `t` and `objects`.
     fn clearance_of(&self, t: f64, x: f64, y: f64, yaw: f64, objects: &[Point]) -> Option<Nearest> {
-        let fp = &self.clear.cp.footprint;
-        let placed = fp.place(x, y, yaw);
-        let r = fp.circumradius();
-        let mut best = self.map_at(t).and_then(|m| m.nearest(&placed, [x, y], r));
-        let radius = self.clear.cp.object_radius;
-        for p in objects {
-            let (dx, dy) = (p.x - x, p.y - y);
-            let bound = (dx * dx + dy * dy).sqrt() - reach(p, radius) - r;
-            if best.is_some_and(|b| bound > b.distance) {
-                continue;
-            }
-            let body = body_of(p, radius);
-            best = nearer(best, nearest_of(std::slice::from_ref(&body), &placed, [x, y], r));
-        }
-        best
+        clearance_with(&self.clear.cp, self.map_at(t).map(|m| &**m), x, y, yaw, objects)
     }
 
     pub(super) fn eval_clearance(&mut self, t: f64, pose: &Pose, out: &mut Vec<Sample>) {
@@ -245,7 +320,8 @@ impl Engine {
         push(Metric::ClearanceLossLocalization, est_ref - truth);
     }
 
-    /// Path quality of one plan, evaluated when it arrives.
+    /// A plan arrives: its interval and compute time now, the rest of its path quality as
+    /// a [`PlanJob`] (run now, or kept for the caller when deferring).
     pub(super) fn on_plan(&mut self, path: &Path, out: &mut Vec<Sample>) {
         let t = path.stamp;
         let cp = self.clear.cp;
@@ -257,8 +333,7 @@ impl Engine {
             push(Metric::PlanCompute, c);
         }
         let pts: Vec<[f64; 2]> = path.poses.iter().map(|p| [p.x, p.y]).collect();
-        let bodies = self.reference_points_at(t);
-        if pts.is_empty() {
+        let work = if pts.is_empty() {
             // No path: was there one? Search from the reference ego (else the previous
             // plan's start) to the goal (else the previous plan's end).
             let start = align::resolve(&self.ref_ego, t, self.ap.tolerance)
@@ -267,72 +342,68 @@ impl Engine {
                 .map(|p| [p.x, p.y])
                 .or(self.clear.prev_plan.map(|p| p.1));
             let goal = path.goal.as_ref().map(|g| [g.x, g.y]).or(self.clear.prev_plan.map(|p| p.2));
-            if let (Some(s), Some(g)) = (start, goal) {
-                let exists = self.grid_for(t, &[s, g], &bodies).shortest(s, g).is_some();
-                push(Metric::PathMissing, if exists { 1.0 } else { 0.0 });
+            let (Some(start), Some(goal)) = (start, goal) else { return };
+            PlanWork::Missing { start, goal }
+        } else {
+            let dense = Arc::new(path::densify(&pts, cp.path_step));
+            let excess = t - self.clear.last_excess_t >= cp.excess_every - align::EXACT_S && pts.len() >= 2;
+            if excess {
+                self.clear.last_excess_t = t;
             }
-            return;
+            self.clear.prev_plan = Some((t, pts[0], pts[pts.len() - 1]));
+            self.clear.plans.insert(t, Plan { dense: Arc::clone(&dense) });
+            PlanWork::Quality { pts, dense, excess }
+        };
+        let job = PlanJob { t, cp, map: self.map_at(t).cloned(), bodies: self.reference_points_at(t), work };
+        match self.clear.deferred.as_mut() {
+            Some(kept) => kept.push((out.len(), job)),
+            None => job.run(out),
         }
-        push(Metric::PathMissing, 0.0);
-        let dense = path::densify(&pts, cp.path_step);
-        let len = path::length(&pts);
-        push(Metric::PathLength, len);
-        push(Metric::PathCurvatureMax, path::curvature_max(&dense));
-        push(Metric::PathDeviation, path::deviation_max(&dense, cp.deviation_window));
-        // Swept footprint: the footprint at every densified pose, heading from the tangent.
-        // Only the minimum is wanted, so a pose is skipped when it provably cannot go below
-        // it: from the last pose measured exactly (clearance d_k), no point of the footprint
-        // has moved more than |p - p_k| + r |yaw - yaw_k| (r its circumradius), so the
-        // clearance here is at least d_k minus that. Exact, not an approximation.
-        let r = cp.footprint.circumradius();
-        let mut min_clear: Option<f64> = None;
-        let mut anchor: Option<([f64; 2], f64, f64)> = None;
-        for (i, p) in dense.iter().enumerate() {
-            let yaw = tangent(&dense, i);
-            if let (Some(m), Some((q, qyaw, dq))) = (min_clear, anchor) {
-                let moved = path::norm(p[0] - q[0], p[1] - q[1]) + r * wrap_angle(yaw - qyaw).abs();
-                if dq - moved >= m {
-                    continue;
-                }
-            }
-            if let Some(n) = self.clearance_of(t, p[0], p[1], yaw, &bodies) {
-                min_clear = Some(min_clear.map_or(n.distance, |m: f64| m.min(n.distance)));
-                anchor = Some((*p, yaw, n.distance));
-            }
-        }
-        if let Some(m) = min_clear {
-            push(Metric::PathClearance, m);
-            push(Metric::PathMargin, m - cp.inflation);
-        }
-        if t - self.clear.last_excess_t >= cp.excess_every - align::EXACT_S && pts.len() >= 2 {
-            self.clear.last_excess_t = t;
-            let (s, g) = (pts[0], pts[pts.len() - 1]);
-            if let Some(best) = self.grid_for(t, &pts, &bodies).shortest(s, g) {
-                if best > cp.grid_res {
-                    out.push(Sample { t, metric: Metric::PathLengthExcess, role: None, value: len / best });
-                }
-            }
-        }
-        self.clear.prev_plan = Some((t, pts[0], pts[pts.len() - 1]));
-        self.clear.plans.insert(t, Plan { dense });
     }
+}
 
-    fn grid_for(&self, t: f64, pts: &[[f64; 2]], objects: &[Point]) -> Grid {
-        let bodies: Vec<Body> = objects.iter().map(|p| body_of(p, self.clear.cp.object_radius)).collect();
-        let cp = &self.clear.cp;
-        let mut lo = [f64::INFINITY; 2];
-        let mut hi = [f64::NEG_INFINITY; 2];
-        for p in pts {
-            for k in 0..2 {
-                lo[k] = lo[k].min(p[k] - cp.grid_margin);
-                hi[k] = hi[k].max(p[k] + cp.grid_margin);
-            }
+/// Clearance of the footprint at a pose against `map` and `objects`. An object is skipped
+/// when a circle bound shows it cannot be nearer than the best so far (the map's nearest
+/// first), so only a few become polygons.
+fn clearance_with(
+    cp: &ClearanceParams,
+    map: Option<&ObstacleIndex>,
+    x: f64,
+    y: f64,
+    yaw: f64,
+    objects: &[Point],
+) -> Option<Nearest> {
+    let fp = &cp.footprint;
+    let placed = fp.place(x, y, yaw);
+    let r = fp.circumradius();
+    let mut best = map.and_then(|m| m.nearest(&placed, [x, y], r));
+    let radius = cp.object_radius;
+    for p in objects {
+        let (dx, dy) = (p.x - x, p.y - y);
+        let bound = (dx * dx + dy * dy).sqrt() - reach(p, radius) - r;
+        if best.is_some_and(|b| bound > b.distance) {
+            continue;
         }
-        let half = cp.footprint.width / 2.0;
-        let map = self.map_at(t);
-        let near_map = map.into_iter().flat_map(|m| m.near_box(lo, hi, half));
-        Grid::build(lo, hi, cp.grid_res, cp.max_grid_cells, near_map.chain(bodies.iter()), half)
+        let body = body_of(p, radius);
+        best = nearer(best, nearest_of(std::slice::from_ref(&body), &placed, [x, y], r));
     }
+    best
+}
+
+/// The occupancy grid around `pts` from the map and the objects.
+fn grid_for(cp: &ClearanceParams, map: Option<&ObstacleIndex>, pts: &[[f64; 2]], objects: &[Point]) -> Grid {
+    let bodies: Vec<Body> = objects.iter().map(|p| body_of(p, cp.object_radius)).collect();
+    let mut lo = [f64::INFINITY; 2];
+    let mut hi = [f64::NEG_INFINITY; 2];
+    for p in pts {
+        for k in 0..2 {
+            lo[k] = lo[k].min(p[k] - cp.grid_margin);
+            hi[k] = hi[k].max(p[k] + cp.grid_margin);
+        }
+    }
+    let half = cp.footprint.width / 2.0;
+    let near_map = map.into_iter().flat_map(|m| m.near_box(lo, hi, half));
+    Grid::build(lo, hi, cp.grid_res, cp.max_grid_cells, near_map.chain(bodies.iter()), half)
 }
 
 fn tangent(pts: &[[f64; 2]], i: usize) -> f64 {

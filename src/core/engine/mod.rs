@@ -21,7 +21,7 @@ use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
 use crate::metrics::transport::Transport;
 use crate::metrics::{ego, gospa, ospa, Metric};
 use crate::msg::{Msg, ObjectSet, ObstacleSet, Path, Pose, Role};
-pub use clearance::Collision;
+pub use clearance::{splice_plan_jobs, Collision, PlanJob};
 
 /// One input to the engine.
 #[derive(Debug, Clone)]
@@ -296,6 +296,22 @@ impl Engine {
     /// The latest arrival time seen.
     pub fn now(&self) -> f64 {
         self.now
+    }
+
+    /// With `on`, the costly part of each plan's path quality is not run but kept as a
+    /// [`PlanJob`] with the position in the output buffer where its samples go, for
+    /// [`Engine::take_plan_jobs`] and [`splice_plan_jobs`] (replay runs them beside the
+    /// engine); off, the default, they run at once. The samples are the same either way.
+    pub fn defer_plan_jobs(&mut self, on: bool) {
+        self.clear.deferred = on.then(Vec::new);
+    }
+
+    /// The plan jobs kept since the last call, positions counted in the output buffer the
+    /// engine has been appending to since then.
+    pub fn take_plan_jobs(&mut self, into: &mut Vec<(usize, PlanJob)>) {
+        if let Some(kept) = self.clear.deferred.as_mut() {
+            into.append(kept);
+        }
     }
 
     /// Steps waiting for their reference.
