@@ -299,6 +299,29 @@ impl Body {
         }
     }
 
+    /// Whether the point is nearer than `limit`: the same answer as
+    /// `point_distance(x, y) < limit`. A disc answers from the plain root of its squared
+    /// distance unless that lies within 1e-9 (relative) of `r + limit`, far beyond both
+    /// roots' rounding (a few 1e-16), where `hypot` decides as `point_distance` does: the
+    /// occupancy grid asks this for every cell near every object.
+    pub fn nearer_than(&self, x: f64, y: f64, limit: f64) -> bool {
+        if let Solid::Disc { c, r } = &self.solid {
+            let reach = r + limit;
+            if limit > 0.0 {
+                let (dx, dy) = (x - c[0], y - c[1]);
+                let d = (dx * dx + dy * dy).sqrt();
+                let hair = 1e-9 * (d + reach.abs());
+                if d < reach - hair {
+                    return true;
+                }
+                if d > reach + hair {
+                    return false;
+                }
+            }
+        }
+        self.point_distance(x, y) < limit
+    }
+
     /// Distance from a point to this obstacle; 0 inside.
     pub fn point_distance(&self, x: f64, y: f64) -> f64 {
         let q = GeoPoint::new(x, y);
@@ -451,6 +474,29 @@ pub fn nearer(a: Option<Nearest>, b: Option<Nearest>) -> Option<Nearest> {
 mod tests {
     use super::*;
     use proptest::prelude::*;
+
+    proptest! {
+        #![proptest_config(ProptestConfig { cases: 5000, ..ProptestConfig::default() })]
+
+        /// The grid's occupancy test answers as `point_distance(x, y) < limit` does, at
+        /// random points and at points a few ulps either side of the disc's reach, where
+        /// the plain root and `hypot` could round apart.
+        #[test]
+        fn nearer_than_answers_as_point_distance(
+            c in (-1e4..1e4f64, -1e4..1e4f64),
+            r in 0.0..5.0f64,
+            limit in -1.0..3.0f64,
+            angle in -3.2..3.2f64,
+            scale in prop_oneof![0.0..3.0f64, (-40i32..40).prop_map(|k| 1.0 + k as f64 * 1.1e-16)],
+        ) {
+            let body = Body::disc(ObstacleId::Object(1), [c.0, c.1], r);
+            let d = (r + limit).abs() * scale;
+            let (x, y) = (c.0 + d * angle.cos(), c.1 + d * angle.sin());
+            prop_assert_eq!(body.nearer_than(x, y, limit), body.point_distance(x, y) < limit);
+            let rect = Body::rect(ObstacleId::Object(2), c.0, c.1, angle, r + 0.1, r + 0.2);
+            prop_assert_eq!(rect.nearer_than(x, y, limit), rect.point_distance(x, y) < limit);
+        }
+    }
 
     proptest! {
         /// A small map searched without the tree finds what the tree's search finds: the

@@ -26,6 +26,28 @@ pub fn norm(dx: f64, dy: f64) -> f64 {
     (dx * dx + dy * dy).sqrt()
 }
 
+/// `x.round()` (halves away from zero), inline. The x86-64 baseline has no rounding
+/// instruction, so `f64::round` is a library call, and the grid rounds at every sample of
+/// every line-of-sight test. For |x| < 2^52 truncation by `as i64` is exact and so is the
+/// fraction `x - t`; anything else (huge, infinite, NaN) takes the library call. Equal to
+/// `f64::round` for every input except the sign of a zero result (-0.3 gives +0.0), which
+/// no caller can see: they convert to an index.
+#[inline]
+pub fn round_half_away(x: f64) -> f64 {
+    if !(x.abs() < 4_503_599_627_370_496.0) {
+        return x.round();
+    }
+    let t = x as i64 as f64;
+    let f = x - t;
+    if f >= 0.5 {
+        t + 1.0
+    } else if f <= -0.5 {
+        t - 1.0
+    } else {
+        t
+    }
+}
+
 /// Resamples a polyline at most `step` apart (keeping the vertices).
 pub fn densify(pts: &[[f64; 2]], step: f64) -> Vec<[f64; 2]> {
     let mut out = Vec::with_capacity(pts.len());
@@ -184,7 +206,7 @@ impl Grid {
                 for i in i0..=i1 {
                     if !g.occ[j * w + i] {
                         let c = g.centre(i, j);
-                        if b.point_distance(c[0], c[1]) < inflation {
+                        if b.nearer_than(c[0], c[1], inflation) {
                             g.occ[j * w + i] = true;
                         }
                     }
@@ -209,8 +231,8 @@ impl Grid {
     }
 
     fn cell_clamped(&self, p: [f64; 2]) -> (usize, usize) {
-        let i = ((p[0] - self.origin[0]) / self.res).round().clamp(0.0, (self.w - 1) as f64) as usize;
-        let j = ((p[1] - self.origin[1]) / self.res).round().clamp(0.0, (self.h - 1) as f64) as usize;
+        let i = round_half_away((p[0] - self.origin[0]) / self.res).clamp(0.0, (self.w - 1) as f64) as usize;
+        let j = round_half_away((p[1] - self.origin[1]) / self.res).clamp(0.0, (self.h - 1) as f64) as usize;
         (i, j)
     }
 
@@ -225,7 +247,8 @@ impl Grid {
         let n = ((bx - ax).abs().max((by - ay).abs()) * 4.0).ceil() as usize;
         (0..=n).all(|k| {
             let f = if n == 0 { 0.0 } else { k as f64 / n as f64 };
-            let (i, j) = ((ax + (bx - ax) * f).round() as usize, (ay + (by - ay) * f).round() as usize);
+            let (i, j) =
+                (round_half_away(ax + (bx - ax) * f) as usize, round_half_away(ay + (by - ay) * f) as usize);
             self.free(i, j)
         })
     }
@@ -299,6 +322,38 @@ impl Grid {
 mod tests {
     use super::*;
     use crate::geometry::{Body, ObstacleId};
+
+    /// Reference: the standard library's `f64::round`. Halves, their neighbours one ulp
+    /// either side, the 2^52 edge, infinities and NaN, then random values of every scale.
+    #[test]
+    fn inline_round_equals_the_library_round() {
+        let same = |x: f64| {
+            let (a, b) = (round_half_away(x), x.round());
+            assert!(a == b || (a.is_nan() && b.is_nan()), "{x:e}: {a} vs {b}");
+        };
+        let mut cases = vec![f64::INFINITY, f64::NEG_INFINITY, f64::NAN, f64::MAX, 4_503_599_627_370_496.0];
+        for k in -2000..2000 {
+            let h = k as f64 + 0.5;
+            cases.extend([h, f64::from_bits(h.to_bits() + 1), f64::from_bits(h.to_bits() - 1), k as f64]);
+        }
+        for e in 40..56 {
+            let big = (2.0f64).powi(e);
+            cases.extend([big - 0.5, big + 0.5, big - 1.5, -(big - 0.5), f64::from_bits(big.to_bits() - 1)]);
+        }
+        let mut z = 0x9e37_79b9_7f4a_7c15u64;
+        for _ in 0..200_000 {
+            // splitmix64: random bit patterns cover every exponent and both signs.
+            z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
+            let mut x = z;
+            x = (x ^ (x >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+            x = (x ^ (x >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+            cases.push(f64::from_bits(x ^ (x >> 31)));
+            cases.push((x >> 11) as f64 / (1u64 << 20) as f64 - 4096.0);
+        }
+        for x in cases {
+            same(x);
+        }
+    }
 
     #[test]
     fn sampled_circle_has_curvature_one_over_r() {
