@@ -34,7 +34,7 @@ pub fn norm(dx: f64, dy: f64) -> f64 {
 /// no caller can see: they convert to an index.
 #[inline]
 pub fn round_half_away(x: f64) -> f64 {
-    if !(x.abs() < 4_503_599_627_370_496.0) {
+    if x.is_nan() || x.abs() >= 4_503_599_627_370_496.0 {
         return x.round();
     }
     let t = x as i64 as f64;
