@@ -24,6 +24,9 @@ use crate::rules::AlertEvent;
 const IN_FLIGHT: usize = 2;
 /// Sample batches (one per chunk) in flight from the engine to the sink.
 const SINK_FLIGHT: usize = 4;
+/// Points (objects and plan points) that the plan jobs of one sample batch may hold, about
+/// 2 MiB of objects; beyond it the engine runs a plan's job itself, with the same samples.
+const PLAN_JOB_POINTS: usize = 20_000;
 /// Rejected records kept with their position for the report.
 pub const KEEP_BAD: usize = 100;
 
@@ -149,7 +152,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     let (mut engine, sink) = monitor.split();
     // Plans' path quality (the costliest steps of a log with plans) runs on the sink
     // thread, beside the engine; the sink puts its samples where the engine would have.
-    engine.defer_plan_jobs(true);
+    engine.defer_plan_jobs(Some(PLAN_JOB_POINTS));
     let mut first_bad = Vec::new();
     let mut samples: Vec<Sample> = Vec::with_capacity(4096);
     let mut tail = None;
@@ -278,7 +281,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         (framer.join().unwrap_or_default(), sunk)
     });
     let (sink, write_err) = sunk;
-    engine.defer_plan_jobs(false);
+    engine.defer_plan_jobs(None);
     let monitor = Monitor::join(engine, sink);
     if let Some(e) = write_err {
         return Err(ReplayError::Series(e));

@@ -78,7 +78,39 @@ enum PlanWork {
     Quality { pts: Vec<[f64; 2]>, dense: Arc<Vec<[f64; 2]>>, excess: bool },
 }
 
+/// Plan jobs kept for the caller, and the bound on what they hold.
+#[derive(Debug)]
+pub(super) struct Deferred {
+    pub(super) jobs: Vec<(usize, PlanJob)>,
+    /// Points held by the kept jobs (objects, plan and densified plan).
+    held: usize,
+    /// At most this many points held; a job that would exceed it runs at once instead,
+    /// which gives the same samples, so nothing is lost.
+    pub(super) budget: usize,
+}
+
+impl Deferred {
+    pub(super) fn new(budget: usize) -> Deferred {
+        Deferred { jobs: Vec::new(), held: 0, budget }
+    }
+
+    /// Hands the kept jobs over; what they held no longer counts.
+    pub(super) fn take(&mut self, into: &mut Vec<(usize, PlanJob)>) {
+        into.append(&mut self.jobs);
+        self.held = 0;
+    }
+}
+
 impl PlanJob {
+    /// Points the job holds (its objects, the plan and the densified plan).
+    fn points(&self) -> usize {
+        self.bodies.len()
+            + match &self.work {
+                PlanWork::Missing { .. } => 2,
+                PlanWork::Quality { pts, dense, .. } => pts.len() + dense.len(),
+            }
+    }
+
     /// Appends the plan's samples to `out`, in the order the engine gives them.
     pub fn run(&self, out: &mut Vec<Sample>) {
         let (t, cp, map, bodies) = (self.t, &self.cp, self.map.as_deref(), &self.bodies[..]);
@@ -161,7 +193,7 @@ pub(super) struct ClearState {
     last_excess_t: f64,
     prev_plan: Option<(f64, [f64; 2], [f64; 2])>,
     /// Plan jobs kept for the caller, with where their samples go (`None`: run at once).
-    pub(super) deferred: Option<Vec<(usize, PlanJob)>>,
+    pub(super) deferred: Option<Deferred>,
 }
 
 impl ClearState {
@@ -356,8 +388,11 @@ impl Engine {
         };
         let job = PlanJob { t, cp, map: self.map_at(t).cloned(), bodies: self.reference_points_at(t), work };
         match self.clear.deferred.as_mut() {
-            Some(kept) => kept.push((out.len(), job)),
-            None => job.run(out),
+            Some(d) if d.held + job.points() <= d.budget => {
+                d.held += job.points();
+                d.jobs.push((out.len(), job));
+            }
+            _ => job.run(out),
         }
     }
 }
@@ -438,6 +473,46 @@ mod tests {
                 .map(|n| n.distance)
                 .reduce(f64::min)
         }
+    }
+
+    /// Plan jobs kept under a small budget (some kept, the rest run at once) and spliced
+    /// back batch by batch give the samples of an engine that runs every job at once.
+    #[test]
+    fn kept_and_overflowing_plan_jobs_give_the_inline_samples() {
+        let cfg = Config::defaults();
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl");
+        let mut inputs = Vec::new();
+        read_all(&cfg, &path, &mut |item, _| {
+            if let Item::Record { role, rec } = item {
+                inputs.push(Input::Message { role, recv: rec.recv, msg: rec.msg });
+            }
+        })
+        .unwrap();
+        let mut inline = Engine::new(cfg.tracking, cfg.align, cfg.clearance);
+        let mut want = Vec::new();
+        for input in &inputs {
+            inline.push(input.clone(), &mut want);
+        }
+        inline.finish(&mut want);
+        // About three plans' worth of points: batches of 200 records carry more plans
+        // than that, so both ways are taken.
+        let mut kept = Engine::new(cfg.tracking, cfg.align, cfg.clearance);
+        kept.defer_plan_jobs(Some(600));
+        let (mut got, mut batch, mut jobs, mut ran_kept) = (Vec::new(), Vec::new(), Vec::new(), 0);
+        for part in inputs.chunks(200) {
+            for input in part {
+                kept.push(input.clone(), &mut batch);
+            }
+            jobs.clear();
+            kept.take_plan_jobs(&mut jobs);
+            ran_kept += jobs.len();
+            splice_plan_jobs(&batch, &jobs, &mut got);
+            batch.clear();
+        }
+        kept.finish(&mut got);
+        let plans = want.iter().filter(|s| s.metric == Metric::PathMissing).count();
+        assert!(ran_kept > 0 && ran_kept < plans, "{ran_kept} of {plans} plan jobs kept");
+        assert_eq!(got, want);
     }
 
     /// The skipping bound is exact: on every plan of the shipped log (a detour around a

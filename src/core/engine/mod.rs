@@ -298,19 +298,21 @@ impl Engine {
         self.now
     }
 
-    /// With `on`, the costly part of each plan's path quality is not run but kept as a
-    /// [`PlanJob`] with the position in the output buffer where its samples go, for
-    /// [`Engine::take_plan_jobs`] and [`splice_plan_jobs`] (replay runs them beside the
-    /// engine); off, the default, they run at once. The samples are the same either way.
-    pub fn defer_plan_jobs(&mut self, on: bool) {
-        self.clear.deferred = on.then(Vec::new);
+    /// With `Some(budget)`, the costly part of each plan's path quality is not run but
+    /// kept as a [`PlanJob`] with the position in the output buffer where its samples go,
+    /// for [`Engine::take_plan_jobs`] and [`splice_plan_jobs`] (replay runs them beside the
+    /// engine), as long as the kept jobs hold at most `budget` points (objects, plan and
+    /// densified plan); a job beyond that, and every job with `None` (the default), runs at
+    /// once. The samples are the same either way.
+    pub fn defer_plan_jobs(&mut self, budget: Option<usize>) {
+        self.clear.deferred = budget.map(clearance::Deferred::new);
     }
 
     /// The plan jobs kept since the last call, positions counted in the output buffer the
     /// engine has been appending to since then.
     pub fn take_plan_jobs(&mut self, into: &mut Vec<(usize, PlanJob)>) {
-        if let Some(kept) = self.clear.deferred.as_mut() {
-            into.append(kept);
+        if let Some(d) = self.clear.deferred.as_mut() {
+            d.take(into);
         }
     }
 
