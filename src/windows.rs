@@ -242,7 +242,8 @@ pub struct Window {
     width: f64,
     k: i64,
     buckets: VecDeque<Bucket>,
-    spare: Vec<Bucket>,
+    /// Bin lists of expired buckets, emptied, kept for new buckets.
+    spare: Vec<Vec<u16>>,
     total: Option<Sketch>,
     count: u64,
     sum: f64,
@@ -312,7 +313,7 @@ impl Window {
             }
             b.bins.clear();
             if self.spare.len() < self.k as usize {
-                self.spare.push(b);
+                self.spare.push(b.bins);
             }
         }
         if self.buckets.is_empty() {
@@ -343,31 +344,23 @@ impl Window {
         if idx == self.head {
             self.last = Some(v);
         }
-        // Values mostly land in the newest bucket.
-        let newest = self.buckets.len().wrapping_sub(1);
-        let pos = match self.buckets.back().filter(|b| b.index == idx).map(|_| newest) {
-            Some(p) => p,
-            None => match self.buckets.iter().rposition(|b| b.index <= idx) {
-                Some(p) if self.buckets[p].index == idx => p,
-                found => {
-                    let at = found.map_or(0, |p| p + 1);
-                    let mut b = self.spare.pop().unwrap_or(Bucket {
-                        index: idx,
-                        count: 0,
-                        sum: 0.0,
-                        min: f64::INFINITY,
-                        max: f64::NEG_INFINITY,
-                        bins: Vec::new(),
-                    });
-                    b.index = idx;
-                    b.count = 0;
-                    b.sum = 0.0;
-                    b.min = f64::INFINITY;
-                    b.max = f64::NEG_INFINITY;
-                    self.buckets.insert(at, b);
-                    at
-                }
-            },
+        // Searched from the newest bucket, where values mostly land.
+        let pos = match self.buckets.iter().rposition(|b| b.index <= idx) {
+            Some(p) if self.buckets[p].index == idx => p,
+            found => {
+                let at = found.map_or(0, |p| p + 1);
+                let bins = self.spare.pop().unwrap_or_default();
+                let b = Bucket {
+                    index: idx,
+                    count: 0,
+                    sum: 0.0,
+                    min: f64::INFINITY,
+                    max: f64::NEG_INFINITY,
+                    bins,
+                };
+                self.buckets.insert(at, b);
+                at
+            }
         };
         let b = &mut self.buckets[pos];
         b.count += 1;
@@ -406,13 +399,11 @@ impl Window {
 
     /// Approximate heap bytes held.
     pub fn heap_bytes(&self) -> usize {
-        let buckets: usize = self
-            .buckets
-            .iter()
-            .chain(self.spare.iter())
-            .map(|b| std::mem::size_of::<Bucket>() + b.bins.capacity() * 2)
-            .sum();
-        buckets + self.total.as_ref().map_or(0, |_| (BINS + BINS.div_ceil(SUB)) * 4)
+        let buckets: usize =
+            self.buckets.iter().map(|b| std::mem::size_of::<Bucket>() + b.bins.capacity() * 2).sum();
+        let spare: usize =
+            self.spare.iter().map(|v| std::mem::size_of::<Vec<u16>>() + v.capacity() * 2).sum();
+        buckets + spare + self.total.as_ref().map_or(0, |_| (BINS + BINS.div_ceil(SUB)) * 4)
     }
 }
 
