@@ -67,8 +67,8 @@ impl<'a> Parser<'a> {
         std::str::from_utf8(self.raw_str()?).ok()
     }
 
-    /// A number token by JSON's grammar: its bytes and whether it is an integer.
-    fn number(&mut self) -> Option<(&'a [u8], bool)> {
+    /// A number token by JSON's grammar: its bytes.
+    fn number(&mut self) -> Option<&'a [u8]> {
         self.peek()?;
         let (b, start) = (self.b, self.at);
         let digits = |mut i: usize| {
@@ -83,13 +83,12 @@ impl<'a> Parser<'a> {
             b'1'..=b'9' => digits(i + 1),
             _ => return None,
         };
-        let mut integer = true;
         if b.get(i) == Some(&b'.') {
             let end = digits(i + 1);
             if end == i + 1 {
                 return None;
             }
-            (i, integer) = (end, false);
+            i = end;
         }
         if matches!(b.get(i), Some(b'e' | b'E')) {
             i += 1;
@@ -100,13 +99,13 @@ impl<'a> Parser<'a> {
             if end == i {
                 return None;
             }
-            (i, integer) = (end, false);
+            i = end;
         }
         if i - start > MAX_NUMBER {
             return None;
         }
         self.at = i;
-        Some((&b[start..i], integer))
+        Some(&b[start..i])
     }
 
     fn f64(&mut self) -> Option<f64> {
@@ -115,7 +114,7 @@ impl<'a> Parser<'a> {
             self.at = end;
             return Some(v);
         }
-        let t = self.number()?.0;
+        let t = self.number()?;
         // The token is ASCII by construction.
         let v: f64 = std::str::from_utf8(t).ok()?.parse().ok()?;
         v.is_finite().then_some(v)
@@ -175,31 +174,36 @@ impl<'a> Parser<'a> {
 
     /// An object's fields: `each` reads the value of every name (and says which of the
     /// known names it was); a name unknown or seen twice gives up.
-    fn fields(&mut self, each: impl FnMut(&mut Self, &'a [u8]) -> Option<u32>) -> Option<u32> {
+    fn fields(&mut self, mut each: impl FnMut(&mut Self, &'a [u8]) -> Option<u32>) -> Option<u32> {
         self.eat(b'{')?;
         if self.peek()? == b'}' {
             self.at += 1;
             return Some(0);
         }
-        self.more_fields(0, each)
+        let seen = self.field(0, &mut each)?;
+        self.after_field(seen, each)
     }
 
-    /// The rest of an object's fields from the next name on, `seen` those read already.
-    fn more_fields(
+    /// One `"name": value`, its bit added to `seen`.
+    fn field(&mut self, seen: u32, each: &mut impl FnMut(&mut Self, &'a [u8]) -> Option<u32>) -> Option<u32> {
+        let name = self.raw_str()?;
+        self.eat(b':')?;
+        let bit = each(self, name)?;
+        (seen & bit == 0).then_some(seen | bit)
+    }
+
+    /// After a field's value: more fields after commas, to the object's end.
+    fn after_field(
         &mut self,
         mut seen: u32,
         mut each: impl FnMut(&mut Self, &'a [u8]) -> Option<u32>,
     ) -> Option<u32> {
         loop {
-            let name = self.raw_str()?;
-            self.eat(b':')?;
-            let bit = each(self, name)?;
-            if seen & bit != 0 {
-                return None;
-            }
-            seen |= bit;
             match self.peek()? {
-                b',' => self.at += 1,
+                b',' => {
+                    self.at += 1;
+                    seen = self.field(seen, &mut each)?;
+                }
                 b'}' => {
                     self.at += 1;
                     return Some(seen);
@@ -287,17 +291,7 @@ impl<'a> Parser<'a> {
         let seen = match head {
             None => self.fields(each)?,
             // id, x and y read: the object ends, or its other fields follow.
-            Some(()) => match self.peek()? {
-                b'}' => {
-                    self.at += 1;
-                    7
-                }
-                b',' => {
-                    self.at += 1;
-                    self.more_fields(7, each)?
-                }
-                _ => return None,
-            },
+            Some(()) => self.after_field(7, each)?,
         };
         (seen & 7 == 7).then_some(())
     }
@@ -382,10 +376,10 @@ impl<'a> Parser<'a> {
     }
 }
 
-/// Powers of ten exactly representable as doubles.
-const POW10: [f64; 23] = [
+/// The powers of ten a plain decimal of at most 19 digits divides by, all exact doubles.
+const POW10: [f64; 20] = [
     1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18,
-    1e19, 1e20, 1e21, 1e22,
+    1e19,
 ];
 
 /// A plain decimal at `b[i..]` (`-?(0|[1-9][0-9]*)(\.[0-9]+)?`, JSON's grammar without an

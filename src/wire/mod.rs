@@ -99,12 +99,15 @@ impl<'a> Reader<'a> {
     }
 
     #[inline]
-    fn floats<const N: usize>(&mut self) -> Option<[f64; N]> {
+    fn opt_floats<const N: usize>(&mut self) -> Option<Option<[f64; N]>> {
+        if !self.tag()? {
+            return Some(None);
+        }
         let mut out = [0.0; N];
         for v in &mut out {
             *v = self.f64()?;
         }
-        Some(out)
+        Some(Some(out))
     }
 
     #[inline]
@@ -118,7 +121,7 @@ impl<'a> Reader<'a> {
         let (x, y) = (self.f64()?, self.f64()?);
         let (vx, vy, yaw, length, width) =
             (self.opt_f64()?, self.opt_f64()?, self.opt_f64()?, self.opt_f64()?, self.opt_f64()?);
-        let cov = if self.tag()? { Some(self.floats::<4>()?) } else { None };
+        let cov = self.opt_floats::<4>()?;
         let class = if self.tag()? { Some(CompactString::from(self.str()?)) } else { None };
         Some(Object { id, x, y, vx, vy, yaw, length, width, cov, class })
     }
@@ -148,7 +151,7 @@ impl<'a> Reader<'a> {
     fn pose(&mut self) -> Option<Pose> {
         let (stamp, x, y, yaw) = (self.f64()?, self.f64()?, self.f64()?, self.f64()?);
         let v = self.opt_f64()?;
-        let cov = if self.tag()? { Some(self.floats::<9>()?) } else { None };
+        let cov = self.opt_floats::<9>()?;
         Some(Pose { stamp, x, y, yaw, v, cov })
     }
 }
