@@ -25,10 +25,9 @@ struct RefState {
     last_est: Option<u64>,
     gap_while_present: bool,
     last_present: f64,
-    /// The last step (1-based count) it was present at, and assigned at: whether it is
-    /// present or assigned now is one look-up of its state, not a set of this step's ids.
+    /// The last step (1-based count) it was present at: whether it is present now is one
+    /// look-up of its state, not a set of this step's ids.
     present_step: u64,
-    assigned_step: u64,
 }
 
 #[derive(Debug, Clone)]
@@ -100,7 +99,7 @@ impl TrackLife {
         t: f64,
         refs_present: &[u64],
         ests_present: &[u64],
-        pairs: &[(usize, usize)],
+        pairs: impl IntoIterator<Item = (usize, usize)>,
         out: &mut TrackLifeStep,
     ) {
         out.switches = 0;
@@ -116,7 +115,7 @@ impl TrackLife {
         // whether it is assigned at this step is the next pair's reference index.
         self.owner_of.clear();
         self.owner_of.resize(ests_present.len(), None);
-        let mut next_pair = pairs.iter().peekable();
+        let mut next_pair = pairs.into_iter().peekable();
         for (i, &r) in refs_present.iter().enumerate() {
             let st = self.refs.entry(r).or_insert(RefState {
                 first_in_region: t,
@@ -125,18 +124,16 @@ impl TrackLife {
                 gap_while_present: false,
                 last_present: t,
                 present_step: 0,
-                assigned_step: 0,
             });
             st.last_present = t;
             st.present_step = step;
-            let Some(&(_, j)) = next_pair.next_if(|&&(pi, _)| pi == i) else {
+            let Some((_, j)) = next_pair.next_if(|&(pi, _)| pi == i) else {
                 if st.last_est.is_some() {
                     st.gap_while_present = true;
                 }
                 continue;
             };
             let e = ests_present[j];
-            st.assigned_step = step;
             if !st.established {
                 st.established = true;
                 out.establishment.push(t - st.first_in_region);
@@ -152,8 +149,6 @@ impl TrackLife {
             self.owner_of[j] = Some(r);
         }
         let refs = &self.refs;
-        // The state of a reference present at this step.
-        let present = |id: u64| refs.get(&id).filter(|s| s.present_step == step);
         for (j, &e) in ests_present.iter().enumerate() {
             let es = self.ests.entry(e).or_insert_with(|| EstState::new(t));
             es.last_seen = t;
@@ -163,10 +158,11 @@ impl TrackLife {
                 es.owner = Some(r);
                 es.owner_left_at = None;
             } else if let Some(owner) = es.owner {
-                if present(owner).is_some() {
+                let st = refs.get(&owner);
+                if st.is_some_and(|s| s.present_step == step) {
                     es.owner_left_at = None;
                 } else if es.owner_left_at.is_none() {
-                    es.owner_left_at = refs.get(&owner).map(|s| s.last_present);
+                    es.owner_left_at = st.map(|s| s.last_present);
                 }
             }
         }
@@ -178,7 +174,7 @@ impl TrackLife {
             }
             // The owner may have left at this very step, together with the track.
             let left = es.owner_left_at.take().or_else(|| {
-                es.owner.filter(|&o| present(o).is_none()).and_then(|o| refs.get(&o).map(|s| s.last_present))
+                es.owner.and_then(|o| refs.get(&o)).filter(|s| s.present_step != step).map(|s| s.last_present)
             });
             if let Some(left) = left {
                 out.deletion.push(es.last_seen - left);
@@ -239,7 +235,7 @@ mod tests {
             let pos = |ids: &[u64], id: u64| ids.iter().position(|&x| x == id).unwrap();
             let mut idx: Vec<(usize, usize)> = p.iter().map(|&(a, b)| (pos(r, a), pos(e, b))).collect();
             idx.sort_unstable();
-            tl.step(*t, r, e, &idx, &mut o);
+            tl.step(*t, r, e, idx, &mut o);
             outs.push(o);
         }
         let fin = tl.finish();

@@ -242,7 +242,7 @@ pub struct Engine {
     wb: Vec<Point>,
     xp: Vec<[f64; 2]>,
     yp: Vec<[f64; 2]>,
-    ids: (Vec<u64>, Vec<u64>, Vec<(usize, usize)>),
+    ids: (Vec<u64>, Vec<u64>),
     clear: clearance::ClearState,
 }
 
@@ -607,13 +607,12 @@ impl Engine {
             push(Metric::Nees, sum / n as f64);
         }
 
-        let (refs, ests, pairs) = &mut self.ids;
+        let (refs, ests) = &mut self.ids;
         refs.clear();
         refs.extend(self.xs.iter().map(|o| o.id));
         ests.clear();
         ests.extend(self.ys.iter().map(|o| o.id));
-        pairs.clear();
-        pairs.extend(m.pairs.iter().map(|&(i, j, _)| (i, j)));
+        let pairs = m.pairs.iter().map(|&(i, j, _)| (i, j));
         self.tracklife.step(t, refs, ests, pairs, &mut self.tl_step);
         push(Metric::TrackSwitches, self.tl_step.switches as f64);
         push(Metric::Fragmentations, self.tl_step.fragmentations as f64);
