@@ -12,7 +12,7 @@ use std::path::Path;
 use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
 
 use crate::config::Config;
-use crate::core::engine::{splice_plan_jobs, Input, PlanJob, Prepared, Sample};
+use crate::core::engine::{splice_plan_jobs, Engine, Input, PlanJob, Prepared, Sample};
 use crate::logio::chunks::{Frame, LineFramer, RecordFramer};
 use crate::logio::{jsonl, plb, Form, Item, LogError, Position, Tail};
 use crate::monitor::Monitor;
@@ -242,12 +242,10 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         });
 
         let mut k = 0;
-        let send = |samples: &mut Vec<Sample>, engine: &mut crate::core::Engine| {
+        let send = |samples: &mut Vec<Sample>, engine: &mut Engine| {
             let next = recycled.try_recv().unwrap_or_else(|_| Vec::with_capacity(4096));
-            let mut jobs = Vec::new();
-            engine.take_plan_jobs(&mut jobs);
             // The sink stops only when this side hangs up.
-            let _ = to_sink.send((std::mem::replace(samples, next), jobs));
+            let _ = to_sink.send((std::mem::replace(samples, next), engine.take_plan_jobs()));
         };
         while let Ok(d) = from_workers[k % n].recv() {
             k += 1;

@@ -81,12 +81,12 @@ enum PlanWork {
 /// Plan jobs kept for the caller, and the bound on what they hold.
 #[derive(Debug)]
 pub(super) struct Deferred {
-    pub(super) jobs: Vec<(usize, PlanJob)>,
+    jobs: Vec<(usize, PlanJob)>,
     /// Points held by the kept jobs (objects, plan and densified plan).
     held: usize,
     /// At most this many points held; a job that would exceed it runs at once instead,
     /// which gives the same samples, so nothing is lost.
-    pub(super) budget: usize,
+    budget: usize,
 }
 
 impl Deferred {
@@ -95,9 +95,9 @@ impl Deferred {
     }
 
     /// Hands the kept jobs over; what they held no longer counts.
-    pub(super) fn take(&mut self, into: &mut Vec<(usize, PlanJob)>) {
-        into.append(&mut self.jobs);
+    pub(super) fn take(&mut self) -> Vec<(usize, PlanJob)> {
         self.held = 0;
+        std::mem::take(&mut self.jobs)
     }
 }
 
@@ -387,9 +387,10 @@ impl Engine {
             PlanWork::Quality { pts, dense, excess }
         };
         let job = PlanJob { t, cp, map: self.map_at(t).cloned(), bodies: self.reference_points_at(t), work };
+        let points = job.points();
         match self.clear.deferred.as_mut() {
-            Some(d) if d.held + job.points() <= d.budget => {
-                d.held += job.points();
+            Some(d) if d.held + points <= d.budget => {
+                d.held += points;
                 d.jobs.push((out.len(), job));
             }
             _ => job.run(out),
@@ -498,13 +499,12 @@ mod tests {
         // than that, so both ways are taken.
         let mut kept = Engine::new(cfg.tracking, cfg.align, cfg.clearance);
         kept.defer_plan_jobs(Some(600));
-        let (mut got, mut batch, mut jobs, mut ran_kept) = (Vec::new(), Vec::new(), Vec::new(), 0);
+        let (mut got, mut batch, mut ran_kept) = (Vec::new(), Vec::new(), 0);
         for part in inputs.chunks(200) {
             for input in part {
                 kept.push(input.clone(), &mut batch);
             }
-            jobs.clear();
-            kept.take_plan_jobs(&mut jobs);
+            let jobs = kept.take_plan_jobs();
             ran_kept += jobs.len();
             splice_plan_jobs(&batch, &jobs, &mut got);
             batch.clear();

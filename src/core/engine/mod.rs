@@ -310,10 +310,8 @@ impl Engine {
 
     /// The plan jobs kept since the last call, positions counted in the output buffer the
     /// engine has been appending to since then.
-    pub fn take_plan_jobs(&mut self, into: &mut Vec<(usize, PlanJob)>) {
-        if let Some(d) = self.clear.deferred.as_mut() {
-            d.take(into);
-        }
+    pub fn take_plan_jobs(&mut self) -> Vec<(usize, PlanJob)> {
+        self.clear.deferred.as_mut().map(clearance::Deferred::take).unwrap_or_default()
     }
 
     /// Steps waiting for their reference.
