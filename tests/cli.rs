@@ -268,21 +268,27 @@ fn html_reports_are_self_contained_with_plots() {
     assert_eq!(external, namespaces, "only SVG namespace URIs may appear");
 }
 
+/// The binary started from the project's folder with stdout and stderr piped.
+fn spawn_piped(args: &[&str]) -> std::process::Child {
+    use std::process::Stdio;
+    Command::new(env!("CARGO_BIN_EXE_plumbline"))
+        .args(args)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("binary runs")
+}
+
 #[test]
 fn a_reader_that_quits_early_does_not_panic_the_command() {
     // `plumbline replay LOG | head -c 0`: stdout is a pipe whose reader is already gone.
     // The summary cannot be written; the command must still write its report and exit
     // with the code of what it found (0 on the shipped log), not die in a panic (101).
-    use std::process::Stdio;
     let dir = tempfile::tempdir().unwrap();
     let report = dir.path().join("r.json");
-    let mut child = Command::new(env!("CARGO_BIN_EXE_plumbline"))
-        .args(["replay", "replay-logs/campus-loop.jsonl", "--report", report.to_str().unwrap()])
-        .current_dir(env!("CARGO_MANIFEST_DIR"))
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("binary runs");
+    let mut child =
+        spawn_piped(&["replay", "replay-logs/campus-loop.jsonl", "--report", report.to_str().unwrap()]);
     drop(child.stdout.take());
     let out = child.wait_with_output().unwrap();
     let stderr = text(&out.stderr);
@@ -297,14 +303,7 @@ fn a_closed_stderr_does_not_panic_the_command() {
     // `plumbline replay MISSING 2>&-`-like: stderr is a pipe whose reader is gone. The
     // error message cannot be written; the exit code must still say the input could not be
     // read (2), not a panic (101).
-    use std::process::Stdio;
-    let mut child = Command::new(env!("CARGO_BIN_EXE_plumbline"))
-        .args(["replay", "no-such-log.jsonl"])
-        .current_dir(env!("CARGO_MANIFEST_DIR"))
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("binary runs");
+    let mut child = spawn_piped(&["replay", "no-such-log.jsonl"]);
     drop(child.stderr.take());
     let out = child.wait_with_output().unwrap();
     assert_eq!(out.status.code(), Some(2));
