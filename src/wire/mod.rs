@@ -99,15 +99,12 @@ impl<'a> Reader<'a> {
     }
 
     #[inline]
-    fn opt_floats<const N: usize>(&mut self) -> Option<Option<[f64; N]>> {
-        if !self.tag()? {
-            return Some(None);
-        }
+    fn floats<const N: usize>(&mut self) -> Option<[f64; N]> {
         let mut out = [0.0; N];
         for v in &mut out {
             *v = self.f64()?;
         }
-        Some(Some(out))
+        Some(out)
     }
 
     #[inline]
@@ -121,7 +118,7 @@ impl<'a> Reader<'a> {
         let (x, y) = (self.f64()?, self.f64()?);
         let (vx, vy, yaw, length, width) =
             (self.opt_f64()?, self.opt_f64()?, self.opt_f64()?, self.opt_f64()?, self.opt_f64()?);
-        let cov = self.opt_floats::<4>()?;
+        let cov = if self.tag()? { Some(self.floats::<4>()?) } else { None };
         let class = if self.tag()? { Some(CompactString::from(self.str()?)) } else { None };
         Some(Object { id, x, y, vx, vy, yaw, length, width, cov, class })
     }
@@ -151,7 +148,7 @@ impl<'a> Reader<'a> {
     fn pose(&mut self) -> Option<Pose> {
         let (stamp, x, y, yaw) = (self.f64()?, self.f64()?, self.f64()?, self.f64()?);
         let v = self.opt_f64()?;
-        let cov = self.opt_floats::<9>()?;
+        let cov = if self.tag()? { Some(self.floats::<9>()?) } else { None };
         Some(Pose { stamp, x, y, yaw, v, cov })
     }
 }
