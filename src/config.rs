@@ -290,6 +290,20 @@ pub struct RawLimits {
     pub pending_steps: Option<i64>,
     /// messages kept per reference buffer
     pub buffer_messages: Option<i64>,
+    /// largest coordinate magnitude (m)
+    pub max_coordinate_m: Option<f64>,
+    /// largest object or obstacle size (m)
+    pub max_size_m: Option<f64>,
+    /// largest speed (m/s)
+    pub max_speed_mps: Option<f64>,
+    /// largest stamp or recv magnitude (s)
+    pub max_stamp_s: Option<f64>,
+    /// how far a message may run ahead of the arrival clock
+    pub max_stamp_lead_s: Option<toml::Value>,
+    /// most points of a densified plan
+    pub max_plan_points: Option<i64>,
+    /// largest assignment component solved exactly (rows x columns)
+    pub exact_assignment_cells: Option<i64>,
 }
 
 /// `[report]`
@@ -328,8 +342,8 @@ pub struct Config {
     /// HTTP access and limits (serving only: not part of the digest)
     #[serde(skip)]
     pub http: HttpParams,
-    /// message size limit
-    pub max_objects: usize,
+    /// message size and plausibility limits
+    pub limits: Limits,
     /// report percentile settings
     pub report: ReportParams,
     /// key prefix for the monitor's publications
@@ -480,7 +494,7 @@ impl Config {
 
         let tm = &raw.time;
         let max_objects = count(source, "limits.max_objects", raw.limits.max_objects, 10_000)?;
-        let align = AlignParams::try_new(
+        let mut align = AlignParams::try_new(
             duration(source, "time.max_wait", &tm.max_wait, 0.5)?,
             duration(source, "time.tolerance", &tm.tolerance, 0.1)?,
             duration(source, "time.retain", &tm.retain, 2.0)?,
@@ -488,6 +502,19 @@ impl Config {
             count(source, "limits.buffer_messages", raw.limits.buffer_messages, 4096)?,
         )
         .map_err(|e| err(source, &e.key, e.expected))?;
+        let rl = &raw.limits;
+        align.max_stamp_lead =
+            duration(source, "limits.max_stamp_lead_s", &rl.max_stamp_lead_s, crate::core::MAX_STAMP_LEAD)?;
+        if align.max_stamp_lead <= 0.0 {
+            return Err(err(source, "limits.max_stamp_lead_s", "a duration > 0"));
+        }
+        let mut tracking = tracking;
+        tracking.exact_cells = count(
+            source,
+            "limits.exact_assignment_cells",
+            rl.exact_assignment_cells,
+            crate::core::EXACT_CELLS,
+        )?;
 
         let v = &raw.vehicle;
         let footprint = Footprint {
@@ -509,6 +536,22 @@ impl Config {
             grid_margin: nonneg(source, "path.grid_margin_m", p.grid_margin_m, 10.0)?,
             max_grid_cells: count(source, "path.max_grid_cells", p.max_grid_cells, 2_000_000)?,
             excess_every: duration(source, "path.excess_every", &p.excess_every, 1.0)?,
+        };
+        let dl = Limits::default();
+        let limits = Limits {
+            max_objects,
+            max_coordinate: bound(
+                source,
+                "limits.max_coordinate_m",
+                rl.max_coordinate_m,
+                dl.max_coordinate,
+                "m",
+            )?,
+            max_size: bound(source, "limits.max_size_m", rl.max_size_m, dl.max_size, "m")?,
+            max_speed: bound(source, "limits.max_speed_mps", rl.max_speed_mps, dl.max_speed, "m/s")?,
+            max_stamp: bound(source, "limits.max_stamp_s", rl.max_stamp_s, dl.max_stamp, "s")?,
+            max_plan_points: count(source, "limits.max_plan_points", rl.max_plan_points, dl.max_plan_points)?,
+            plan_step: clearance.path_step,
         };
         let http_listen = raw.http.listen.clone().unwrap_or_else(|| "127.0.0.1:9464".into());
         if http_listen.parse::<std::net::SocketAddr>().is_err() {
@@ -637,7 +680,7 @@ impl Config {
             map_file: raw.clearance.map_file.clone(),
             http_listen,
             http,
-            max_objects,
+            limits,
             report,
             prefix,
             windows,
@@ -653,7 +696,7 @@ impl Config {
 
     /// Message validation limits.
     pub fn limits(&self) -> Limits {
-        Limits { max_objects: self.max_objects }
+        self.limits
     }
 
     /// The key expression bound to a role.
@@ -826,6 +869,15 @@ fn nonneg(source: &str, key: &str, v: Option<f64>, default: f64) -> Result<f64, 
         None => Ok(default),
         Some(x) if x.is_finite() && x >= 0.0 => Ok(x),
         Some(x) => Err(err(source, key, format!("a number of metres >= 0, found {x}"))),
+    }
+}
+
+/// A positive finite bound in `unit`.
+fn bound(source: &str, key: &str, v: Option<f64>, default: f64, unit: &str) -> Result<f64, ConfigError> {
+    match v {
+        None => Ok(default),
+        Some(x) if x.is_finite() && x > 0.0 => Ok(x),
+        Some(x) => Err(err(source, key, format!("a positive number of {unit}, found {x}"))),
     }
 }
 

@@ -67,7 +67,8 @@ impl Monitor {
         self.consume(start, samples, events);
     }
 
-    fn consume(&mut self, start: usize, samples: &[Sample], events: &mut Vec<AlertEvent>) {
+    fn consume(&mut self, start: usize, samples: &mut Vec<Sample>, events: &mut Vec<AlertEvent>) {
+        self.stats.non_finite += drop_non_finite(samples, start);
         let Monitor { stats, windows, rules, alerts, alerts_dropped, .. } = self;
         consume(stats, windows, rules, alerts, alerts_dropped, &samples[start..], events);
     }
@@ -108,11 +109,34 @@ pub struct Sink {
 }
 
 impl Sink {
-    /// Takes a batch of samples in order; new alert events are appended to `events`.
-    pub fn consume(&mut self, samples: &[Sample], events: &mut Vec<AlertEvent>) {
+    /// Takes a batch of samples in order; new alert events are appended to `events`. A
+    /// sample whose value is not finite is removed from the batch first (and counted), so
+    /// what the caller writes after this call is what the statistics saw.
+    pub fn consume(&mut self, samples: &mut Vec<Sample>, events: &mut Vec<AlertEvent>) {
+        self.stats.non_finite += drop_non_finite(samples, 0);
         let Sink { stats, windows, rules, alerts, alerts_dropped } = self;
         consume(stats, windows, rules, alerts, alerts_dropped, samples, events);
     }
+}
+
+/// Removes the samples from `from` on whose value is NaN or infinite, keeping the order of
+/// the rest; returns how many went. The last line of defence: input bounds (`[limits]`)
+/// keep every metric finite, and this keeps a value that still is not from reaching a
+/// statistic, a window, a rule, the series or a gauge.
+pub fn drop_non_finite(samples: &mut Vec<Sample>, from: usize) -> u64 {
+    if samples[from..].iter().all(|s| s.value.is_finite()) {
+        return 0;
+    }
+    let before = samples.len();
+    let mut k = from;
+    for i in from..samples.len() {
+        if samples[i].value.is_finite() {
+            samples[k] = samples[i];
+            k += 1;
+        }
+    }
+    samples.truncate(k);
+    (before - k) as u64
 }
 
 fn consume(

@@ -150,7 +150,7 @@ pub struct ObjectSet {
     #[serde(default)]
     pub frame: Option<Frame>,
     /// The objects.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "strict::vec")]
     pub objects: Vec<Object>,
 }
 
@@ -191,9 +191,10 @@ pub struct Path {
     /// Stamp (s).
     pub stamp: f64,
     /// The poses.
+    #[serde(deserialize_with = "strict::vec")]
     pub poses: Vec<PathPose>,
     /// Goal pose.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "strict::option")]
     pub goal: Option<PathPose>,
     /// Planner compute time (s).
     #[serde(default)]
@@ -248,7 +249,7 @@ pub struct ObstacleSet {
     /// Stamp (s).
     pub stamp: f64,
     /// The obstacles.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "strict::vec")]
     pub obstacles: Vec<Obstacle>,
 }
 
@@ -323,6 +324,58 @@ impl Msg {
     }
 }
 
+/// Structs read from JSON objects only.
+///
+/// serde's derived `Deserialize` for a struct also accepts a sequence of its fields in
+/// order, so `[0.9, 1.0, 2.0, 0.1]` would read as a pose. The contract says every message
+/// and nested object is a JSON object: these helpers ask a human-readable (JSON)
+/// deserializer for a map and hand the map to the derived visitor, so anything else is
+/// serde's "invalid type" (`wrong_type`). The binary form (postcard, not human-readable)
+/// encodes structs as sequences and keeps the derived path.
+pub mod strict {
+    use std::marker::PhantomData;
+
+    use serde::de::value::MapAccessDeserializer;
+    use serde::de::{Deserialize, Deserializer, MapAccess, Visitor};
+
+    /// A `T` read only from an object in JSON.
+    pub struct Object<T>(pub T);
+
+    impl<'de, T: Deserialize<'de>> Deserialize<'de> for Object<T> {
+        fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+            object(d).map(Object)
+        }
+    }
+
+    /// Reads a `T` from an object (JSON) or by its derived path (binary).
+    pub fn object<'de, D: Deserializer<'de>, T: Deserialize<'de>>(d: D) -> Result<T, D::Error> {
+        if !d.is_human_readable() {
+            return T::deserialize(d);
+        }
+        struct V<T>(PhantomData<T>);
+        impl<'de, T: Deserialize<'de>> Visitor<'de> for V<T> {
+            type Value = T;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("an object")
+            }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<T, A::Error> {
+                T::deserialize(MapAccessDeserializer::new(map))
+            }
+        }
+        d.deserialize_map(V(PhantomData))
+    }
+
+    /// A list whose items are objects.
+    pub fn vec<'de, D: Deserializer<'de>, T: Deserialize<'de>>(d: D) -> Result<Vec<T>, D::Error> {
+        Vec::<Object<T>>::deserialize(d).map(|v| v.into_iter().map(|o| o.0).collect())
+    }
+
+    /// An optional object (`null` or absent is `None`).
+    pub fn option<'de, D: Deserializer<'de>, T: Deserialize<'de>>(d: D) -> Result<Option<T>, D::Error> {
+        Option::<Object<T>>::deserialize(d).map(|o| o.map(|o| o.0))
+    }
+}
+
 fn strip_nulls(v: &mut serde_json::Value) {
     match v {
         serde_json::Value::Object(map) => {
@@ -373,6 +426,27 @@ pub enum Reject {
     /// A line longer than the reader accepts.
     #[error("line longer than {0} bytes")]
     TooLong(usize),
+    /// A coordinate, size, speed, angle or covariance beyond its plausibility bound.
+    #[error("out of range: {0}")]
+    OutOfRange(String),
+    /// An object's length or width is zero or negative.
+    #[error("bad size: {0}")]
+    BadSize(String),
+    /// A plan with more points (poses, and its length over the densification step) than
+    /// `limits.max_plan_points`.
+    #[error("plan too long: {0}")]
+    PlanTooLong(String),
+    /// A stamp beyond `limits.max_stamp_s`, or further ahead of the arrival clock than
+    /// `limits.max_stamp_lead_s`.
+    #[error("implausible stamp: {0}")]
+    ImplausibleStamp(String),
+    /// An arrival time beyond `limits.max_stamp_s`, or jumping ahead of the arrival clock
+    /// by more than `limits.max_stamp_lead_s` with no second message to confirm the jump.
+    #[error("implausible recv: {0}")]
+    ImplausibleRecv(String),
+    /// A live sample whose encoding is neither JSON nor the project's postcard encoding.
+    #[error("unknown encoding {0}")]
+    BadEncoding(String),
 }
 
 impl Reject {
@@ -391,6 +465,12 @@ impl Reject {
             Reject::BadCovariance(_) => "bad_covariance",
             Reject::UnboundKey(_) => "unbound_key",
             Reject::TooLong(_) => "line_too_long",
+            Reject::OutOfRange(_) => "out_of_range",
+            Reject::BadSize(_) => "bad_size",
+            Reject::PlanTooLong(_) => "plan_too_long",
+            Reject::ImplausibleStamp(_) => "implausible_stamp",
+            Reject::ImplausibleRecv(_) => "implausible_recv",
+            Reject::BadEncoding(_) => "bad_encoding",
         }
     }
 
@@ -415,23 +495,53 @@ impl Reject {
     }
 }
 
-/// Limits applied while validating.
-#[derive(Debug, Clone, Copy)]
+/// Limits applied while validating: sizes, and the plausibility bounds of `[limits]`.
+///
+/// A message beyond a bound parses but makes no physical sense; it is rejected whole with
+/// a reason of its own, so that it can neither fool the metrics (a coordinate of 1e308
+/// turns every distance into infinity) nor stall the engine (a plan reaching 1e7 m away
+/// densifies into millions of points).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Limits {
     /// Largest object or obstacle count accepted in one message.
     pub max_objects: usize,
+    /// Largest coordinate magnitude (m) of a position, path pose or polygon vertex.
+    pub max_coordinate: f64,
+    /// Largest size (m): an object's or obstacle's length and width, a circle's radius.
+    pub max_size: f64,
+    /// Largest speed (m/s): `vx`, `vy` of an object, `v` of a pose.
+    pub max_speed: f64,
+    /// Largest stamp (and `recv`) magnitude (s): 1e10 s is past the year 2286 in Unix time.
+    pub max_stamp: f64,
+    /// Most points of a plan: its poses plus its length over `plan_step`.
+    pub max_plan_points: usize,
+    /// The step a plan is densified at (m): `clearance.path_step_m`.
+    pub plan_step: f64,
 }
 
 impl Default for Limits {
     fn default() -> Self {
-        Limits { max_objects: 10_000 }
+        Limits {
+            max_objects: 10_000,
+            max_coordinate: 1e7,
+            max_size: 1e4,
+            max_speed: 1e3,
+            max_stamp: 1e10,
+            max_plan_points: 100_000,
+            plan_step: 0.5,
+        }
     }
 }
+
+/// Largest angle magnitude (rad) accepted: a yaw is an angle, not a counter of turns.
+const MAX_ANGLE: f64 = 1e4;
+/// Largest covariance entry magnitude (m^2, rad^2): beyond it determinants overflow.
+const MAX_COV: f64 = 1e12;
 
 /// Decodes a JSON message of the given kind and validates it.
 pub fn decode_json(kind: MsgKind, text: &str, limits: &Limits) -> Result<Msg, Reject> {
     fn parse<'a, T: Deserialize<'a>>(text: &'a str) -> Result<T, Reject> {
-        serde_json::from_str(text).map_err(|e| Reject::from_json(&e))
+        serde_json::from_str::<strict::Object<T>>(text).map(|o| o.0).map_err(|e| Reject::from_json(&e))
     }
     let msg = match kind {
         MsgKind::Objects => Msg::Objects(parse(text)?),
@@ -467,61 +577,122 @@ fn finite(name: &str, v: f64) -> Result<(), Reject> {
     }
 }
 
-fn finite_opt(name: &str, v: Option<f64>) -> Result<(), Reject> {
-    v.map_or(Ok(()), |v| finite(name, v))
+/// A finite value of magnitude at most `bound`.
+fn within(name: &str, v: f64, bound: f64) -> Result<(), Reject> {
+    finite(name, v)?;
+    if v.abs() <= bound {
+        Ok(())
+    } else {
+        Err(Reject::OutOfRange(format!("{name} = {v:e} beyond {bound:e}")))
+    }
 }
 
-fn finite_all(name: &str, vs: &[f64]) -> Result<(), Reject> {
-    vs.iter().try_for_each(|&v| finite(name, v))
+fn within_opt(name: &str, v: Option<f64>, bound: f64) -> Result<(), Reject> {
+    v.map_or(Ok(()), |v| within(name, v, bound))
 }
 
-/// Checks the rules of SPEC §2 that serde cannot: finite numbers, unique ids, shapes,
-/// covariance sanity, size limits.
+fn within_all(name: &str, vs: &[f64], bound: f64) -> Result<(), Reject> {
+    vs.iter().try_for_each(|&v| within(name, v, bound))
+}
+
+/// A finite size in (0, bound].
+fn size(name: &str, v: f64, bound: f64, bad: impl Fn(String) -> Reject) -> Result<f64, Reject> {
+    within(name, v, bound)?;
+    if v > 0.0 {
+        Ok(v)
+    } else {
+        Err(bad(format!("{name} = {v} is not > 0")))
+    }
+}
+
+/// Checks a stamp or arrival time against `limits.max_stamp_s`.
+pub fn check_time(name: &str, v: f64, limits: &Limits) -> Result<(), Reject> {
+    finite(name, v)?;
+    if v.abs() <= limits.max_stamp {
+        Ok(())
+    } else if name == "recv" {
+        Err(Reject::ImplausibleRecv(format!("recv = {v:e} beyond {:e} s", limits.max_stamp)))
+    } else {
+        Err(Reject::ImplausibleStamp(format!("{name} = {v:e} beyond {:e} s", limits.max_stamp)))
+    }
+}
+
+/// Checks the rules of SPEC §2 that serde cannot (finite numbers, unique ids, shapes,
+/// covariance sanity, size limits) and the plausibility bounds of [`Limits`].
 pub fn validate(msg: &Msg, limits: &Limits) -> Result<(), Reject> {
-    finite("stamp", msg.stamp())?;
+    check_time("stamp", msg.stamp(), limits)?;
+    let (xy, len, speed) = (limits.max_coordinate, limits.max_size, limits.max_speed);
     match msg {
         Msg::Objects(set) => {
             if set.objects.len() > limits.max_objects {
                 return Err(Reject::TooManyObjects(set.objects.len(), limits.max_objects));
             }
             for o in &set.objects {
-                finite("x", o.x)?;
-                finite("y", o.y)?;
-                finite_opt("vx", o.vx)?;
-                finite_opt("vy", o.vy)?;
-                finite_opt("yaw", o.yaw)?;
-                finite_opt("length", o.length)?;
-                finite_opt("width", o.width)?;
+                within("x", o.x, xy)?;
+                within("y", o.y, xy)?;
+                within_opt("vx", o.vx, speed)?;
+                within_opt("vy", o.vy, speed)?;
+                within_opt("yaw", o.yaw, MAX_ANGLE)?;
+                if let Some(l) = o.length {
+                    size("length", l, len, Reject::BadSize)?;
+                }
+                if let Some(w) = o.width {
+                    size("width", w, len, Reject::BadSize)?;
+                }
                 if let Some(c) = &o.cov {
-                    finite_all("cov", c)?;
+                    within_all("cov", c, MAX_COV)?;
                     check_cov2(c)?;
                 }
             }
             check_unique(set.objects.iter().map(|o| o.id))?;
         }
         Msg::Pose(p) => {
-            finite_all("pose", &[p.x, p.y, p.yaw])?;
-            finite_opt("v", p.v)?;
+            within_all("pose", &[p.x, p.y], xy)?;
+            within("yaw", p.yaw, MAX_ANGLE)?;
+            within_opt("v", p.v, speed)?;
             if let Some(c) = &p.cov {
-                finite_all("cov", c)?;
+                within_all("cov", c, MAX_COV)?;
             }
         }
         Msg::Path(p) => {
             for q in p.poses.iter().chain(p.goal.iter()) {
-                finite_all("poses", &[q.x, q.y])?;
-                finite_opt("yaw", q.yaw)?;
+                within_all("poses", &[q.x, q.y], xy)?;
+                within_opt("yaw", q.yaw, MAX_ANGLE)?;
             }
-            finite_opt("compute_s", p.compute_s)?;
+            within_opt("compute_s", p.compute_s, limits.max_stamp)?;
+            check_plan_points(p, limits)?;
         }
         Msg::Obstacles(set) => {
             if set.obstacles.len() > limits.max_objects {
                 return Err(Reject::TooManyObjects(set.obstacles.len(), limits.max_objects));
             }
             for o in &set.obstacles {
-                check_obstacle(o)?;
+                check_obstacle(o, limits)?;
             }
             check_unique(set.obstacles.iter().map(|o| o.id))?;
         }
+    }
+    Ok(())
+}
+
+/// A plan's points once densified: its poses and its length over the step. The count is
+/// what every per-plan computation (densification, swept clearance, deviation) is
+/// proportional to, so bounding it bounds a plan's cost.
+fn check_plan_points(p: &Path, limits: &Limits) -> Result<(), Reject> {
+    let n = p.poses.len();
+    if n > limits.max_plan_points {
+        return Err(Reject::PlanTooLong(format!(
+            "{n} poses > limits.max_plan_points = {}",
+            limits.max_plan_points
+        )));
+    }
+    let length: f64 = p.poses.windows(2).map(|w| (w[1].x - w[0].x).hypot(w[1].y - w[0].y)).sum();
+    let points = n as f64 + length / limits.plan_step;
+    if points > limits.max_plan_points as f64 {
+        return Err(Reject::PlanTooLong(format!(
+            "{length:.1} m at {} m a point with {n} poses is {points:.0} points > limits.max_plan_points = {}",
+            limits.plan_step, limits.max_plan_points
+        )));
     }
     Ok(())
 }
@@ -549,38 +720,36 @@ fn check_unique(ids: impl Iterator<Item = u64>) -> Result<(), Reject> {
     }
 }
 
-fn check_obstacle(o: &Obstacle) -> Result<(), Reject> {
+fn check_obstacle(o: &Obstacle, limits: &Limits) -> Result<(), Reject> {
+    let (xy, len) = (limits.max_coordinate, limits.max_size);
     let need = |name: &str, v: Option<f64>| -> Result<f64, Reject> {
-        let v = v.ok_or_else(|| Reject::BadObstacle(format!("obstacle {} needs {name}", o.id)))?;
-        finite(name, v)?;
-        Ok(v)
+        v.ok_or_else(|| Reject::BadObstacle(format!("obstacle {} needs {name}", o.id)))
     };
-    finite_opt("yaw", o.yaw)?;
+    let bad = |why: String| Reject::BadObstacle(format!("obstacle {}: {why}", o.id));
+    within_opt("yaw", o.yaw, MAX_ANGLE)?;
     match o.shape {
         Shape::Circle => {
-            need("x", o.x)?;
-            need("y", o.y)?;
-            if need("radius", o.radius)? < 0.0 {
-                return Err(Reject::BadObstacle(format!("obstacle {}: negative radius", o.id)));
+            within("x", need("x", o.x)?, xy)?;
+            within("y", need("y", o.y)?, xy)?;
+            let r = need("radius", o.radius)?;
+            within("radius", r, len)?;
+            if r < 0.0 {
+                return Err(bad("negative radius".into()));
             }
         }
         Shape::Box => {
-            need("x", o.x)?;
-            need("y", o.y)?;
-            if need("length", o.length)? < 0.0 || need("width", o.width)? < 0.0 {
-                return Err(Reject::BadObstacle(format!("obstacle {}: negative size", o.id)));
-            }
+            within("x", need("x", o.x)?, xy)?;
+            within("y", need("y", o.y)?, xy)?;
+            size("length", need("length", o.length)?, len, bad)?;
+            size("width", need("width", o.width)?, len, bad)?;
         }
         Shape::Polygon => {
-            let pts = o
-                .points
-                .as_ref()
-                .ok_or_else(|| Reject::BadObstacle(format!("obstacle {} needs points", o.id)))?;
-            if pts.is_empty() {
-                return Err(Reject::BadObstacle(format!("obstacle {}: no points", o.id)));
+            let pts = o.points.as_ref().ok_or_else(|| bad("needs points".into()))?;
+            if pts.len() < 3 {
+                return Err(bad(format!("a polygon needs at least 3 vertices, found {}", pts.len())));
             }
             for p in pts {
-                finite_all("points", p)?;
+                within_all("points", p, xy)?;
             }
         }
     }
@@ -671,7 +840,7 @@ mod tests {
 
     #[test]
     fn object_limit_applies() {
-        let l = Limits { max_objects: 1 };
+        let l = Limits { max_objects: 1, ..Limits::default() };
         let t = r#"{"stamp": 1, "objects": [{"id": 1, "x": 1, "y": 2}, {"id": 2, "x": 3, "y": 4}]}"#;
         assert_eq!(decode_json(MsgKind::Objects, t, &l).unwrap_err().code(), "too_many_objects");
     }

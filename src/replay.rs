@@ -222,7 +222,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
                     splice_plan_jobs(&batch, &jobs, &mut spliced);
                     std::mem::swap(&mut batch, &mut spliced);
                 }
-                sink.consume(&batch, &mut events);
+                sink.consume(&mut batch, &mut events);
                 if write_err.is_none() {
                     let out = (&mut on_samples, &mut series, &mut text, &mut ryu_buf);
                     write_err = emit(&batch, &mut events, out, false).err();

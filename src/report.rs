@@ -24,6 +24,8 @@ pub struct RunStats {
     slots: Vec<Option<Summary>>,
     cap: usize,
     digits: u8,
+    /// Samples whose value was not a finite number, dropped before anything saw them.
+    pub non_finite: u64,
 }
 
 impl RunStats {
@@ -33,6 +35,7 @@ impl RunStats {
             slots: vec![None; Metric::ALL.len() * SLOTS],
             cap: cfg.report.exact_values,
             digits: cfg.report.histogram_digits,
+            non_finite: 0,
         }
     }
 
@@ -150,6 +153,9 @@ pub struct Records {
     pub object_states: u64,
     /// A damaged binary tail.
     pub tail: Option<Tail>,
+    /// Metric values that came out non-finite and were dropped (none should: every input
+    /// is bounded; this counts what the last line of defence caught).
+    pub non_finite_samples: u64,
 }
 
 /// How percentiles were computed.
@@ -278,6 +284,7 @@ impl Report {
                 first_rejected: inputs.first_rejected,
                 object_states: c.object_states,
                 tail: inputs.tail,
+                non_finite_samples: stats.non_finite,
             },
             metrics,
             totals,

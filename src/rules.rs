@@ -94,7 +94,12 @@ pub struct Rule {
 }
 
 impl Rule {
+    /// Whether a statistic breaks the rule. A statistic that is not a number never
+    /// passes: NaN compares false both ways, which would make it a silent pass.
     fn breaches(&self, v: f64) -> bool {
+        if !v.is_finite() {
+            return true;
+        }
         if self.above {
             v > self.threshold
         } else {
@@ -102,7 +107,15 @@ impl Rule {
         }
     }
 
+    /// The worse of two statistics; a non-finite one is the worst of all (`f64::max`
+    /// would drop a NaN).
     fn worse(&self, a: f64, b: f64) -> f64 {
+        if !a.is_finite() {
+            return a;
+        }
+        if !b.is_finite() {
+            return b;
+        }
         if self.above {
             a.max(b)
         } else {

@@ -148,27 +148,20 @@ fn a_100_mb_line_is_rejected_with_its_line_number_and_the_rest_replays() {
     assert!(sa == sb);
 }
 
-/// Estimated poses with duplicate stamps, stamps going back, and an arrival clock that jumps
-/// back 1000 s and forward 1e6 s: all counted, none rejected, every step accounted for.
-#[test]
-fn stamp_disorder_and_clock_jumps_are_counted_and_the_run_goes_on() {
-    let cfg = Config::defaults();
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("disorder.jsonl");
-    let mut lines = Vec::new();
+/// Poses at 10 Hz for 0..20 s whose arrival clock jumps back by `back` s at 10 s and
+/// forward by `fwd` s at 15 s; the estimates carry a duplicate stamp and one going back.
+fn disorder_log(path: &Path, back: f64, fwd: f64) -> Vec<f64> {
     let pose = |key: &str, stamp: f64, recv: f64| {
         format!(r#"{{"key":"rig/{key}","recv":{recv},"msg":{{"stamp":{stamp},"x":{stamp},"y":0,"yaw":0}}}}"#)
     };
-    // Reference at 10 Hz for 0..20 s (arrivals on time).
-    let mut recv_jump = 0.0;
-    let mut est_stamps = Vec::new();
+    let (mut lines, mut est_stamps, mut recv_jump) = (Vec::new(), Vec::new(), 0.0);
     for k in 0..=200 {
         let t = k as f64 * 0.1;
         if k == 100 {
-            recv_jump = -1000.0; // the monitor's clock jumps back
+            recv_jump = -back; // the monitor's clock jumps back
         }
         if k == 150 {
-            recv_jump = 1e6; // and far forward
+            recv_jump = fwd; // and forward
         }
         lines.push(pose("reference/ego", t, t + recv_jump));
         let stamp = match k {
@@ -179,10 +172,27 @@ fn stamp_disorder_and_clock_jumps_are_counted_and_the_run_goes_on() {
         est_stamps.push(stamp);
         lines.push(pose("estimate/ego", stamp, t + 0.06 + recv_jump));
     }
-    write(&path, &lines);
+    write(path, &lines);
+    est_stamps
+}
+
+/// Duplicate stamps, a stamp going back, and an arrival clock that jumps back 30 s and
+/// forward 300 s (inside `limits.max_stamp_lead_s` = 60 s for the first, a confirmed jump
+/// for the second): counted, the one message that announced the jump held as
+/// `implausible_recv`, every other step accounted for.
+#[test]
+fn stamp_disorder_and_clock_jumps_are_counted_and_the_run_goes_on() {
+    let cfg = Config::defaults();
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("disorder.jsonl");
+    let est_stamps = disorder_log(&path, 30.0, 300.0);
     let (r, samples) = run(&cfg, &path);
     let rep = &r.report;
-    assert_eq!(rep.records.rejected, 0);
+    // The first record after the forward jump (a reference pose) is held; the estimate
+    // that follows it agrees with the jump and confirms it.
+    assert_eq!(rep.records.rejected, 1, "{:?}", rep.records.rejected_by_reason);
+    assert_eq!(rep.records.rejected_by_reason.get("implausible_recv"), Some(&1));
+    assert_eq!(rep.transport["reference/ego"].decode_errors, 1);
     // Regressions: k = 51 (5.0 after 5.0 is not older: no), k = 50 (5.0 after 4.95: no),
     // k = 52 (5.25 after 5.0: no); k = 70 (6.5 after 6.95: yes). Only strictly older counts.
     let want = est_stamps.windows(2).filter(|w| w[1] < w[0]).count() as u64;
@@ -193,7 +203,7 @@ fn stamp_disorder_and_clock_jumps_are_counted_and_the_run_goes_on() {
     let ego = &rep.steps.ego;
     assert_eq!(ego.evaluated + ego.skipped, 201, "{ego:?}");
     assert!(ego.evaluated >= 190, "{ego:?}");
-    // The latency samples carry the jump, as they should: the clocks disagreed.
+    // The latency samples carry the jumps, as they should: the clocks disagreed.
     let lat: Vec<f64> = samples
         .iter()
         .filter(|s| {
@@ -203,5 +213,25 @@ fn stamp_disorder_and_clock_jumps_are_counted_and_the_run_goes_on() {
         .map(|s| s.value)
         .collect();
     assert_eq!(lat.len(), 201);
-    assert!(lat.iter().any(|&l| l < -900.0) && lat.iter().any(|&l| l > 9e5));
+    assert!(lat.iter().any(|&l| l < -25.0) && lat.iter().any(|&l| l > 250.0));
+}
+
+/// An arrival clock 1000 s behind the stamps makes every latency absurd: those records are
+/// rejected as `implausible_stamp` (a stamp ahead of its own recv by more than
+/// `limits.max_stamp_lead_s`), and never move the clock the waits are measured on.
+#[test]
+fn stamps_far_ahead_of_their_recv_are_rejected_as_implausible() {
+    let cfg = Config::defaults();
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("disorder.jsonl");
+    disorder_log(&path, 1000.0, 1e6);
+    let (r, samples) = run(&cfg, &path);
+    let rep = &r.report;
+    // k = 100..149: 50 records per role stamped 1000 s ahead of their arrival; k = 150: the
+    // jump of 1e6 s held once, then confirmed.
+    assert_eq!(rep.records.rejected_by_reason.get("implausible_stamp"), Some(&100), "{:?}", rep.records);
+    assert_eq!(rep.records.rejected_by_reason.get("implausible_recv"), Some(&1), "{:?}", rep.records);
+    assert_eq!(rep.steps.ego.evaluated + rep.steps.ego.skipped, 151);
+    let lat = samples.iter().filter(|s| s.metric == plumbline::metrics::Metric::Latency);
+    assert!(lat.clone().all(|s| s.value > -60.0), "no latency below -max_stamp_lead_s");
 }

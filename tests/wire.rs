@@ -188,7 +188,7 @@ fn role_of(cfg: &Config) -> impl Fn(&str) -> Option<Role> + '_ {
 /// direct one reads the line, serde_json reads it too, to the same record (bit for bit, so
 /// -0.0 and 0.0 differ) or the same rejection.
 fn agree(cfg: &Config, line: &[u8]) -> Option<bool> {
-    let limits = Limits { max_objects: usize::MAX };
+    let limits = Limits { max_objects: usize::MAX, ..Limits::default() };
     let fast = wire::json::record(line, role_of(cfg))?;
     let slow = decode_line_serde(cfg, &limits, line);
     Some(match (validate(&fast.1.msg, &limits), slow) {
@@ -352,7 +352,7 @@ proptest! {
     #[test]
     fn json_lines_read_as_serde_json_reads_them(line in line_json()) {
         let cfg = Config::defaults();
-        let slow_ok = decode_line_serde(&cfg, &Limits { max_objects: usize::MAX }, line.as_bytes()).is_ok();
+        let slow_ok = decode_line_serde(&cfg, &Limits { max_objects: usize::MAX, ..Limits::default() }, line.as_bytes()).is_ok();
         match agree(&cfg, line.as_bytes()) {
             Some(same) => prop_assert!(same, "the readers differ on {}", line),
             None => prop_assert!(!slow_ok, "a well-formed line left to serde: {}", line),

@@ -8,7 +8,7 @@ const KINDS: [MsgKind; 4] = [MsgKind::Objects, MsgKind::Pose, MsgKind::Path, Msg
 
 fuzz_target!(|data: &[u8]| {
     let Some((&k, rest)) = data.split_first() else { return };
-    let limits = Limits { max_objects: 64 };
+    let limits = Limits { max_objects: 64, ..Limits::default() };
     let text = String::from_utf8_lossy(rest);
     if let Ok(m) = decode_json(KINDS[k as usize % 4], &text, &limits) {
         assert!(validate(&m, &limits).is_ok());

@@ -8,7 +8,7 @@ const KINDS: [MsgKind; 4] = [MsgKind::Objects, MsgKind::Pose, MsgKind::Path, Msg
 
 fuzz_target!(|data: &[u8]| {
     let Some((&k, rest)) = data.split_first() else { return };
-    let limits = Limits { max_objects: 64 };
+    let limits = Limits { max_objects: 64, ..Limits::default() };
     if let Ok(m) = decode_postcard(KINDS[k as usize % 4], rest, &limits) {
         assert!(validate(&m, &limits).is_ok());
     }

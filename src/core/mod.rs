@@ -51,6 +51,10 @@ pub struct TrackingParams {
     pub ego_source: EgoSource,
     /// forget ids unseen this long (s)
     pub forget_after: f64,
+    /// Largest assignment component (rows x columns) solved exactly; a larger one, or a
+    /// step with more candidate pairs than [`crate::core::assign::MAX_EDGES_PER_CELL`]
+    /// times this, is assigned greedily (a valid upper bound, counted as `approximate`).
+    pub exact_cells: usize,
 }
 
 impl TrackingParams {
@@ -78,7 +82,15 @@ impl TrackingParams {
         if forget_after.is_nan() || forget_after <= 0.0 {
             return Err(perr("forget_after", "a positive duration"));
         }
-        Ok(TrackingParams { cutoff, order, alpha, region, ego_source, forget_after })
+        Ok(TrackingParams {
+            cutoff,
+            order,
+            alpha,
+            region,
+            ego_source,
+            forget_after,
+            exact_cells: EXACT_CELLS,
+        })
     }
 }
 
@@ -91,9 +103,13 @@ impl Default for TrackingParams {
             region: 0.0,
             ego_source: EgoSource::Reference,
             forget_after: 300.0,
+            exact_cells: EXACT_CELLS,
         }
     }
 }
+
+/// Default of `limits.exact_assignment_cells`: a 700 x 700 component.
+pub const EXACT_CELLS: usize = 490_000;
 
 /// Clearance and path-quality parameters (SPEC §5).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -134,6 +150,9 @@ impl Default for ClearanceParams {
     }
 }
 
+/// Default of `limits.max_stamp_lead_s`.
+pub const MAX_STAMP_LEAD: f64 = 60.0;
+
 /// Time alignment parameters (SPEC §4).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct AlignParams {
@@ -147,6 +166,9 @@ pub struct AlignParams {
     pub pending_steps: usize,
     /// Messages kept per buffer; beyond, the oldest is dropped and counted.
     pub buffer_messages: usize,
+    /// How far (s) a message's time may run ahead of the arrival clock, or a stamp ahead
+    /// of its own `recv`, before it is held as implausible (`limits.max_stamp_lead_s`).
+    pub max_stamp_lead: f64,
 }
 
 impl AlignParams {
@@ -173,12 +195,26 @@ impl AlignParams {
         if buffer_messages < 2 {
             return Err(perr("limits.buffer_messages", "at least 2"));
         }
-        Ok(AlignParams { max_wait, tolerance, retain, pending_steps, buffer_messages })
+        Ok(AlignParams {
+            max_wait,
+            tolerance,
+            retain,
+            pending_steps,
+            buffer_messages,
+            max_stamp_lead: MAX_STAMP_LEAD,
+        })
     }
 }
 
 impl Default for AlignParams {
     fn default() -> Self {
-        AlignParams { max_wait: 0.5, tolerance: 0.1, retain: 2.0, pending_steps: 4096, buffer_messages: 4096 }
+        AlignParams {
+            max_wait: 0.5,
+            tolerance: 0.1,
+            retain: 2.0,
+            pending_steps: 4096,
+            buffer_messages: 4096,
+            max_stamp_lead: MAX_STAMP_LEAD,
+        }
     }
 }

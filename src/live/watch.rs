@@ -88,13 +88,18 @@ pub fn run(
     for (role, key) in &cfg.roles {
         let (role, tx, dropped, c, q) = (*role, tx.clone(), dropped.clone(), cfg.clone(), queued.clone());
         let qo = queued_objects.clone();
+        let bound = zenoh::key_expr::KeyExpr::try_from(key.clone())
+            .map_err(|e| format!("roles.{}: {key} is not a key expression: {e}", role.name()))?;
         let sub = session
             .declare_subscriber(key.as_str())
             .callback(move |sample| {
                 let recv = wall_now();
-                let payload = sample.payload().to_bytes();
-                let rec =
-                    zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv);
+                let rec = if zenoh_io::is_role_data(&bound, sample.key_expr()) {
+                    let payload = sample.payload().to_bytes();
+                    zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv)
+                } else {
+                    Err(Reject::UnboundKey(sample.key_expr().to_string()))
+                };
                 let n = weight(&rec);
                 if qo.fetch_add(n, Ordering::Relaxed) + n > object_budget {
                     qo.fetch_sub(n, Ordering::Relaxed);

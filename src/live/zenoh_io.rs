@@ -16,9 +16,38 @@ pub fn postcard_encoding() -> Encoding {
     Encoding::APPLICATION_OCTET_STREAM.with_schema(POSTCARD_SCHEMA)
 }
 
-/// Whether an encoding is the project's postcard one (anything else is read as JSON).
-pub fn is_postcard(e: &Encoding) -> bool {
-    e.to_string().ends_with(POSTCARD_SCHEMA)
+/// The two forms a role's payload may take (SPEC §2).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PayloadForm {
+    /// `application/json` or `text/json` (any schema such as `charset=utf-8`).
+    Json,
+    /// `application/octet-stream;plumbline-postcard`.
+    Postcard,
+}
+
+/// Which form an encoding's text (`base[;schema]`, as zenoh prints it) names, if either.
+/// Anything else (`text/plain`, bare `application/octet-stream`, zenoh's default
+/// `zenoh/bytes` when the publisher set none) is neither and is rejected as
+/// `bad_encoding`: reading it as JSON would guess.
+pub fn payload_form(encoding: &str) -> Option<PayloadForm> {
+    let (base, schema) = encoding.split_once(';').unwrap_or((encoding, ""));
+    match base {
+        "application/json" | "text/json" => Some(PayloadForm::Json),
+        "application/octet-stream" if schema == POSTCARD_SCHEMA => Some(PayloadForm::Postcard),
+        _ => None,
+    }
+}
+
+/// Whether a sample's key is role data for a role bound to `bound`: a concrete key (no
+/// wildcard) that the binding includes, which for a binding without wildcards means the
+/// same key. A put on `rig/**` reaches every subscriber it intersects; it is none of
+/// theirs, and never recorded as role data.
+pub fn is_role_data(bound: &zenoh::key_expr::KeyExpr<'_>, key: &zenoh::key_expr::KeyExpr<'_>) -> bool {
+    let k = key.as_str();
+    if k == bound.as_str() {
+        return true;
+    }
+    !(k.contains('*') || k.contains("$*")) && bound.includes(key)
 }
 
 /// Opens a zenoh session as the config says (`[zenoh]`: mode, connect, listen, scouting, or
@@ -59,11 +88,14 @@ pub fn decode(
     recv: f64,
 ) -> Result<LogRecord, Reject> {
     let limits = cfg.limits();
-    let msg: Msg = if is_postcard(encoding) {
-        decode_postcard(role.kind(), payload, &limits)?
-    } else {
-        let text = std::str::from_utf8(payload).map_err(|e| Reject::Malformed(e.to_string()))?;
-        decode_json(role.kind(), text, &limits)?
+    let enc = encoding.to_string();
+    let msg: Msg = match payload_form(&enc) {
+        Some(PayloadForm::Postcard) => decode_postcard(role.kind(), payload, &limits)?,
+        Some(PayloadForm::Json) => {
+            let text = std::str::from_utf8(payload).map_err(|e| Reject::Malformed(e.to_string()))?;
+            decode_json(role.kind(), text, &limits)?
+        }
+        None => return Err(Reject::BadEncoding(enc)),
     };
     Ok(LogRecord { key: key.to_string(), recv: Some(recv), msg })
 }
@@ -75,6 +107,36 @@ pub fn wall_now() -> f64 {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
+
+    #[test]
+    fn only_json_and_the_postcard_encoding_are_read() {
+        assert_eq!(payload_form(&Encoding::APPLICATION_JSON.to_string()), Some(PayloadForm::Json));
+        assert_eq!(payload_form("application/json;charset=utf-8"), Some(PayloadForm::Json));
+        assert_eq!(payload_form(&Encoding::TEXT_JSON.to_string()), Some(PayloadForm::Json));
+        assert_eq!(payload_form(&postcard_encoding().to_string()), Some(PayloadForm::Postcard));
+        for other in [
+            Encoding::TEXT_PLAIN.to_string(),
+            Encoding::APPLICATION_OCTET_STREAM.to_string(),
+            Encoding::ZENOH_BYTES.to_string(),
+            Encoding::APPLICATION_OCTET_STREAM.with_schema("other").to_string(),
+        ] {
+            assert_eq!(payload_form(&other), None, "{other}");
+        }
+    }
+
+    #[test]
+    fn wildcard_puts_are_not_role_data() {
+        let ke = |s: &str| zenoh::key_expr::KeyExpr::try_from(s.to_string()).unwrap();
+        let bound = ke("rig/reference/objects");
+        assert!(is_role_data(&bound, &ke("rig/reference/objects")));
+        assert!(!is_role_data(&bound, &ke("rig/**")));
+        assert!(!is_role_data(&bound, &ke("rig/*/objects")));
+        let wide = ke("fleet/*/reference/objects");
+        assert!(is_role_data(&wide, &ke("fleet/car1/reference/objects")));
+        assert!(!is_role_data(&wide, &ke("fleet/*/reference/objects")));
+    }
+
     #[test]
     fn the_shipped_secure_config_parses_as_a_zenoh_config() {
         let p = concat!(env!("CARGO_MANIFEST_DIR"), "/config/zenoh-secure.json5");

@@ -14,7 +14,8 @@ use super::chunks::{Chunk, Frame, LineFramer, MAX_LINE};
 use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome};
 use crate::config::Config;
 use crate::msg::{
-    self, decode_json, validate, Limits, Msg, MsgKind, ObjectSet, ObstacleSet, Pose, Reject, Role,
+    self, check_time, decode_json, strict, validate, Limits, Msg, MsgKind, ObjectSet, ObstacleSet, Pose,
+    Reject, Role,
 };
 
 /// A string borrowed from the line when it has no escapes.
@@ -46,10 +47,10 @@ impl<'de> DeserializeSeed<'de> for MsgSeed {
     type Value = Msg;
     fn deserialize<D: Deserializer<'de>>(self, d: D) -> Result<Msg, D::Error> {
         Ok(match self.0 {
-            MsgKind::Objects => Msg::Objects(ObjectSet::deserialize(d)?),
-            MsgKind::Pose => Msg::Pose(Pose::deserialize(d)?),
-            MsgKind::Path => Msg::Path(msg::Path::deserialize(d)?),
-            MsgKind::Obstacles => Msg::Obstacles(ObstacleSet::deserialize(d)?),
+            MsgKind::Objects => Msg::Objects(strict::object::<_, ObjectSet>(d)?),
+            MsgKind::Pose => Msg::Pose(strict::object::<_, Pose>(d)?),
+            MsgKind::Path => Msg::Path(strict::object::<_, msg::Path>(d)?),
+            MsgKind::Obstacles => Msg::Obstacles(strict::object::<_, ObstacleSet>(d)?),
         })
     }
 }
@@ -89,17 +90,17 @@ impl<'de> Visitor<'de> for LineSeed<'_> {
         let mut out = Parsed { key: None, recv: None, body: None };
         while let Some(k) = map.next_key::<Text<'de>>()? {
             match &*k.0 {
-                "key" => out.key = Some(map.next_value()?),
+                "key" => {
+                    let k: Text<'de> = map.next_value()?;
+                    // From here on an error belongs to the key's role (a bad `recv` too).
+                    self.decoding.set(role_for(self.cfg, &[], &k.0));
+                    out.key = Some(k);
+                }
                 "recv" => out.recv = map.next_value()?,
                 "msg" => {
                     let role = out.key.as_ref().and_then(|k| role_for(self.cfg, &[], &k.0));
                     out.body = Some(match role {
-                        Some(role) => {
-                            self.decoding.set(Some(role));
-                            let m = map.next_value_seed(MsgSeed(role.kind()))?;
-                            self.decoding.set(None);
-                            Body::Typed(role, m)
-                        }
+                        Some(role) => Body::Typed(role, map.next_value_seed(MsgSeed(role.kind()))?),
                         None => Body::Raw(map.next_value()?),
                     });
                 }
@@ -123,6 +124,9 @@ pub fn decode_line(
     match crate::wire::json::record(line, |k| role_for(cfg, &[], k)) {
         Some((role, rec)) => {
             validate(&rec.msg, limits).map_err(|e| (Some(role), e))?;
+            if let Some(r) = rec.recv {
+                check_time("recv", r, limits).map_err(|e| (Some(role), e))?;
+            }
             Ok((role, rec))
         }
         None => decode_line_serde(cfg, limits, line),
@@ -141,13 +145,12 @@ pub fn decode_line_serde(
     let parsed = LineSeed { cfg, decoding: &decoding }
         .deserialize(&mut de)
         .and_then(|p| de.end().map(|_| p))
-        .map_err(|e| (decoding.get(), Reject::from_json(&e)))?;
+        .map_err(|e| (decoding.get().or_else(|| key_role(cfg, text)), Reject::from_json(&e)))?;
     let key = parsed.key.ok_or_else(|| (None, Reject::MissingField("key".into())))?.0;
-    let body = parsed.body.ok_or_else(|| (None, Reject::MissingField("msg".into())))?;
+    let key_role = role_for(cfg, &[], &key);
+    let body = parsed.body.ok_or_else(|| (key_role, Reject::MissingField("msg".into())))?;
     if let Some(r) = parsed.recv {
-        if !r.is_finite() {
-            return Err((None, Reject::NonFinite("recv".into())));
-        }
+        check_time("recv", r, limits).map_err(|e| (key_role, e))?;
     }
     let (role, msg) = match body {
         Body::Typed(role, msg) => (role, msg),
@@ -159,6 +162,18 @@ pub fn decode_line_serde(
     };
     validate(&msg, limits).map_err(|e| (Some(role), e))?;
     Ok((role, LogRecord { key: key.into_owned(), recv: parsed.recv, msg }))
+}
+
+/// The role of a rejected line whose key is readable: a second, lenient pass that reads
+/// only `key` and skips every other field whatever its type (the error path only).
+fn key_role(cfg: &Config, text: &str) -> Option<Role> {
+    #[derive(Deserialize)]
+    struct KeyOnly<'a> {
+        #[serde(borrow)]
+        key: Cow<'a, str>,
+    }
+    let k: KeyOnly<'_> = serde_json::from_str(text).ok()?;
+    role_for(cfg, &[], &k.key)
 }
 
 /// Decodes a chunk of whole lines.

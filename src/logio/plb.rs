@@ -19,7 +19,7 @@ use serde::{Deserialize, Serialize};
 use super::chunks::{Chunk, Frame, RecordFramer};
 use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome, Tail};
 use crate::config::Config;
-use crate::msg::{validate, Limits, Reject};
+use crate::msg::{check_time, validate, Limits, Reject};
 
 /// File magic.
 pub const MAGIC: &[u8; 8] = b"PLUMBLOG";
@@ -197,8 +197,8 @@ fn decode_record(
     if let Err(reason) = validate(&rec.msg, limits) {
         return bad(reason);
     }
-    if rec.recv.is_some_and(|v| !v.is_finite()) {
-        return bad(Reject::NonFinite("recv".into()));
+    if let Some(Err(e)) = rec.recv.map(|v| check_time("recv", v, limits)) {
+        return bad(e);
     }
     Item::Record { role, rec }
 }

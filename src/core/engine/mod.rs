@@ -227,6 +227,8 @@ pub struct Engine {
     tracks: VecDeque<Pending<Arc<PointSet>>>,
     egos: VecDeque<Pending<Pose>>,
     now: f64,
+    /// A message time far ahead of the arrival clock, waiting for a second to confirm it.
+    held_jump: Option<f64>,
     last_track_t: Option<f64>,
     last_ego_t: Option<f64>,
     transport: [Transport; 6],
@@ -258,6 +260,7 @@ impl Engine {
             tracks: VecDeque::new(),
             egos: VecDeque::new(),
             now: f64::NEG_INFINITY,
+            held_jump: None,
             last_track_t: None,
             last_ego_t: None,
             transport: Default::default(),
@@ -330,8 +333,56 @@ impl Engine {
                 }
             }
             Input::Dropped { role } => self.transport[role.index()].dropped += 1,
-            Input::Message { role, recv, msg } => self.message(role, recv, msg.into(), out),
-            Input::Prepared { role, recv, msg } => self.message(role, recv, msg, out),
+            Input::Message { role, recv, msg } => {
+                if self.admit(role, msg.stamp(), recv) {
+                    self.message(role, recv, msg.into(), out)
+                }
+            }
+            Input::Prepared { role, recv, msg } => {
+                if self.admit(role, msg.stamp(), recv) {
+                    self.message(role, recv, msg, out)
+                }
+            }
+        }
+    }
+
+    /// The time rules a single message cannot be judged by alone: a stamp more than
+    /// `limits.max_stamp_lead_s` ahead of its own `recv`, and a message time (`recv`, or
+    /// the stamp without one) that far ahead of the arrival clock. A real jump of the
+    /// clock is confirmed by the next message that agrees with it (within the same lead)
+    /// and costs that one message; a lone outlier (one record stamped 1e9 in a run at
+    /// 100 s) is rejected and never moves the clock that every wait is measured on.
+    /// Rejected messages are counted under `implausible_stamp` / `implausible_recv`.
+    fn admit(&mut self, role: Role, stamp: f64, recv: Option<f64>) -> bool {
+        let lead = self.ap.max_stamp_lead;
+        let reason = if recv.is_some_and(|r| stamp - r > lead) {
+            Some("implausible_stamp")
+        } else {
+            let t = recv.unwrap_or(stamp);
+            let why = if recv.is_some() { "implausible_recv" } else { "implausible_stamp" };
+            if self.now.is_finite() && t > self.now + lead {
+                match self.held_jump {
+                    Some(j) if (t - j).abs() <= lead => {
+                        self.held_jump = None;
+                        None
+                    }
+                    _ => {
+                        self.held_jump = Some(t);
+                        Some(why)
+                    }
+                }
+            } else {
+                // A message in line with the clock: a held jump was a lone outlier.
+                self.held_jump = None;
+                None
+            }
+        };
+        match reason {
+            None => true,
+            Some(reason) => {
+                self.push(Input::Rejected { role: Some(role), reason }, &mut Vec::new());
+                false
+            }
         }
     }
 
