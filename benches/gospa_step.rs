@@ -3,7 +3,7 @@
 //! component) and mostly-sparse scenes (estimates near their own object only).
 
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
-use plumbline::core::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+use plumbline::core::assign::{match_bounded, match_with_cutoff, MatchScratch, ShortestPath};
 use plumbline::metrics::{gospa, ospa};
 use rand::{Rng, SeedableRng};
 
@@ -37,6 +37,28 @@ fn bench(c: &mut Criterion) {
             });
         }
     }
+    // limits.max_objects (10,000) per side in one 3 m cluster: one component of 10^8
+    // candidate pairs, assigned greedily past the edge budget (target: under 200 ms).
+    let (xs, ys) = scene(10_000, true, 10_000);
+    let (mut solver, mut scratch) = (ShortestPath::default(), MatchScratch::default());
+    g.sample_size(10);
+    g.bench_function("cluster/10000", |b| {
+        b.iter(|| {
+            let exact = plumbline::core::EXACT_CELLS;
+            let m = match_bounded(&xs, &ys, 2.0, 1.0, true, exact, &mut solver, &mut scratch);
+            let gs = gospa::from_matching(xs.len(), ys.len(), &m, 2.0, 1.0, 2.0);
+            std::hint::black_box((gs.total, m.approximate))
+        })
+    });
+    // The largest component solved exactly by default (700 x 700 in a 3 m square).
+    let (xs, ys) = scene(700, true, 700);
+    g.bench_function("cluster/700-exact", |b| {
+        b.iter(|| {
+            let exact = plumbline::core::EXACT_CELLS;
+            let m = match_bounded(&xs, &ys, 2.0, 1.0, true, exact, &mut solver, &mut scratch);
+            std::hint::black_box((m.localization, m.approximate))
+        })
+    });
     g.finish();
 }
 

@@ -168,6 +168,8 @@ pub struct RawLive {
     pub refresh: Option<toml::Value>,
     /// how often the recorder flushes
     pub flush: Option<toml::Value>,
+    /// how long the engine may make no progress while messages wait before /healthz fails
+    pub stall_after: Option<toml::Value>,
 }
 
 /// `[dashboard]`
@@ -411,6 +413,9 @@ pub struct LiveParams {
     pub refresh: f64,
     /// recorder flush period (s)
     pub flush: f64,
+    /// `/healthz` turns unhealthy when the engine has made no progress this long (s) while
+    /// messages wait in its queue
+    pub stall_after: f64,
 }
 
 /// How the report computes percentiles.
@@ -612,7 +617,11 @@ impl Config {
             tick: duration(source, "live.tick", &l.tick, 0.05)?,
             refresh: duration(source, "live.refresh", &l.refresh, 0.2)?,
             flush: duration(source, "live.flush", &l.flush, 0.1)?,
+            stall_after: duration(source, "live.stall_after", &l.stall_after, 5.0)?,
         };
+        if live.stall_after <= 0.0 {
+            return Err(err(source, "live.stall_after", "a duration > 0"));
+        }
         if live.flush > 0.1 {
             return Err(err(
                 source,

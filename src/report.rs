@@ -156,6 +156,8 @@ pub struct Records {
     /// Metric values that came out non-finite and were dropped (none should: every input
     /// is bounded; this counts what the last line of defence caught).
     pub non_finite_samples: u64,
+    /// Messages received but not evaluated because the run was stopped first.
+    pub cut_short: u64,
 }
 
 /// How percentiles were computed.
@@ -285,6 +287,7 @@ impl Report {
                 object_states: c.object_states,
                 tail: inputs.tail,
                 non_finite_samples: stats.non_finite,
+                cut_short: c.cut_short,
             },
             metrics,
             totals,

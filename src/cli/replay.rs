@@ -158,7 +158,17 @@ pub fn summary(r: &Report) -> String {
         if st.skipped > 0 {
             let _ = write!(s, " ({})", counts(&st.skipped_by_reason));
         }
+        if st.approximate > 0 {
+            let _ = write!(
+                s,
+                "; {} assigned greedily past limits.exact_assignment_cells (their gospa and ospa are upper bounds)",
+                st.approximate
+            );
+        }
         s.push('\n');
+    }
+    if r.records.non_finite_samples > 0 {
+        let _ = writeln!(s, "{} non-finite metric values dropped", r.records.non_finite_samples);
     }
     let _ = writeln!(s, "\n{:<26} {:>8} {:>11} {:>11} {:>11}", "metric", "count", "mean", "p95", "max");
     for m in Metric::ALL {

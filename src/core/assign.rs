@@ -185,6 +185,50 @@ pub struct Matching {
     pub pairs: Vec<(usize, usize, f64)>,
     /// Sum of `d^p` over the assigned pairs.
     pub localization: f64,
+    /// Whether part of the step was assigned greedily rather than optimally (a component
+    /// over the exact budget, or more candidate pairs than the edge budget). Any feasible
+    /// assignment's cost bounds the optimum from above, so GOSPA and OSPA computed from
+    /// it are upper bounds of the exact values.
+    pub approximate: bool,
+}
+
+/// Candidate pairs a step may list per cell of the exact budget before the whole step is
+/// assigned greedily (the list itself would otherwise grow with m x n: 10,000 objects in
+/// one 3 m cluster are 10^8 pairs).
+pub const MAX_EDGES_PER_CELL: usize = 2;
+
+/// Greedy nearest-neighbour assignment: each row in turn (in the order given) takes the
+/// nearest column not yet taken, if it is closer than `c`. O((r + k) log k) with an R-tree
+/// (rstar's `pop_nearest_neighbor`): bounded whatever the density, where the exact solve
+/// of one dense component is cubic. The result is feasible (each pair closer than `c`,
+/// each point used once), so its cost is an upper bound on the optimum. Pairs are
+/// appended in row order.
+fn greedy(
+    rows: &[usize],
+    cols: &[usize],
+    xs: &[[f64; 2]],
+    ys: &[[f64; 2]],
+    c: f64,
+    out: &mut Vec<(usize, usize, f64)>,
+) {
+    use rstar::primitives::GeomWithData;
+    let pts: Vec<GeomWithData<[f64; 2], usize>> = cols.iter().map(|&j| GeomWithData::new(ys[j], j)).collect();
+    let mut tree = rstar::RTree::bulk_load(pts);
+    let c2 = c * c;
+    for &i in rows {
+        let Some(near) = tree.nearest_neighbor(&xs[i]) else { break };
+        let j = near.data;
+        let (dx, dy) = (xs[i][0] - ys[j][0], xs[i][1] - ys[j][1]);
+        let d2 = dx * dx + dy * dy;
+        if d2 < c2 {
+            let d = d2.sqrt();
+            if d < c {
+                let taken = *near;
+                tree.remove(&taken);
+                out.push((i, j, d));
+            }
+        }
+    }
 }
 
 /// Reusable scratch for [`match_with_cutoff`].
@@ -202,6 +246,7 @@ pub struct MatchScratch {
     local_col: Vec<usize>,
     order: Vec<usize>,
     cost: Vec<f64>,
+    cell_edge: Vec<usize>,
     out: Vec<Option<usize>>,
 }
 
@@ -237,6 +282,24 @@ pub fn match_with_cutoff(
     solver: &mut dyn Assigner,
     s: &mut MatchScratch,
 ) -> Matching {
+    match_bounded(xs, ys, c, p, sparse, usize::MAX, solver, s)
+}
+
+/// [`match_with_cutoff`] within a budget: a component of more than `exact_cells` rows x
+/// columns, or a step with more than [`MAX_EDGES_PER_CELL`] x `exact_cells` candidate
+/// pairs, is assigned by [`greedy`] and the matching is marked `approximate`. Below the
+/// budget the result is the exact optimum, as [`match_with_cutoff`] gives it.
+#[allow(clippy::too_many_arguments)]
+pub fn match_bounded(
+    xs: &[[f64; 2]],
+    ys: &[[f64; 2]],
+    c: f64,
+    p: f64,
+    sparse: bool,
+    exact_cells: usize,
+    solver: &mut dyn Assigner,
+    s: &mut MatchScratch,
+) -> Matching {
     let (m, n) = (xs.len(), ys.len());
     let mut out = Matching::default();
     if m == 0 || n == 0 {
@@ -245,6 +308,17 @@ pub fn match_with_cutoff(
     out.pairs.reserve(m.min(n));
     let cp = pow_p(c, p);
     let c2 = c * c;
+    let edge_budget = exact_cells.saturating_mul(MAX_EDGES_PER_CELL);
+    let whole_greedy = |out: &mut Matching| {
+        let (rows, cols): (Vec<usize>, Vec<usize>) = ((0..m).collect(), (0..n).collect());
+        greedy(&rows, &cols, xs, ys, c, &mut out.pairs);
+        out.approximate = true;
+        finish(out, p);
+    };
+    if !sparse && m.saturating_mul(n) > exact_cells {
+        whole_greedy(&mut out);
+        return out;
+    }
     if !sparse {
         s.cost.clear();
         s.cost.reserve(m * n);
@@ -301,6 +375,11 @@ pub fn match_with_cutoff(
         if s.edges.len() - first > 1 {
             s.edges[first..].sort_unstable_by_key(|&(_, j, _)| j);
         }
+        if s.edges.len() > edge_budget {
+            s.edges.clear();
+            whole_greedy(&mut out);
+            return out;
+        }
     }
     if s.edges.is_empty() {
         return out;
@@ -351,8 +430,8 @@ pub fn match_with_cutoff(
         if end - start == 1 {
             let e = s.order[start];
             s.slot[s.edges[e].0] = e;
-        } else {
-            solve_component(s, start, end, cp, p, solver);
+        } else if !solve_component(s, start, end, cp, p, exact_cells, solver, xs, ys, c) {
+            out.approximate = true;
         }
         start = end;
     }
@@ -362,14 +441,21 @@ pub fn match_with_cutoff(
     out
 }
 
+/// Solves one component: exactly when its rows x columns fit `exact_cells` (returns
+/// true), else greedily (returns false).
+#[allow(clippy::too_many_arguments)]
 fn solve_component(
     s: &mut MatchScratch,
     start: usize,
     end: usize,
     cp: f64,
     p: f64,
+    exact_cells: usize,
     solver: &mut dyn Assigner,
-) {
+    xs: &[[f64; 2]],
+    ys: &[[f64; 2]],
+    c: f64,
+) -> bool {
     s.comp_rows.clear();
     s.comp_cols.clear();
     for k in start..end {
@@ -383,23 +469,44 @@ fn solve_component(
             s.comp_cols.push(j);
         }
     }
-    let (r, c) = (s.comp_rows.len(), s.comp_cols.len());
+    let (r, nc) = (s.comp_rows.len(), s.comp_cols.len());
+    if r.saturating_mul(nc) > exact_cells {
+        // Rows in reference order, so the greedy pass is the same whatever the edge order.
+        s.comp_rows.sort_unstable();
+        let mut pairs = Vec::with_capacity(r.min(nc));
+        greedy(&s.comp_rows, &s.comp_cols, xs, ys, c, &mut pairs);
+        for (i, j, d) in pairs {
+            s.edges.push((i, j, d));
+            s.slot[i] = s.edges.len() - 1;
+        }
+        for &i in &s.comp_rows {
+            s.local_row[i] = NONE;
+        }
+        for &j in &s.comp_cols {
+            s.local_col[j] = NONE;
+        }
+        return false;
+    }
+    let c = nc;
     s.cost.clear();
     s.cost.resize(r * c, cp);
+    // Which edge each cell holds, so an assigned cell finds its edge in O(1).
+    s.cell_edge.clear();
+    s.cell_edge.resize(r * c, NONE);
     for k in start..end {
-        let (i, j, d) = s.edges[s.order[k]];
-        s.cost[s.local_row[i] * c + s.local_col[j]] = pow_p(d, p);
+        let e = s.order[k];
+        let (i, j, d) = s.edges[e];
+        let cell = s.local_row[i] * c + s.local_col[j];
+        s.cost[cell] = pow_p(d, p);
+        s.cell_edge[cell] = e;
     }
     solver.solve(r, c, &s.cost, &mut s.out);
     for (li, lj) in s.out.iter().enumerate() {
         let Some(lj) = *lj else { continue };
-        let (i, j) = (s.comp_rows[li], s.comp_cols[lj]);
         // Only an edge (d < c) is a real assignment; a c^p filler means "both unassigned".
-        if let Some(k) = (start..end).find(|&k| {
-            let e = s.edges[s.order[k]];
-            e.0 == i && e.1 == j
-        }) {
-            s.slot[i] = s.order[k];
+        let e = s.cell_edge[li * c + lj];
+        if e != NONE {
+            s.slot[s.comp_rows[li]] = e;
         }
     }
     for &i in &s.comp_rows {
@@ -408,6 +515,7 @@ fn solve_component(
     for &j in &s.comp_cols {
         s.local_col[j] = NONE;
     }
+    true
 }
 
 fn finish(out: &mut Matching, p: f64) {
@@ -542,6 +650,66 @@ mod tests {
                 match_with_cutoff(&[[offset, offset]], &[[under, offset]], c, 1.0, true, &mut solver, &mut s);
             assert_eq!(m.pairs.len(), usize::from(under - offset < c), "offset {offset}");
         }
+    }
+
+    /// Over the budget: the matching is feasible (every pair closer than c, every point
+    /// used once), flagged approximate, and never cheaper than the exact optimum (any
+    /// feasible assignment bounds it from above); under the budget it is the optimum.
+    #[test]
+    fn over_the_budget_the_greedy_matching_is_a_feasible_upper_bound() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let mut solver = ShortestPath::default();
+        let mut s = MatchScratch::default();
+        let (c, p) = (2.0, 1.0);
+        let mut worse = 0;
+        for round in 0..200 {
+            let (m, n) = (rng.random_range(1..40), rng.random_range(1..40));
+            let side = rng.random_range(1.0..12.0);
+            let pts = |rng: &mut rand_chacha::ChaCha8Rng, k| -> Vec<[f64; 2]> {
+                (0..k).map(|_| [rng.random_range(0.0..side), rng.random_range(0.0..side)]).collect()
+            };
+            let (xs, ys) = (pts(&mut rng, m), pts(&mut rng, n));
+            let cost = |mm: &Matching| mm.localization + c / 2.0 * (m + n - 2 * mm.pairs.len()) as f64;
+            let exact = match_with_cutoff(&xs, &ys, c, p, true, &mut solver, &mut s);
+            assert!(!exact.approximate);
+            let same = match_bounded(&xs, &ys, c, p, true, m * n, &mut solver, &mut s);
+            assert_eq!(same, exact, "within the budget the result is the exact one");
+            // A tiny budget: components greedily (4 cells), or the whole step (edges > 8).
+            for budget in [4, if round % 2 == 0 { 1 } else { 3 }] {
+                let g = match_bounded(&xs, &ys, c, p, true, budget, &mut solver, &mut s);
+                let (mut used_x, mut used_y) = (vec![false; m], vec![false; n]);
+                for &(i, j, d) in &g.pairs {
+                    assert!(d < c && (dist(xs[i], ys[j]) - d).abs() < 1e-12);
+                    assert!(!used_x[i] && !used_y[j], "each point used once");
+                    (used_x[i], used_y[j]) = (true, true);
+                }
+                assert!(g.pairs.windows(2).all(|w| w[0].0 < w[1].0), "pairs in reference order");
+                assert!(cost(&g) >= cost(&exact) - 1e-9, "{} < {}", cost(&g), cost(&exact));
+                if cost(&g) > cost(&exact) + 1e-9 {
+                    assert!(g.approximate);
+                    worse += 1;
+                }
+            }
+        }
+        assert!(worse > 0, "the budget was reached in some rounds");
+    }
+
+    /// 3000 objects in a 3 m square (one dense component, 9e6 candidate pairs): bounded by
+    /// the edge budget, assigned greedily, and every reference finds a partner.
+    #[test]
+    fn a_dense_cluster_is_assigned_within_the_budget() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let xs: Vec<[f64; 2]> =
+            (0..3000).map(|_| [rng.random_range(0.0..3.0), rng.random_range(0.0..3.0)]).collect();
+        let ys: Vec<[f64; 2]> = xs.iter().map(|p| [p[0] + 0.01, p[1]]).collect();
+        let mut s = MatchScratch::default();
+        let m = match_bounded(&xs, &ys, 2.0, 1.0, true, 490_000, &mut ShortestPath::default(), &mut s);
+        assert!(m.approximate);
+        assert_eq!(m.pairs.len(), 3000);
+        // The list stops at the budget (980,000 edges; its capacity at most twice that).
+        assert!(s.edges.capacity() <= 4 * 490_000, "edge list bounded: {}", s.edges.capacity());
     }
 
     #[test]

@@ -57,7 +57,7 @@ pub struct Exposition {
     ingest: prometheus::Histogram,
     queue: IntGauge,
     seen: Vec<[u64; 4]>,
-    steps_seen: [u64; 4],
+    steps_seen: [u64; 5],
 }
 
 fn must<T>(r: prometheus::Result<T>) -> T {
@@ -138,7 +138,7 @@ impl Exposition {
             ingest,
             queue,
             seen: vec![[0; 4]; Role::ALL.len()],
-            steps_seen: [0; 4],
+            steps_seen: [0; 5],
         }
     }
 
@@ -218,10 +218,22 @@ impl Exposition {
             self.seen[r.index()] = now_vals;
         }
         let c = monitor.engine.counters();
-        let vals = [c.tracking.evaluated, c.tracking.skipped, c.ego.evaluated, c.ego.skipped];
-        let labels =
-            [("tracking", "evaluated"), ("tracking", "skipped"), ("ego", "evaluated"), ("ego", "skipped")];
-        for k in 0..4 {
+        let vals = [
+            c.tracking.evaluated,
+            c.tracking.skipped,
+            c.ego.evaluated,
+            c.ego.skipped,
+            c.tracking.approximate,
+        ];
+        let labels = [
+            ("tracking", "evaluated"),
+            ("tracking", "skipped"),
+            ("ego", "evaluated"),
+            ("ego", "skipped"),
+            // Of the evaluated tracking steps, those assigned greedily (upper bounds).
+            ("tracking", "approximate"),
+        ];
+        for k in 0..vals.len() {
             let d = vals[k].saturating_sub(self.steps_seen[k]);
             if d > 0 {
                 self.steps.with_label_values(&[labels[k].0, labels[k].1]).inc_by(d);

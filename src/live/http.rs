@@ -52,7 +52,7 @@ impl Server {
 }
 
 async fn metrics(State(s): State<AppState>) -> impl IntoResponse {
-    let text = s.shared.exposition.lock().map(|x| x.text()).unwrap_or_default();
+    let text = s.shared.metrics_text(super::zenoh_io::wall_now());
     ([(header::CONTENT_TYPE, "text/plain; version=0.0.4; charset=utf-8")], text)
 }
 
@@ -163,6 +163,20 @@ fn asset(ctype: &'static str, body: &'static str) -> impl IntoResponse {
     ([(header::CONTENT_TYPE, ctype), (header::CACHE_CONTROL, "no-cache")], body)
 }
 
+/// Healthy unless the engine has made no progress for `live.stall_after` while messages
+/// wait for it (then its gauges are old and its alerts late).
+async fn health(State(s): State<AppState>) -> Response {
+    match s.shared.liveness.stalled() {
+        None => (StatusCode::OK, "ok\n").into_response(),
+        Some(idle) => {
+            let n = s.shared.liveness.queue_len();
+            let body =
+                format!("stalled: the engine made no progress for {idle:.1} s with {n} messages waiting\n");
+            (StatusCode::SERVICE_UNAVAILABLE, body).into_response()
+        }
+    }
+}
+
 async fn ready(State(s): State<AppState>) -> impl IntoResponse {
     if s.shared.ready.load(Ordering::SeqCst) {
         (StatusCode::OK, "ready\n")
@@ -243,7 +257,7 @@ pub fn start(
                     .route("/api/snapshot", get(snapshot))
                     .route("/api/stream", get(stream))
                     .route("/metrics", get(metrics))
-                    .route("/healthz", get(|| async { "ok\n" }))
+                    .route("/healthz", get(health))
                     .route("/readyz", get(ready))
                     .layer(axum::middleware::from_fn_with_state(state.clone(), check_request))
                     .with_state(state);

@@ -52,6 +52,65 @@ pub struct Shared {
     /// The latest dashboard snapshot (JSON), replaced at `dashboard.rate_hz`; the page's
     /// event streams wait on it.
     pub snapshot: tokio::sync::watch::Sender<Arc<str>>,
+    /// What the monitor reports on itself, kept apart from the engine so that it stays
+    /// true while the engine is busy or stuck.
+    pub liveness: Liveness,
+}
+
+/// The monitor's own state, written by the subscriptions and the engine loop with atomics
+/// and read at each scrape and health check, never through the engine.
+pub struct Liveness {
+    /// Messages in the queue (counted up on send, down on receipt).
+    pub queued: AtomicI64,
+    /// When the engine loop last made progress: milliseconds since `epoch`.
+    heartbeat_ms: AtomicU64,
+    epoch: Instant,
+    /// Per role, the wall time of the latest sample (f64 bits; 0 = none yet).
+    last_arrival: Vec<AtomicU64>,
+    /// `live.stall_after` (s).
+    stall_after: f64,
+}
+
+impl Liveness {
+    fn new(stall_after: f64) -> Liveness {
+        Liveness {
+            queued: AtomicI64::new(0),
+            heartbeat_ms: AtomicU64::new(0),
+            epoch: Instant::now(),
+            last_arrival: Role::ALL.iter().map(|_| AtomicU64::new(0)).collect(),
+            stall_after,
+        }
+    }
+
+    /// The engine loop made progress.
+    pub fn beat(&self) {
+        self.heartbeat_ms.store(self.epoch.elapsed().as_millis() as u64, Ordering::Relaxed);
+    }
+
+    /// A sample arrived on `role` at wall time `t`.
+    pub fn arrived(&self, role: Role, t: f64) {
+        self.last_arrival[role.index()].store(t.to_bits(), Ordering::Relaxed);
+    }
+
+    /// Seconds since the latest sample of `role` at wall time `now`, if one arrived.
+    pub fn staleness(&self, role: Role, now: f64) -> Option<f64> {
+        let bits = self.last_arrival[role.index()].load(Ordering::Relaxed);
+        (bits != 0).then(|| (now - f64::from_bits(bits)).max(0.0))
+    }
+
+    /// Messages waiting for the engine.
+    pub fn queue_len(&self) -> usize {
+        self.queued.load(Ordering::Relaxed).max(0) as usize
+    }
+
+    /// `Some(seconds without progress)` when the engine has made none for longer than
+    /// `live.stall_after` while messages wait: the monitor is not keeping up and its
+    /// gauges of metrics are old.
+    pub fn stalled(&self) -> Option<f64> {
+        let idle =
+            self.epoch.elapsed().as_secs_f64() - self.heartbeat_ms.load(Ordering::Relaxed) as f64 / 1e3;
+        (self.queue_len() > 0 && idle > self.stall_after).then_some(idle)
+    }
 }
 
 impl Shared {
@@ -61,11 +120,28 @@ impl Shared {
             exposition: Mutex::new(Exposition::new(cfg)),
             ready: AtomicBool::new(false),
             snapshot: tokio::sync::watch::Sender::new(Arc::from("{}")),
+            liveness: Liveness::new(cfg.live.stall_after),
         }
+    }
+
+    /// The exposition text with the monitor's own gauges (staleness per role, queue
+    /// length) set from [`Liveness`] at `now`, so they move even while the engine does not.
+    pub fn metrics_text(&self, now: f64) -> String {
+        let Ok(x) = self.exposition.lock() else { return String::new() };
+        for r in Role::ALL {
+            if let Some(v) = self.liveness.staleness(r, now) {
+                x.sample(&Sample { t: now, metric: Metric::Staleness, role: Some(r), value: v });
+            }
+        }
+        x.queue_len(self.liveness.queue_len());
+        x.text()
     }
 }
 
 type Item = (Role, Instant, Result<LogRecord, Reject>);
+
+/// How long the shutdown path keeps evaluating what was queued before the stop.
+const DRAIN: Duration = Duration::from_millis(500);
 
 /// Runs the watcher until `stop` is set (or `duration` passes). `shared` carries the
 /// exposition the HTTP server reads.
@@ -78,15 +154,15 @@ pub fn run(
 ) -> Result<Report, String> {
     let (tx, rx) = sync_channel::<Item>(cfg.live.queue);
     let dropped: Arc<Vec<AtomicU64>> = Arc::new(Role::ALL.iter().map(|_| AtomicU64::new(0)).collect());
-    // Messages in the queue: counted up on send, down on receipt, for the queue gauge; and
-    // their objects, against `live.queue_objects`, so that large messages cannot make the
-    // queue's memory grow past that bound.
-    let queued = Arc::new(AtomicI64::new(0));
+    // Messages in the queue (`shared.liveness.queued`): counted up on send, down on
+    // receipt, for the queue gauge and the health check; and their objects, against
+    // `live.queue_objects`, so that large messages cannot make the queue's memory grow
+    // past that bound.
     let queued_objects = Arc::new(AtomicI64::new(0));
     let object_budget = cfg.live.queue_objects as i64;
     let mut subs = Vec::new();
     for (role, key) in &cfg.roles {
-        let (role, tx, dropped, c, q) = (*role, tx.clone(), dropped.clone(), cfg.clone(), queued.clone());
+        let (role, tx, dropped, c, q) = (*role, tx.clone(), dropped.clone(), cfg.clone(), shared.clone());
         let qo = queued_objects.clone();
         let bound = zenoh::key_expr::KeyExpr::try_from(key.clone())
             .map_err(|e| format!("roles.{}: {key} is not a key expression: {e}", role.name()))?;
@@ -94,6 +170,7 @@ pub fn run(
             .declare_subscriber(key.as_str())
             .callback(move |sample| {
                 let recv = wall_now();
+                q.liveness.arrived(role, recv);
                 let rec = if zenoh_io::is_role_data(&bound, sample.key_expr()) {
                     let payload = sample.payload().to_bytes();
                     zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv)
@@ -108,7 +185,7 @@ pub fn run(
                 }
                 match tx.try_send((role, Instant::now(), rec)) {
                     Ok(()) => {
-                        q.fetch_add(1, Ordering::Relaxed);
+                        q.liveness.queued.fetch_add(1, Ordering::Relaxed);
                     }
                     Err(TrySendError::Full(_)) => {
                         qo.fetch_sub(n, Ordering::Relaxed);
@@ -158,9 +235,14 @@ pub fn run(
     let mut n_bad = 0u64;
     let mut ingest = hdrhistogram::Histogram::<u64>::new(3).expect("3 digits are valid");
 
-    loop {
-        if stop.load(Ordering::SeqCst) || opts.duration.is_some_and(|d| started.elapsed().as_secs_f64() >= d)
-        {
+    let live = &shared.liveness;
+    let must_stop =
+        || stop.load(Ordering::SeqCst) || opts.duration.is_some_and(|d| started.elapsed().as_secs_f64() >= d);
+    // Messages taken from the queue but not evaluated because the stop came first.
+    let mut cut_short = [0u64; 6];
+    'run: loop {
+        live.beat();
+        if must_stop() {
             break;
         }
         let got = rx.recv_timeout(tick);
@@ -174,9 +256,20 @@ pub fn run(
                 while let Ok(x) = rx.try_recv() {
                     batch.push(x);
                 }
-                queued.fetch_sub(batch.len() as i64, Ordering::Relaxed);
+                live.queued.fetch_sub(batch.len() as i64, Ordering::Relaxed);
                 queued_objects.fetch_sub(batch.iter().map(|(_, _, r)| weight(r)).sum(), Ordering::Relaxed);
-                for (role, got, item) in batch {
+                let mut batch = batch.into_iter();
+                while let Some((role, got, item)) = batch.next() {
+                    // A stop takes effect between two messages, whatever the batch holds;
+                    // what is left of it is counted, not evaluated.
+                    if must_stop() {
+                        cut_short[role.index()] += 1;
+                        for (r, _, _) in batch {
+                            cut_short[r.index()] += 1;
+                        }
+                        break 'run;
+                    }
+                    live.beat();
                     let before = samples.len();
                     match item {
                         Ok(rec) => {
@@ -265,8 +358,7 @@ pub fn run(
         if refresh_due {
             if let Ok(mut x) = shared.exposition.lock() {
                 x.refresh(&monitor);
-                // A send may count up just after its receipt counted down: clamp at 0.
-                x.queue_len(queued.load(Ordering::Relaxed).max(0) as usize);
+                x.queue_len(live.queue_len());
             }
             last_refresh = Instant::now();
         }
@@ -283,15 +375,41 @@ pub fn run(
         }
     }
 
-    // The one shutdown path: drain what arrived, finish, flush, report.
+    // The one shutdown path: drain what arrived (for at most `DRAIN` after the stop),
+    // finish, flush, report. Past the deadline, what is still queued and the steps still
+    // waiting are counted as cut short instead of evaluated, so a stop takes effect
+    // within about a second whatever the engine was given.
     drop(subs);
-    while let Ok((role, _, Ok(rec))) = rx.try_recv() {
+    let stopping = Instant::now();
+    while let Ok((role, _, item)) = rx.try_recv() {
+        if stopping.elapsed() > DRAIN {
+            cut_short[role.index()] += 1;
+            continue;
+        }
+        let Ok(rec) = item else { continue };
         if let Some(w) = recorder.as_mut() {
             let _ = w.write(&rec);
         }
         if !opts.record_only {
             monitor.push(Input::Message { role, recv: rec.recv, msg: rec.msg }, &mut samples, &mut events);
         }
+    }
+    let unevaluated: u64 = cut_short.iter().sum();
+    for r in Role::ALL {
+        for _ in 0..cut_short[r.index()] {
+            monitor.push(Input::CutShort { role: r }, &mut samples, &mut events);
+        }
+    }
+    if stopping.elapsed() > DRAIN {
+        monitor.engine.cut_short();
+    }
+    let waiting = monitor.engine.counters().tracking.skipped_by_reason.get("cut_short").copied().unwrap_or(0)
+        + monitor.engine.counters().ego.skipped_by_reason.get("cut_short").copied().unwrap_or(0);
+    if unevaluated + waiting > 0 {
+        tracing::warn!(messages = unevaluated, steps = waiting, "stopped before evaluating everything");
+        errln!(
+            "plumbline: stopped with {unevaluated} received messages not evaluated and {waiting} waiting steps cut short (counted in the report)"
+        );
     }
     monitor.finish(&mut samples, &mut events);
     handle(&samples, &events, shared, &alert_pub, journal.as_mut());

@@ -12,7 +12,7 @@ use std::sync::Arc;
 use serde::Serialize;
 
 use super::align::{self, How, Miss, Point, Resolved, Timeline};
-use super::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+use super::assign::{match_bounded, MatchScratch, ShortestPath};
 use super::{AlignParams, ClearanceParams, EgoSource, TrackingParams};
 
 mod clearance;
@@ -57,6 +57,11 @@ pub enum Input {
         /// The role.
         role: Role,
     },
+    /// A message received but not evaluated because the run was stopped first.
+    CutShort {
+        /// The role.
+        role: Role,
+    },
 }
 
 /// One metric value at one time.
@@ -83,6 +88,9 @@ pub struct StepCounts {
     pub interpolated: u64,
     /// Of those, using the last reference before within tolerance.
     pub fallback: u64,
+    /// Of those, assigned greedily in part (`limits.exact_assignment_cells`): their GOSPA
+    /// and OSPA are upper bounds of the exact values.
+    pub approximate: u64,
     /// Steps skipped.
     pub skipped: u64,
     /// Skipped steps by reason.
@@ -126,6 +134,9 @@ pub struct Counters {
     pub last_stamp: Option<f64>,
     /// Object states accepted (estimate and reference).
     pub object_states: u64,
+    /// Messages received but not evaluated because the run was stopped first (also
+    /// counted as `dropped` on their role).
+    pub cut_short: u64,
 }
 
 fn miss_reason(m: Miss, what: &'static str) -> &'static str {
@@ -333,6 +344,10 @@ impl Engine {
                 }
             }
             Input::Dropped { role } => self.transport[role.index()].dropped += 1,
+            Input::CutShort { role } => {
+                self.counters.cut_short += 1;
+                self.transport[role.index()].dropped += 1;
+            }
             Input::Message { role, recv, msg } => {
                 if self.admit(role, msg.stamp(), recv) {
                     self.message(role, recv, msg.into(), out)
@@ -449,6 +464,18 @@ impl Engine {
             self.now = now;
         }
         self.drain(false, out);
+    }
+
+    /// The run is stopping and has no time left: every waiting step is counted as skipped
+    /// (`cut_short`) instead of evaluated, so [`Engine::finish`] has nothing to wait for.
+    pub fn cut_short(&mut self) {
+        for _ in self.tracks.drain(..) {
+            self.counters.tracking.skip("cut_short");
+        }
+        for _ in self.egos.drain(..) {
+            self.counters.ego.skip("cut_short");
+        }
+        self.clear.clears.clear();
     }
 
     /// End of input: every waiting step is resolved as if its wait ran out.
@@ -627,7 +654,19 @@ impl Engine {
         self.xp.extend(self.xs.iter().map(|o| [o.x, o.y]));
         self.yp.clear();
         self.yp.extend(self.ys.iter().map(|o| [o.x, o.y]));
-        let m = match_with_cutoff(&self.xp, &self.yp, c, p, true, &mut self.solver, &mut self.scratch);
+        let m = match_bounded(
+            &self.xp,
+            &self.yp,
+            c,
+            p,
+            true,
+            self.tp.exact_cells,
+            &mut self.solver,
+            &mut self.scratch,
+        );
+        if m.approximate {
+            self.counters.tracking.approximate += 1;
+        }
         let (nx, ny) = (self.xp.len(), self.yp.len());
         let g = gospa::from_matching(nx, ny, &m, c, p, alpha);
         let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
