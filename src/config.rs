@@ -280,6 +280,11 @@ pub struct RawHttp {
     pub max_streams: Option<i64>,
     /// largest request (header and body) accepted, bytes
     pub max_request_bytes: Option<i64>,
+    /// connections open at once
+    pub max_connections: Option<i64>,
+    /// how long a client may take to send a request's header, and a kept-alive
+    /// connection may stay idle
+    pub header_timeout: Option<toml::Value>,
 }
 
 /// `[limits]`
@@ -397,6 +402,12 @@ pub struct HttpParams {
     pub max_streams: usize,
     /// largest request accepted (declared body, and header bytes), beyond: 413 or 431
     pub max_request_bytes: usize,
+    /// connections open at once (also kept below the process's open-file limit); a
+    /// connection beyond is closed at once
+    pub max_connections: usize,
+    /// time a client has to send a request's header; an idle kept-alive connection is
+    /// closed after it too (s)
+    pub header_timeout: f64,
 }
 
 /// Live monitor settings.
@@ -569,7 +580,12 @@ impl Config {
             burst: count(source, "http.burst", h.burst, 100)?,
             max_streams: count(source, "http.max_streams", h.max_streams, 16)?,
             max_request_bytes: count(source, "http.max_request_bytes", h.max_request_bytes, 16_384)?,
+            max_connections: count(source, "http.max_connections", h.max_connections, 256)?,
+            header_timeout: duration(source, "http.header_timeout", &h.header_timeout, 10.0)?,
         };
+        if http.header_timeout <= 0.0 {
+            return Err(err(source, "http.header_timeout", "a duration > 0"));
+        }
         if h.token_file.as_deref().is_some_and(|f| f.trim().is_empty()) {
             return Err(err(source, "http.token_file", "a path to a file holding the token"));
         }

@@ -33,10 +33,17 @@ impl Token {
         Ok((Token { secret }, warning))
     }
 
-    /// Whether an `Authorization` header value carries this token (`Bearer <token>`).
+    /// Whether an `Authorization` header value carries this token (`Bearer <token>`; the
+    /// scheme is case-insensitive, RFC 9110 section 11.1, and may be followed by more
+    /// than one space).
     pub fn admits(&self, authorization: Option<&[u8]>) -> bool {
         let Some(v) = authorization else { return false };
-        let Some(given) = v.strip_prefix(b"Bearer ") else { return false };
+        let Some(sp) = v.iter().position(|&b| b == b' ') else { return false };
+        if !v[..sp].eq_ignore_ascii_case(b"bearer") {
+            return false;
+        }
+        let given = &v[sp..];
+        let given = &given[given.iter().take_while(|&&b| b == b' ').count()..];
         constant_time_eq(given, self.secret.as_bytes())
     }
 }
@@ -62,6 +69,20 @@ fn constant_time_eq(a: &[u8], b: &[u8]) -> bool {
         diff |= a.get(i).copied().unwrap_or(0) ^ b.get(i).copied().unwrap_or(0);
     }
     diff == 0
+}
+
+/// The connection cap that fits the process's open-file limit: `wanted`, but at most the
+/// soft limit less `reserve` descriptors for everything else (zenoh's sockets, the
+/// recorder, the journal). Reads `/proc/self/limits` (Linux); elsewhere `wanted`.
+pub fn connection_cap(wanted: usize, reserve: usize) -> usize {
+    let soft = std::fs::read_to_string("/proc/self/limits").ok().and_then(|t| {
+        let line = t.lines().find(|l| l.starts_with("Max open files"))?;
+        line["Max open files".len()..].split_whitespace().next()?.parse::<usize>().ok()
+    });
+    match soft {
+        Some(n) => wanted.min(n.saturating_sub(reserve).max(1)),
+        None => wanted,
+    }
 }
 
 /// Clients tracked at once; past this, full buckets (idle clients) are forgotten first.
@@ -144,10 +165,14 @@ mod tests {
     fn the_token_must_match_whole() {
         let t = Token { secret: "s3cret-token".into() };
         assert!(t.admits(Some(b"Bearer s3cret-token")));
+        // RFC 9110 section 11.1: the scheme is case-insensitive.
+        assert!(t.admits(Some(b"bearer s3cret-token")));
+        assert!(t.admits(Some(b"BEARER  s3cret-token")));
         for bad in [
             &b"Bearer s3cret-toke"[..],
             b"Bearer s3cret-token2",
-            b"bearer s3cret-token",
+            b"Bearers3cret-token",
+            b"Basic s3cret-token",
             b"s3cret-token",
             b"",
         ] {

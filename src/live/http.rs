@@ -72,7 +72,11 @@ struct AppState {
 struct Guard {
     token: Option<Token>,
     limits: HttpParams,
+    /// Buckets of requests that carry no valid token (or of every request without one).
     limiter: Mutex<RateLimiter>,
+    /// Buckets of requests that carry the token: a local flood of anonymous requests
+    /// cannot starve the authenticated scraper.
+    auth_limiter: Mutex<RateLimiter>,
     streams: AtomicUsize,
     epoch: Instant,
 }
@@ -112,21 +116,29 @@ async fn check_request(
     if declared > max as u64 || req.headers().contains_key(header::TRANSFER_ENCODING) {
         return refuse(StatusCode::PAYLOAD_TOO_LARGE, "request body too large\n");
     }
+    let path = req.uri().path();
+    // Health and readiness carry no data and cost nothing: outside every bucket, so that
+    // a flood cannot make an orchestrator think the monitor is down.
+    if path == "/healthz" || path == "/readyz" {
+        return next.run(req).await;
+    }
+    let authenticated = g
+        .token
+        .as_ref()
+        .is_some_and(|t| t.admits(req.headers().get(header::AUTHORIZATION).map(|v| v.as_bytes())));
+    let limiter = if authenticated { &g.auth_limiter } else { &g.limiter };
     let allowed =
-        g.limiter.lock().map(|mut l| l.allow(peer.ip(), g.epoch.elapsed().as_secs_f64())).unwrap_or(true);
+        limiter.lock().map(|mut l| l.allow(peer.ip(), g.epoch.elapsed().as_secs_f64())).unwrap_or(true);
     if !allowed {
         let mut r = refuse(StatusCode::TOO_MANY_REQUESTS, "too many requests\n");
         r.headers_mut().insert(header::RETRY_AFTER, header::HeaderValue::from_static("1"));
         return r;
     }
-    let path = req.uri().path();
     let protected = path == "/metrics" || path.starts_with("/api/");
-    if let (true, Some(t)) = (protected, &g.token) {
-        if !t.admits(req.headers().get(header::AUTHORIZATION).map(|v| v.as_bytes())) {
-            let mut r = refuse(StatusCode::UNAUTHORIZED, "a bearer token is required\n");
-            r.headers_mut().insert(header::WWW_AUTHENTICATE, header::HeaderValue::from_static("Bearer"));
-            return r;
-        }
+    if protected && g.token.is_some() && !authenticated {
+        let mut r = refuse(StatusCode::UNAUTHORIZED, "a bearer token is required\n");
+        r.headers_mut().insert(header::WWW_AUTHENTICATE, header::HeaderValue::from_static("Bearer"));
+        return r;
     }
     next.run(req).await
 }
@@ -197,6 +209,76 @@ fn load_token(limits: &HttpParams) -> Result<Option<Token>, String> {
     Ok(Some(token))
 }
 
+/// Accepts connections until `shutdown`: at most `cap` open at once (one beyond is closed
+/// at once, before it costs more than its descriptor), each with hyper's header-read
+/// timeout, which also closes a kept-alive connection that sends nothing for that long
+/// and a client that trickles its header a byte at a time. On `closing` each connection
+/// finishes its request in flight and closes.
+async fn serve(
+    listener: tokio::net::TcpListener,
+    app: Router,
+    cap: usize,
+    header_timeout: std::time::Duration,
+    mut shutdown: tokio::sync::oneshot::Receiver<()>,
+    closing: tokio::sync::watch::Receiver<bool>,
+) {
+    use tower::Service as _;
+    let slots = Arc::new(tokio::sync::Semaphore::new(cap));
+    loop {
+        let (stream, peer) = tokio::select! {
+            _ = &mut shutdown => break,
+            r = listener.accept() => match r {
+                Ok(x) => x,
+                Err(e) => {
+                    // Out of descriptors or a reset before accept: pause, then go on.
+                    tracing::warn!(error = %e, "accepting an HTTP connection failed");
+                    tokio::time::sleep(std::time::Duration::from_millis(50)).await;
+                    continue;
+                }
+            },
+        };
+        let Ok(slot) = slots.clone().try_acquire_owned() else {
+            tracing::warn!(%peer, cap, "HTTP connection cap reached: connection closed");
+            drop(stream);
+            continue;
+        };
+        let router = app.clone();
+        let svc = hyper::service::service_fn(move |mut req: hyper::Request<hyper::body::Incoming>| {
+            req.extensions_mut().insert(ConnectInfo(peer));
+            let mut router = router.clone();
+            async move { router.call(req).await }
+        });
+        let mut closing = closing.clone();
+        tokio::spawn(async move {
+            let conn = hyper::server::conn::http1::Builder::new()
+                .timer(hyper_util::rt::TokioTimer::new())
+                .header_read_timeout(header_timeout)
+                .serve_connection(hyper_util::rt::TokioIo::new(stream), svc);
+            let mut conn = std::pin::pin!(conn);
+            tokio::select! {
+                _ = conn.as_mut() => {}
+                _ = until_closing(&mut closing) => {
+                    conn.as_mut().graceful_shutdown();
+                    let _ = conn.await;
+                }
+            }
+            drop(slot);
+        });
+    }
+}
+
+/// Resolves once the server is closing (never, if the sender is gone without closing).
+async fn until_closing(closing: &mut tokio::sync::watch::Receiver<bool>) {
+    loop {
+        if *closing.borrow_and_update() {
+            return;
+        }
+        if closing.changed().await.is_err() {
+            std::future::pending::<()>().await;
+        }
+    }
+}
+
 /// Binds `listen` (fails before anything else starts) and serves in the background.
 /// SIGINT and SIGTERM set `stop`.
 pub fn start(
@@ -206,18 +288,30 @@ pub fn start(
     stop: Arc<AtomicBool>,
 ) -> Result<Server, String> {
     let token = load_token(limits)?;
+    let has_token = token.is_some();
     let guard = Arc::new(Guard {
         token,
         limits: limits.clone(),
         limiter: Mutex::new(RateLimiter::new(limits.requests_per_s, limits.burst)),
+        auth_limiter: Mutex::new(RateLimiter::new(limits.requests_per_s, limits.burst)),
         streams: AtomicUsize::new(0),
         epoch: Instant::now(),
     });
     let std_listener = std::net::TcpListener::bind(listen).map_err(|e| format!("binding {listen}: {e}"))?;
     std_listener.set_nonblocking(true).map_err(|e| e.to_string())?;
     let addr = std_listener.local_addr().map_err(|e| e.to_string())?;
+    if !addr.ip().is_loopback() && !has_token {
+        tracing::warn!(%addr, "HTTP listens beyond loopback without a token");
+        errln!(
+            "plumbline: warning: http.listen {addr} is reachable beyond this machine and http.token_file is not set: anyone who can reach it can read /metrics and the dashboard"
+        );
+    }
+    // Descriptors kept for zenoh's sockets, the recorder, the journal and the rest.
+    let max_connections = super::access::connection_cap(limits.max_connections, 64);
+    let header_timeout = std::time::Duration::from_secs_f64(limits.header_timeout);
     let (tx, rx) = tokio::sync::oneshot::channel::<()>();
     let (closing, closing_rx) = tokio::sync::watch::channel(false);
+    let closing_conns = closing_rx.clone();
     let state = AppState { shared, closing: closing_rx, guard };
     let thread = std::thread::Builder::new()
         .name("plumbline-http".into())
@@ -262,12 +356,7 @@ pub fn start(
                     .layer(axum::middleware::from_fn_with_state(state.clone(), check_request))
                     .with_state(state);
                 let Ok(listener) = tokio::net::TcpListener::from_std(std_listener) else { return };
-                let app = app.into_make_service_with_connect_info::<SocketAddr>();
-                let _ = axum::serve(listener, app)
-                    .with_graceful_shutdown(async {
-                        let _ = rx.await;
-                    })
-                    .await;
+                serve(listener, app, max_connections, header_timeout, rx, closing_conns).await;
             });
         })
         .map_err(|e| e.to_string())?;
