@@ -664,3 +664,52 @@ fn restamped_publishing_keeps_the_recorded_latencies() {
     // At least the recorded 30 ms; the upper bound leaves room for a loaded machine.
     assert!((0.03..2.0).contains(&mean), "estimate/objects latency {mean:.4} s (recorded 30-79 ms)");
 }
+
+/// A put on a wildcard key reaches every subscriber it intersects, and a payload in an
+/// encoding that is neither JSON nor the postcard one could only be guessed at: both are
+/// counted against the role whose subscription saw them and never recorded as role data.
+/// Before: a put on `rig/**` was accepted once for every role (replacing the reference
+/// objects and the site map with empty sets) and recorded under the wildcard, so replay of
+/// the recording gave other numbers; `text/plain` was read as JSON.
+#[test]
+fn wildcard_puts_and_unknown_encodings_are_counted_not_used() {
+    use zenoh::bytes::Encoding;
+    use zenoh::Wait;
+    let dir = tempfile::tempdir().unwrap();
+    let (rec, report) = (dir.path().join("rec.plb"), dir.path().join("report.json"));
+    let zport = free_port();
+    let extra = ["--record", rec.to_str().unwrap(), "--report", report.to_str().unwrap()];
+    let mut w = Watcher::start(zport, &extra);
+    let connect = format!("zenoh.connect=[\"tcp/127.0.0.1:{zport}\"]");
+    let cfg = Config::load(None, &[connect, "zenoh.multicast_scouting=false".into()]).unwrap();
+    let session = plumbline::live::zenoh_io::open(&cfg).unwrap();
+    std::thread::sleep(Duration::from_millis(800));
+    let empty_set = r#"{"stamp": 1.0, "objects": []}"#;
+    let pose = r#"{"stamp": 1.0, "x": 1.0, "y": 2.0, "yaw": 0.0}"#;
+    session.put("rig/**", empty_set).encoding(Encoding::APPLICATION_JSON).wait().unwrap();
+    session.put("rig/estimate/ego", pose).encoding(Encoding::TEXT_PLAIN).wait().unwrap();
+    session.put("rig/estimate/ego", pose).encoding(Encoding::APPLICATION_OCTET_STREAM).wait().unwrap();
+    session.put("rig/estimate/ego", pose).wait().unwrap();
+    // And one good message, so the recording is not empty by accident.
+    session.put("rig/reference/ego", pose).encoding(Encoding::APPLICATION_JSON).wait().unwrap();
+    std::thread::sleep(Duration::from_millis(800));
+    w.signal("-TERM");
+    assert_eq!(w.wait(), Some(0));
+    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    let by = &r["records"]["rejected_by_reason"];
+    // rig/** intersects the six default role keys: once per subscription.
+    assert_eq!(by["unbound_key"], 6, "{by}");
+    assert_eq!(by["bad_encoding"], 3, "{by}");
+    assert_eq!(r["records"]["accepted"], 1);
+    assert_eq!(r["transport"]["estimate/ego"]["decode_errors"], 4);
+    // The recording holds the one good message only.
+    let mut n = 0;
+    plumbline::logio::read_all(&Config::defaults(), &rec, &mut |item, _| {
+        if let plumbline::logio::Item::Record { rec, .. } = item {
+            assert_eq!(rec.key, "rig/reference/ego");
+            n += 1;
+        }
+    })
+    .unwrap();
+    assert_eq!(n, 1);
+}

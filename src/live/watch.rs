@@ -72,7 +72,9 @@ pub struct Liveness {
 }
 
 impl Liveness {
-    fn new(stall_after: f64) -> Liveness {
+    /// Liveness for `live.stall_after` = `stall_after` (s); the engine counts as having
+    /// made progress now.
+    pub fn new(stall_after: f64) -> Liveness {
         Liveness {
             queued: AtomicI64::new(0),
             heartbeat_ms: AtomicU64::new(0),
@@ -488,5 +490,31 @@ fn handle(
         if let Some(j) = journal.as_mut() {
             j.append(e);
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Health is about progress while work waits: an idle monitor is healthy, one whose
+    /// engine has not moved past `stall_after` with messages queued is not, and one beat
+    /// makes it healthy again. Before: `/healthz` said ok while the engine was stuck.
+    #[test]
+    fn a_stalled_engine_with_work_waiting_is_unhealthy() {
+        let l = Liveness::new(0.05);
+        std::thread::sleep(Duration::from_millis(80));
+        assert_eq!(l.stalled(), None, "nothing waits: idle, not stalled");
+        l.queued.store(3, Ordering::Relaxed);
+        assert!(l.stalled().is_some_and(|s| s > 0.05));
+        l.beat();
+        assert_eq!(l.stalled(), None);
+        std::thread::sleep(Duration::from_millis(80));
+        assert!(l.stalled().is_some());
+        // Staleness comes from the arrivals alone.
+        assert_eq!(l.staleness(Role::EstimateEgo, 100.0), None);
+        l.arrived(Role::EstimateEgo, 90.0);
+        assert_eq!(l.staleness(Role::EstimateEgo, 100.0), Some(10.0));
+        assert_eq!(l.queue_len(), 3);
     }
 }
