@@ -14,7 +14,7 @@ use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
 use crate::config::Config;
 use crate::core::engine::{splice_plan_jobs, Engine, Input, PlanJob, Prepared, Sample};
 use crate::logio::chunks::{Frame, LineFramer, RecordFramer};
-use crate::logio::{jsonl, plb, Form, Item, LogError, Position, Tail};
+use crate::logio::{jsonl, plb, Damage, Form, Item, LogError, Position, Tail};
 use crate::monitor::Monitor;
 use crate::msg::{Reject, Role};
 use crate::report::{series_row, BadRecord, Report, RunInputs, SERIES_HEADER};
@@ -117,6 +117,7 @@ impl Source {
 enum Ready {
     Record { role: Role, recv: Option<f64>, msg: Prepared },
     Bad { pos: Position, role: Option<Role>, reason: Reject },
+    Damaged(Damage),
 }
 
 impl From<Item> for Ready {
@@ -124,6 +125,7 @@ impl From<Item> for Ready {
         match item {
             Item::Record { role, rec } => Ready::Record { role, recv: rec.recv, msg: rec.msg.into() },
             Item::Bad { pos, role, reason } => Ready::Bad { pos, role, reason },
+            Item::Damaged(d) => Ready::Damaged(d),
         }
     }
 }
@@ -156,6 +158,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     let mut first_bad = Vec::new();
     let mut samples: Vec<Sample> = Vec::with_capacity(4096);
     let mut tail = None;
+    let mut damage = crate::report::DamageSummary::default();
     let n = workers();
     let is_lines = matches!(source, Source::Lines(_));
 
@@ -196,6 +199,9 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
                     at = c.end;
                 }
                 let stop = matches!(frame, Frame::Tail(_));
+                if let Frame::Skipped(d) = &frame {
+                    at = d.offset + d.bytes;
+                }
                 if to_workers[k % to_workers.len()].send(frame).is_err() || stop {
                     break;
                 }
@@ -261,6 +267,10 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
                         }
                         engine.push(Input::Rejected { role, reason: reason.code() }, &mut samples);
                     }
+                    Ready::Damaged(d) => {
+                        tracing::warn!(offset = d.offset, bytes = d.bytes, records = d.records, reason = %d.reason, "damaged stretch skipped");
+                        damage.add(d);
+                    }
                 }
             }
             progress(d.end);
@@ -289,6 +299,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         input_digest: digest,
         first_rejected: first_bad,
         tail,
+        damage,
     };
     let report = Report::build(cfg, &monitor, inputs);
     Ok(Replayed { report, monitor })

@@ -158,6 +158,37 @@ pub struct Records {
     pub non_finite_samples: u64,
     /// Messages received but not evaluated because the run was stopped first.
     pub cut_short: u64,
+    /// Damaged stretches of a binary log skipped to reach the next whole record.
+    pub damaged: DamageSummary,
+}
+
+/// Damaged stretches of a binary log: totals, and the first [`DamageSummary::KEEP`].
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct DamageSummary {
+    /// Stretches skipped.
+    pub stretches: u64,
+    /// Bytes skipped in all.
+    pub bytes: u64,
+    /// Records lost in them (estimated: the damaged records and the record starts inside
+    /// the stretches that did not verify).
+    pub records: u64,
+    /// The first stretches, with where they start.
+    pub first: Vec<crate::logio::Damage>,
+}
+
+impl DamageSummary {
+    /// Stretches listed one by one.
+    pub const KEEP: usize = 100;
+
+    /// Counts one stretch.
+    pub fn add(&mut self, d: crate::logio::Damage) {
+        self.stretches += 1;
+        self.bytes += d.bytes;
+        self.records += d.records;
+        if self.first.len() < Self::KEEP {
+            self.first.push(d);
+        }
+    }
 }
 
 /// How percentiles were computed.
@@ -223,6 +254,8 @@ pub struct RunInputs {
     pub first_rejected: Vec<BadRecord>,
     /// Damaged tail.
     pub tail: Option<Tail>,
+    /// Damaged stretches skipped.
+    pub damage: DamageSummary,
 }
 
 impl Report {
@@ -288,6 +321,7 @@ impl Report {
                 tail: inputs.tail,
                 non_finite_samples: stats.non_finite,
                 cut_short: c.cut_short,
+                damaged: inputs.damage,
             },
             metrics,
             totals,

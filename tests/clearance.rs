@@ -231,6 +231,7 @@ fn plan_jobs_run_beside_the_engine_give_the_inline_samples() {
         let input = match item {
             Item::Record { role, rec } => Input::Message { role, recv: rec.recv, msg: rec.msg },
             Item::Bad { role, reason, .. } => Input::Rejected { role, reason: reason.code() },
+            Item::Damaged(_) => return,
         };
         m.push(input, &mut inline, &mut events);
     })

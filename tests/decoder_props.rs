@@ -20,16 +20,27 @@ fn tally(form: Form, bytes: &[u8]) -> (usize, usize) {
     let cfg = Config::defaults();
     let limits = Limits::default();
     let (mut ok, mut bad) = (0, 0);
+    // What is accepted is scored, and every value that comes out is finite.
+    let mut monitor = plumbline::monitor::Monitor::new(&cfg);
+    let (mut samples, mut events) = (Vec::new(), Vec::new());
     let _ = read_bytes(&cfg, form, bytes, &mut |item, _| match item {
-        Item::Record { rec, .. } => {
+        Item::Record { role, rec } => {
             assert!(validate(&rec.msg, &limits).is_ok(), "a record that fails validation got through");
+            let input = plumbline::core::Input::Message { role, recv: rec.recv, msg: rec.msg };
+            monitor.push(input, &mut samples, &mut events);
             ok += 1;
         }
         Item::Bad { reason, .. } => {
             assert!(!reason.code().is_empty());
             bad += 1;
         }
+        Item::Damaged(d) => {
+            assert!(d.bytes > 0 && d.records > 0 && !d.reason.is_empty());
+            bad += 1;
+        }
     });
+    monitor.finish(&mut samples, &mut events);
+    assert_eq!(monitor.stats.non_finite, 0, "a non-finite metric value");
     (ok, bad)
 }
 

@@ -38,6 +38,17 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
             bad += 1;
             errln!("plumbline convert: {}: {pos}: skipped: {reason}", a.input.display());
         }
+        Item::Damaged(d) => {
+            bad += d.records;
+            errln!(
+                "plumbline convert: {}: byte {}: {} damaged bytes skipped ({}; about {} records)",
+                a.input.display(),
+                d.offset,
+                d.bytes,
+                d.reason,
+                d.records
+            );
+        }
     });
     let outcome = match read {
         Ok(o) => o,

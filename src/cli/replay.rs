@@ -149,6 +149,20 @@ pub fn summary(r: &Report) -> String {
         let _ =
             writeln!(s, "damaged tail at byte {}: {} (everything before it replayed)", t.offset, t.reason);
     }
+    let d = &r.records.damaged;
+    if d.stretches > 0 {
+        let at: Vec<String> =
+            d.first.iter().take(5).map(|x| format!("byte {} ({} bytes)", x.offset, x.bytes)).collect();
+        let more = if d.stretches > 5 { format!(" and {} more", d.stretches - 5) } else { String::new() };
+        let _ = writeln!(
+            s,
+            "damaged: {} stretches, {} bytes skipped, about {} records lost, at {}{more}; the rest replayed",
+            d.stretches,
+            d.bytes,
+            d.records,
+            at.join(", ")
+        );
+    }
     for (name, st) in [("tracking", &r.steps.tracking), ("ego", &r.steps.ego)] {
         let _ = write!(
             s,

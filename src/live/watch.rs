@@ -437,6 +437,7 @@ pub fn run(
         input_digest: String::new(),
         first_rejected: first_bad,
         tail: None,
+        damage: Default::default(),
     };
     let report = Report::build(cfg, &monitor, inputs);
     if let Some(p) = &opts.report {

@@ -26,6 +26,28 @@ pub struct Chunk {
     pub first: u64,
     /// File offset just past the chunk (for progress).
     pub end: u64,
+    /// Binary records with a sync marker (format 2), whose checksums the framer has
+    /// already verified.
+    pub synced: bool,
+}
+
+/// The marker that starts every record of a format-2 binary log: after damage, the
+/// reader finds the next record by it (and its length and checksum).
+pub const SYNC: [u8; 4] = [0xA7, b'p', b'l', b'r'];
+
+/// A damaged stretch of a binary log that the reader skipped to reach the next whole
+/// record.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Damage {
+    /// Byte offset where the damage starts.
+    pub offset: u64,
+    /// Bytes skipped.
+    pub bytes: u64,
+    /// Records lost in it (the damaged one, and record starts inside the stretch that did
+    /// not verify).
+    pub records: u64,
+    /// What was found at `offset`.
+    pub reason: String,
 }
 
 /// What a framer yields.
@@ -42,6 +64,8 @@ pub enum Frame {
     },
     /// The readable part ends here.
     Tail(Tail),
+    /// A damaged stretch skipped; reading goes on after it (format 2 only).
+    Skipped(Damage),
 }
 
 /// A reader that can hash what passes through it.
@@ -136,7 +160,7 @@ impl<R: Read> LineFramer<R> {
                 let first = self.line + 1;
                 self.line += memchr::memchr_iter(b'\n', &bytes).count() as u64;
                 self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off })));
+                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off, synced: false })));
             }
             if self.eof {
                 if self.carry.is_empty() {
@@ -145,7 +169,12 @@ impl<R: Read> LineFramer<R> {
                 let bytes = std::mem::take(&mut self.carry);
                 self.line += 1;
                 self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk { bytes, first: self.line, end: self.off })));
+                return Ok(Some(Frame::Chunk(Chunk {
+                    bytes,
+                    first: self.line,
+                    end: self.off,
+                    synced: false,
+                })));
             }
             if self.carry.len() > MAX_LINE {
                 return self.skip_long_line().map(Some);
@@ -184,10 +213,22 @@ pub struct RecordFramer<R> {
     eof: bool,
     done: bool,
     max_record: u32,
+    synced: bool,
+}
+
+/// What a format-2 record at the start of some bytes is.
+enum At {
+    /// A whole record that verifies, this long in all.
+    Record(usize),
+    /// Not enough bytes to tell.
+    Short,
+    /// Not a record: why.
+    Bad(&'static str),
 }
 
 impl<R: Read> RecordFramer<R> {
-    /// Frames records starting at file offset `off`.
+    /// Frames format-1 records (length, checksum, payload) starting at file offset `off`:
+    /// damage ends the readable part.
     pub fn new(r: R, off: u64, max_record: u32) -> Self {
         RecordFramer {
             src: Hashed { r, hash: None },
@@ -196,6 +237,141 @@ impl<R: Read> RecordFramer<R> {
             eof: false,
             done: false,
             max_record,
+            synced: false,
+        }
+    }
+
+    /// Frames format-2 records (sync marker, length, checksum, payload): the framer
+    /// verifies each record's checksum, and after damage finds the next record that
+    /// verifies and goes on, yielding the stretch in between as [`Frame::Skipped`].
+    pub fn synced(r: R, off: u64, max_record: u32) -> Self {
+        RecordFramer { synced: true, ..RecordFramer::new(r, off, max_record) }
+    }
+
+    fn at(&self, pos: usize) -> At {
+        let b = &self.carry[pos..];
+        if b.len() < 12 {
+            return if b.len() >= 4 && b[..4] != SYNC { At::Bad("no sync marker") } else { At::Short };
+        }
+        if b[..4] != SYNC {
+            return At::Bad("no sync marker");
+        }
+        let len = u32::from_le_bytes([b[4], b[5], b[6], b[7]]);
+        if len > self.max_record {
+            return At::Bad("record length out of range");
+        }
+        if b.len() < 12 + len as usize {
+            return At::Short;
+        }
+        let crc = u32::from_le_bytes([b[8], b[9], b[10], b[11]]);
+        if crc32fast::hash(&b[12..12 + len as usize]) != crc {
+            return At::Bad("record checksum mismatch");
+        }
+        At::Record(12 + len as usize)
+    }
+
+    /// The next frame of a format-2 log.
+    fn next_synced(&mut self) -> std::io::Result<Option<Frame>> {
+        loop {
+            if !self.eof && self.src.fill(&mut self.carry, BLOCK)? == 0 {
+                self.eof = true;
+            }
+            let mut pos = 0usize;
+            let mut bad = None;
+            loop {
+                match self.at(pos) {
+                    At::Record(n) => pos += n,
+                    At::Short => break,
+                    At::Bad(why) => {
+                        bad = Some(why);
+                        break;
+                    }
+                }
+            }
+            // A short record at the end of the file is damage too, unless nothing that
+            // verifies follows it (then it is a torn tail).
+            if bad.is_none() && self.eof && pos < self.carry.len() {
+                bad = Some("record cut short");
+            }
+            if pos > 0 {
+                let rest = self.carry.split_off(pos);
+                let bytes = std::mem::replace(&mut self.carry, rest);
+                let first = self.off;
+                self.off += bytes.len() as u64;
+                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off, synced: true })));
+            }
+            if let Some(why) = bad {
+                return self.resync(why).map(Some);
+            }
+            if self.eof {
+                self.done = true;
+                return Ok(None);
+            }
+        }
+    }
+
+    /// Drops `n` carried bytes, moving the file offset past them.
+    fn drop_front(&mut self, n: usize) {
+        self.carry.drain(..n);
+        self.off += n as u64;
+    }
+
+    /// Reads another block onto the carry; false at the end of the file.
+    fn more(&mut self) -> std::io::Result<bool> {
+        if !self.eof && self.src.fill(&mut self.carry, BLOCK)? == 0 {
+            self.eof = true;
+        }
+        Ok(!self.eof)
+    }
+
+    /// Damage at the start of the carried bytes: looks for the next sync marker that
+    /// starts a record that verifies, reading on as needed (at most one record's worth
+    /// to judge a candidate). The stretch before it is skipped; with none before the end
+    /// of the file, the damage is a torn or damaged tail.
+    fn resync(&mut self, why: &str) -> std::io::Result<Frame> {
+        let offset = self.off;
+        let mut records = 1u64;
+        self.drop_front(1);
+        loop {
+            match memchr::memmem::find(&self.carry, &SYNC) {
+                Some(q) => {
+                    self.drop_front(q);
+                    loop {
+                        match self.at(0) {
+                            At::Record(_) => {
+                                let bytes = self.off - offset;
+                                return Ok(Frame::Skipped(Damage {
+                                    offset,
+                                    bytes,
+                                    records,
+                                    reason: why.into(),
+                                }));
+                            }
+                            At::Short if self.more()? => continue,
+                            // A marker that starts no record that verifies: a record lost
+                            // in the stretch (or a marker's bytes inside a payload).
+                            At::Short | At::Bad(_) => {
+                                records += 1;
+                                self.drop_front(1);
+                                break;
+                            }
+                        }
+                    }
+                }
+                None => {
+                    // No marker in the carry, but its last 3 bytes may begin one.
+                    self.drop_front(self.carry.len().saturating_sub(3));
+                    if !self.more()? {
+                        self.done = true;
+                        let reason = if self.off - offset <= 1 && self.carry.is_empty() {
+                            why.to_string()
+                        } else {
+                            format!("{why}, and no whole record after it")
+                        };
+                        return Ok(Frame::Tail(Tail { offset, reason }));
+                    }
+                }
+            }
         }
     }
 
@@ -215,6 +391,9 @@ impl<R: Read> RecordFramer<R> {
     pub fn next_frame(&mut self) -> std::io::Result<Option<Frame>> {
         if self.done {
             return Ok(None);
+        }
+        if self.synced {
+            return self.next_synced();
         }
         loop {
             if !self.eof && self.src.fill(&mut self.carry, BLOCK)? == 0 {
@@ -239,7 +418,7 @@ impl<R: Read> RecordFramer<R> {
                 let bytes = std::mem::replace(&mut self.carry, rest);
                 let first = self.off;
                 self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off })));
+                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off, synced: false })));
             }
             if let Some(len) = bad_len {
                 self.done = true;
@@ -276,6 +455,71 @@ mod tests {
         let Some(Frame::Chunk(c)) = f.next_frame().unwrap() else { panic!() };
         assert_eq!((c.bytes.as_slice(), c.first, c.end), (&b"ccc"[..], 4, 9));
         assert!(f.next_frame().unwrap().is_none());
+    }
+
+    /// Format-2 records of the given payload lengths (payload bytes all 7).
+    fn synced_records(lens: &[u32]) -> (Vec<u8>, Vec<usize>) {
+        let (mut data, mut starts) = (Vec::new(), Vec::new());
+        for &len in lens {
+            starts.push(data.len());
+            let payload = vec![7u8; len as usize];
+            data.extend_from_slice(&SYNC);
+            data.extend_from_slice(&len.to_le_bytes());
+            data.extend_from_slice(&crc32fast::hash(&payload).to_le_bytes());
+            data.extend_from_slice(&payload);
+        }
+        (data, starts)
+    }
+
+    fn frames(data: &[u8]) -> Vec<Frame> {
+        let mut f = RecordFramer::synced(data, 0, 1 << 20);
+        std::iter::from_fn(|| f.next_frame().unwrap()).collect()
+    }
+
+    #[test]
+    fn synced_records_skip_a_damaged_one_and_go_on() {
+        let (mut data, starts) = synced_records(&[30, 40, 50, 60]);
+        // A flipped bit in the second record's payload.
+        data[starts[1] + 20] ^= 0x10;
+        let f = frames(&data);
+        assert!(matches!(&f[0], Frame::Chunk(c) if c.first == 0 && c.bytes.len() == starts[1] && c.synced));
+        let Frame::Skipped(d) = &f[1] else { panic!("{:?}", f[1]) };
+        assert_eq!((d.offset, d.bytes, d.records), (starts[1] as u64, (starts[2] - starts[1]) as u64, 1));
+        assert!(d.reason.contains("checksum"));
+        assert!(
+            matches!(&f[2], Frame::Chunk(c) if c.first == starts[2] as u64 && c.end == data.len() as u64)
+        );
+        assert_eq!(f.len(), 3);
+        // A damaged marker, and garbage bytes inserted between two records.
+        let (mut data, starts) = synced_records(&[30, 40, 50]);
+        data[starts[1]] ^= 0x01;
+        data.splice(starts[2]..starts[2], [1u8, 2, 3, 0xA7, b'p']);
+        let f = frames(&data);
+        let Frame::Skipped(d) = &f[1] else { panic!("{:?}", f[1]) };
+        assert_eq!(d.offset, starts[1] as u64);
+        assert_eq!(d.bytes as usize, starts[2] + 5 - starts[1]);
+        assert!(matches!(&f[2], Frame::Chunk(c) if c.bytes.len() == 12 + 50));
+    }
+
+    #[test]
+    fn a_synced_record_cut_short_is_the_tail() {
+        let (data, starts) = synced_records(&[30, 40, 50]);
+        let cut = &data[..data.len() - 7];
+        let f = frames(cut);
+        assert_eq!(f.len(), 2);
+        let Frame::Tail(t) = &f[1] else { panic!("{:?}", f[1]) };
+        assert_eq!(t.offset, starts[2] as u64);
+        assert!(t.reason.contains("cut short"), "{}", t.reason);
+        // A length flipped past the end of the file is damage when a record follows it.
+        let (mut data, starts) = synced_records(&[30, 40, 50]);
+        data[starts[1] + 6] = 0x0f;
+        let f = frames(&data);
+        assert!(
+            matches!(&f[1], Frame::Skipped(d) if d.offset == starts[1] as u64 && d.records == 1),
+            "{:?}",
+            f[1]
+        );
+        assert!(matches!(&f[2], Frame::Chunk(c) if c.first == starts[2] as u64));
     }
 
     #[test]

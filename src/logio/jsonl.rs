@@ -149,18 +149,23 @@ pub fn decode_line_serde(
     let key = parsed.key.ok_or_else(|| (None, Reject::MissingField("key".into())))?.0;
     let key_role = role_for(cfg, &[], &key);
     let body = parsed.body.ok_or_else(|| (key_role, Reject::MissingField("msg".into())))?;
-    if let Some(r) = parsed.recv {
-        check_time("recv", r, limits).map_err(|e| (key_role, e))?;
+    if parsed.recv.is_some_and(|r| !r.is_finite()) {
+        return Err((key_role, Reject::NonFinite("recv".into())));
     }
     let (role, msg) = match body {
-        Body::Typed(role, msg) => (role, msg),
+        Body::Typed(role, msg) => {
+            validate(&msg, limits).map_err(|e| (Some(role), e))?;
+            (role, msg)
+        }
         Body::Raw(raw) => {
             let role = role_for(cfg, &[], &key).ok_or_else(|| (None, Reject::UnboundKey(key.to_string())))?;
-            let msg = decode_json(role.kind(), raw.get(), limits).map_err(|e| (Some(role), e))?;
-            return Ok((role, LogRecord { key: key.into_owned(), recv: parsed.recv, msg }));
+            (role, decode_json(role.kind(), raw.get(), limits).map_err(|e| (Some(role), e))?)
         }
     };
-    validate(&msg, limits).map_err(|e| (Some(role), e))?;
+    // The message first, then its arrival time, in the order the direct reader checks.
+    if let Some(r) = parsed.recv {
+        check_time("recv", r, limits).map_err(|e| (Some(role), e))?;
+    }
     Ok((role, LogRecord { key: key.into_owned(), recv: parsed.recv, msg }))
 }
 
@@ -234,8 +239,9 @@ pub fn decode_frame(cfg: &Config, limits: &Limits, frame: Frame, out: &mut Vec<I
             out.push(Item::Bad { pos: Position::Line(line), role: None, reason: Reject::TooLong(MAX_LINE) });
             end
         }
-        // Lines have no tail; a framer of lines never yields one.
+        // Lines have no tail and no skipped stretch; a framer of lines yields neither.
         Frame::Tail(t) => t.offset,
+        Frame::Skipped(d) => d.offset + d.bytes,
     }
 }
 

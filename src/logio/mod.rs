@@ -6,6 +6,8 @@ pub mod journal;
 pub mod jsonl;
 pub mod plb;
 
+pub use chunks::Damage;
+
 use std::path::Path;
 
 use thiserror::Error;
@@ -52,6 +54,8 @@ pub enum Item {
         /// The record.
         rec: LogRecord,
     },
+    /// A damaged stretch of a binary log, skipped to reach the next whole record.
+    Damaged(Damage),
     /// A rejected record.
     Bad {
         /// Where.

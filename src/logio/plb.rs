@@ -1,14 +1,19 @@
 //! The binary log form `.plb`.
 //!
 //! Layout (all integers little-endian):
-//! - magic `PLUMBLOG` (8 bytes), format version `u16` (= 1), reserved `u16` (= 0);
+//! - magic `PLUMBLOG` (8 bytes), format version `u16` (2; 1 is still read), reserved
+//!   `u16` (= 0);
 //! - header length `u32`, header bytes (postcard [`Header`]), CRC32 of the header `u32`;
-//! - records, each: payload length `u32`, CRC32 of the payload `u32`, payload (postcard
-//!   [`LogRecord`]).
+//! - records, each: the sync marker `A7 70 6C 72` (format 2 only), payload length `u32`,
+//!   CRC32 of the payload `u32`, payload (postcard [`LogRecord`]).
 //!
-//! A record cut short or failing its CRC ends the readable part: the reader reports the
-//! byte offset where it starts, and every record before it replays. A record whose CRC
-//! holds but whose content fails validation is rejected alone and reading goes on.
+//! Format 2: a record that fails its marker, length or CRC is damage; the reader finds the
+//! next marker that starts a record that verifies, skips the stretch in between (reported
+//! with its offset, size and the records lost in it) and goes on, so a flipped bit costs
+//! one record, not the rest of the file. A stretch with no whole record after it, as a
+//! power cut leaves, is the damaged tail. Format 1 has no markers: a record cut short or
+//! failing its CRC ends the readable part there. In both, a record whose CRC holds but
+//! whose content fails validation is rejected alone and reading goes on.
 
 use std::fs::File;
 use std::io::{BufWriter, Read, Write};
@@ -16,6 +21,7 @@ use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
+pub use super::chunks::SYNC;
 use super::chunks::{Chunk, Frame, RecordFramer};
 use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome, Tail};
 use crate::config::Config;
@@ -23,8 +29,8 @@ use crate::msg::{check_time, validate, Limits, Reject};
 
 /// File magic.
 pub const MAGIC: &[u8; 8] = b"PLUMBLOG";
-/// Format version written and read.
-pub const VERSION: u16 = 1;
+/// Format version written (1 and 2 are read).
+pub const VERSION: u16 = 2;
 /// Largest record accepted; a larger length field marks a corrupt tail.
 pub const MAX_RECORD: u32 = 64 << 20;
 
@@ -76,10 +82,11 @@ impl<W: Write> PlbWriter<W> {
         self.buf.clear();
         let payload =
             postcard::to_extend(rec, std::mem::take(&mut self.buf)).map_err(std::io::Error::other)?;
+        self.out.write_all(&SYNC)?;
         self.out.write_all(&(payload.len() as u32).to_le_bytes())?;
         self.out.write_all(&crc32fast::hash(&payload).to_le_bytes())?;
         self.out.write_all(&payload)?;
-        self.bytes += 8 + payload.len() as u64;
+        self.bytes += 12 + payload.len() as u64;
         self.buf = payload;
         Ok(())
     }
@@ -117,8 +124,8 @@ fn read_full(r: &mut impl Read, buf: &mut [u8]) -> std::io::Result<usize> {
 
 /// Reads a binary log's header.
 ///
-/// Returns the header and the raw bytes it took.
-pub fn read_header(r: &mut impl Read, path: &Path) -> Result<(Header, Vec<u8>), LogError> {
+/// Returns the header, the raw bytes it took and the format version.
+pub fn read_header(r: &mut impl Read, path: &Path) -> Result<(Header, Vec<u8>, u16), LogError> {
     let bad = |why: &str| LogError::BadHeader { path: path.display().to_string(), why: why.to_string() };
     let mut fixed = [0u8; 16];
     if read_full(r, &mut fixed).map_err(io_err(path))? < 16 {
@@ -128,8 +135,8 @@ pub fn read_header(r: &mut impl Read, path: &Path) -> Result<(Header, Vec<u8>), 
         return Err(bad("wrong magic"));
     }
     let version = u16::from_le_bytes([fixed[8], fixed[9]]);
-    if version != VERSION {
-        return Err(bad(&format!("format version {version}, this build reads {VERSION}")));
+    if version != 1 && version != VERSION {
+        return Err(bad(&format!("format version {version}, this build reads 1 and {VERSION}")));
     }
     let len = u32::from_le_bytes([fixed[12], fixed[13], fixed[14], fixed[15]]);
     if len > MAX_RECORD {
@@ -146,7 +153,16 @@ pub fn read_header(r: &mut impl Read, path: &Path) -> Result<(Header, Vec<u8>), 
     let header: Header = postcard::from_bytes(body).map_err(|e| bad(&e.to_string()))?;
     let mut raw = fixed.to_vec();
     raw.extend_from_slice(&h);
-    Ok((header, raw))
+    Ok((header, raw, version))
+}
+
+/// The framer for a file of `version` whose records start at `off`.
+fn framer<R: Read>(r: R, off: u64, version: u16) -> RecordFramer<R> {
+    if version >= 2 {
+        RecordFramer::synced(r, off, MAX_RECORD)
+    } else {
+        RecordFramer::new(r, off, MAX_RECORD)
+    }
 }
 
 /// Decodes a chunk of whole records. Returns the tail when a record fails its checksum;
@@ -160,13 +176,16 @@ pub fn decode_chunk(
 ) -> Option<Tail> {
     let mut pos = 0usize;
     let b = &chunk.bytes;
-    while pos + 8 <= b.len() {
+    // Format 2 records carry the sync marker first, and the framer verified their CRCs.
+    let skip = if chunk.synced { 4 } else { 0 };
+    while pos + skip + 8 <= b.len() {
         let off = chunk.first + pos as u64;
-        let len = u32::from_le_bytes([b[pos], b[pos + 1], b[pos + 2], b[pos + 3]]) as usize;
-        let crc = u32::from_le_bytes([b[pos + 4], b[pos + 5], b[pos + 6], b[pos + 7]]);
-        let payload = &b[pos + 8..pos + 8 + len];
-        pos += 8 + len;
-        if crc32fast::hash(payload) != crc {
+        let h = pos + skip;
+        let len = u32::from_le_bytes([b[h], b[h + 1], b[h + 2], b[h + 3]]) as usize;
+        let crc = u32::from_le_bytes([b[h + 4], b[h + 5], b[h + 6], b[h + 7]]);
+        let payload = &b[h + 8..h + 8 + len];
+        pos = h + 8 + len;
+        if !chunk.synced && crc32fast::hash(payload) != crc {
             return Some(Tail { offset: off, reason: "record checksum mismatch".into() });
         }
         out.push(decode_record(cfg, header_roles, limits, payload, Position::Offset(off)));
@@ -208,8 +227,8 @@ fn decode_record(
 /// With `hash`, the framer also hashes the whole file, header included.
 pub fn open(path: &Path, hash: bool) -> Result<(Header, RecordFramer<File>), LogError> {
     let mut f = File::open(path).map_err(io_err(path))?;
-    let (header, raw) = read_header(&mut f, path)?;
-    let framer = RecordFramer::new(f, raw.len() as u64, MAX_RECORD);
+    let (header, raw, version) = read_header(&mut f, path)?;
+    let framer = framer(f, raw.len() as u64, version);
     Ok((header, if hash { framer.hashing(&raw) } else { framer }))
 }
 
@@ -224,6 +243,11 @@ pub fn decode_frame(
     match frame {
         Frame::Chunk(c) => (c.end, decode_chunk(cfg, header_roles, limits, &c, out)),
         Frame::Tail(t) => (t.offset, Some(t)),
+        Frame::Skipped(d) => {
+            let end = d.offset + d.bytes;
+            out.push(Item::Damaged(d));
+            (end, None)
+        }
         // Binary framing has no lines.
         Frame::LongLine { end, .. } => (end, None),
     }
@@ -243,8 +267,8 @@ pub fn read_from(
     name: &Path,
     each: &mut dyn FnMut(Item, u64),
 ) -> Result<ReadOutcome, LogError> {
-    let (header, raw) = read_header(&mut r, name)?;
-    let mut framer = RecordFramer::new(r, raw.len() as u64, MAX_RECORD);
+    let (header, raw, version) = read_header(&mut r, name)?;
+    let mut framer = framer(r, raw.len() as u64, version);
     let limits = cfg.limits();
     let mut items = Vec::new();
     let mut bytes = 0;
