@@ -340,3 +340,40 @@ impl RuleSet {
 pub fn critical_failed(verdicts: &[Verdict]) -> bool {
     verdicts.iter().any(|v| v.verdict == "fail" && v.severity == "critical")
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn rule(above: bool) -> Rule {
+        Rule {
+            name: "r".into(),
+            metric: Metric::Gospa,
+            role: None,
+            window: RuleWindow::Run,
+            window_label: "run".into(),
+            stat: Stat::from_name("mean").expect("mean is a statistic"),
+            above,
+            threshold: 3.0,
+            sustain: 0.0,
+            clear_after: 0.0,
+            severity: Severity::Critical,
+        }
+    }
+
+    /// A statistic that is not a number never passes, in either direction, and is the
+    /// worst of any pair. Before: a run mean of NaN (from a coordinate of 1e308) passed a
+    /// critical run rule, since NaN > 3 and NaN < 3 are both false.
+    #[test]
+    fn a_non_finite_statistic_never_passes() {
+        for above in [true, false] {
+            let r = rule(above);
+            for v in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+                assert!(r.breaches(v), "above={above} v={v}");
+                assert!(!r.worse(1.0, v).is_finite() && !r.worse(v, 1.0).is_finite());
+            }
+            assert_eq!(r.breaches(5.0), above);
+            assert_eq!(r.worse(1.0, 5.0), if above { 5.0 } else { 1.0 });
+        }
+    }
+}
