@@ -286,8 +286,9 @@ pub fn match_with_cutoff(
 }
 
 /// [`match_with_cutoff`] within a budget: a component of more than `exact_cells` rows x
-/// columns, or a step with more than [`MAX_EDGES_PER_CELL`] x `exact_cells` candidate
-/// pairs, is assigned by [`greedy`] and the matching is marked `approximate`. Below the
+/// columns, a component past [`MAX_EDGES_PER_CELL`] x `exact_cells` cells solved exactly
+/// in the step so far, or a step with more than [`MAX_EDGES_PER_CELL`] x `exact_cells`
+/// candidate pairs, is assigned by [`greedy`] and the matching is marked `approximate`. Below the
 /// budget the result is the exact optimum, as [`match_with_cutoff`] gives it.
 #[allow(clippy::too_many_arguments)]
 pub fn match_bounded(
@@ -309,6 +310,9 @@ pub fn match_bounded(
     let cp = pow_p(c, p);
     let c2 = c * c;
     let edge_budget = exact_cells.saturating_mul(MAX_EDGES_PER_CELL);
+    // Cells the exact solves of this step may still take (many mid-sized components
+    // would otherwise add up: 14 components of 700 x 700 in 10,000 objects).
+    let mut cells_left = edge_budget;
     let whole_greedy = |out: &mut Matching| {
         let (rows, cols): (Vec<usize>, Vec<usize>) = ((0..m).collect(), (0..n).collect());
         greedy(&rows, &cols, xs, ys, c, &mut out.pairs);
@@ -430,7 +434,7 @@ pub fn match_bounded(
         if end - start == 1 {
             let e = s.order[start];
             s.slot[s.edges[e].0] = e;
-        } else if !solve_component(s, start, end, cp, p, exact_cells, solver, xs, ys, c) {
+        } else if !solve_component(s, start, end, cp, p, exact_cells, &mut cells_left, solver, xs, ys, c) {
             out.approximate = true;
         }
         start = end;
@@ -441,8 +445,8 @@ pub fn match_bounded(
     out
 }
 
-/// Solves one component: exactly when its rows x columns fit `exact_cells` (returns
-/// true), else greedily (returns false).
+/// Solves one component: exactly when its rows x columns fit `exact_cells` and what is
+/// left of the step's cells (returns true, and takes them), else greedily (returns false).
 #[allow(clippy::too_many_arguments)]
 fn solve_component(
     s: &mut MatchScratch,
@@ -451,6 +455,7 @@ fn solve_component(
     cp: f64,
     p: f64,
     exact_cells: usize,
+    cells_left: &mut usize,
     solver: &mut dyn Assigner,
     xs: &[[f64; 2]],
     ys: &[[f64; 2]],
@@ -470,7 +475,8 @@ fn solve_component(
         }
     }
     let (r, nc) = (s.comp_rows.len(), s.comp_cols.len());
-    if r.saturating_mul(nc) > exact_cells {
+    let cells = r.saturating_mul(nc);
+    if cells > exact_cells || cells > *cells_left {
         // Rows in reference order, so the greedy pass is the same whatever the edge order.
         s.comp_rows.sort_unstable();
         let mut pairs = Vec::with_capacity(r.min(nc));
@@ -487,6 +493,7 @@ fn solve_component(
         }
         return false;
     }
+    *cells_left -= cells;
     let c = nc;
     s.cost.clear();
     s.cost.resize(r * c, cp);
