@@ -220,6 +220,12 @@ pub struct RawRule {
     pub severity: Option<String>,
     /// role filter
     pub role: Option<String>,
+    /// judge |value| (with stat max or last)
+    pub magnitude: Option<bool>,
+    /// values needed before the statistic is judged
+    pub min_values: Option<i64>,
+    /// a run without data for this rule passes it
+    pub allow_no_data: Option<bool>,
 }
 
 /// `[tracking]`
@@ -797,6 +803,26 @@ fn build_rule(
     if r.name.trim().is_empty() {
         return Err(err(source, &key("name"), "a non-empty name"));
     }
+    let magnitude = r.magnitude.unwrap_or(false);
+    if magnitude && !matches!(stat, Stat::Max | Stat::Last) {
+        return Err(err(
+            source,
+            &key("magnitude"),
+            "magnitude = true with stat \"max\" or \"last\" (the largest or the last |value|)",
+        ));
+    }
+    if magnitude && !above {
+        return Err(err(
+            source,
+            &key("magnitude"),
+            "magnitude = true with `above` (|value| is never below 0)",
+        ));
+    }
+    let min_values = match r.min_values {
+        None => 0,
+        Some(n) if n >= 0 => n as u64,
+        Some(n) => return Err(err(source, &key("min_values"), format!("a whole number >= 0, found {n}"))),
+    };
     Ok(Rule {
         name: r.name.clone(),
         metric,
@@ -809,6 +835,9 @@ fn build_rule(
         sustain: duration(source, &key("sustain"), &r.sustain, 0.0)?,
         clear_after: duration(source, &key("clear_after"), &r.clear_after, 0.0)?,
         severity,
+        magnitude,
+        min_values,
+        allow_no_data: r.allow_no_data.unwrap_or(false),
     })
 }
 

@@ -72,6 +72,11 @@ enum Source {
 
 impl Source {
     fn open(path: &Path) -> Result<Source, LogError> {
+        // A folder opens on Linux and then fails every read: say so before anything runs.
+        if path.is_dir() {
+            let source = std::io::Error::new(std::io::ErrorKind::InvalidInput, "is a folder, not a log file");
+            return Err(LogError::Io { path: path.display().to_string(), source });
+        }
         Ok(match Form::of(path) {
             Form::Jsonl => Source::Lines(
                 LineFramer::new(

@@ -340,6 +340,38 @@ impl Report {
         }
     }
 
+    /// Why the run holds nothing to judge, if it does not: no tracking or ego step was
+    /// evaluated and no clearance or path value came out (transport figures alone judge
+    /// no requirement). Such a run exits 2, whatever its rules say.
+    pub fn not_evaluable(&self) -> Option<String> {
+        let judged = self.metrics.iter().any(|(name, st)| {
+            st.count > 0 && !matches!(*name, "latency_s" | "interarrival_s" | "staleness_s")
+        });
+        if judged {
+            return None;
+        }
+        let (t, e, r) = (&self.steps.tracking, &self.steps.ego, &self.records);
+        let mut why = format!(
+            "no evaluated step: {} records accepted, {} rejected; tracking steps {} skipped, ego steps {} skipped",
+            r.accepted, r.rejected, t.skipped, e.skipped
+        );
+        let reasons: Vec<String> = t
+            .skipped_by_reason
+            .iter()
+            .chain(e.skipped_by_reason.iter())
+            .map(|(k, v)| format!("{k} {v}"))
+            .collect();
+        if !reasons.is_empty() {
+            why += &format!(" ({})", reasons.join(", "));
+        }
+        if r.accepted == 0 {
+            why += "; the input holds no valid record";
+        } else if t.evaluated + t.skipped + e.evaluated + e.skipped == 0 {
+            why += "; no estimate/objects or estimate/ego message to evaluate";
+        }
+        Some(why)
+    }
+
     /// Pretty JSON.
     pub fn to_json(&self) -> String {
         serde_json::to_string_pretty(self).unwrap_or_default()

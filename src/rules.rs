@@ -91,9 +91,37 @@ pub struct Rule {
     pub clear_after: f64,
     /// Severity.
     pub severity: Severity,
+    /// Judge the magnitude of a signed metric: `max` reads the largest |value| (the
+    /// larger of |max| and |min|), `last` the last |value| (`magnitude = true`; only
+    /// with `max` or `last`, where the window's own statistics give it exactly).
+    pub magnitude: bool,
+    /// Values the window (or the run) must hold before its statistic is judged
+    /// (`min_values`; a 10 s mean of one value is no 10 s mean).
+    pub min_values: u64,
+    /// A run in which the rule never had data passes it (`allow_no_data = true`); by
+    /// default a critical rule without data fails the run.
+    pub allow_no_data: bool,
 }
 
 impl Rule {
+    /// The statistic the rule judges, from a source of window or run statistics:
+    /// `None` until the source holds `min_values` values.
+    fn judged(&self, get: impl Fn(Stat) -> Option<f64>) -> Option<f64> {
+        if self.min_values > 1 && get(Stat::Count)? < self.min_values as f64 {
+            return None;
+        }
+        if !self.magnitude {
+            return get(self.stat);
+        }
+        match self.stat {
+            Stat::Last => get(Stat::Last).map(f64::abs),
+            _ => {
+                let (lo, hi) = (get(Stat::Min)?, get(Stat::Max)?);
+                Some(lo.abs().max(hi.abs()))
+            }
+        }
+    }
+
     /// Whether a statistic breaks the rule. A statistic that is not a number never
     /// passes: NaN compares false both ways, which would make it a silent pass.
     fn breaches(&self, v: f64) -> bool {
@@ -156,6 +184,9 @@ pub struct Verdict {
     pub rule: String,
     /// `pass`, `fail` or `no_data`.
     pub verdict: &'static str,
+    /// Whether this verdict fails the run: a critical rule that failed, or a critical rule
+    /// with no data unless it allows that (`allow_no_data`).
+    pub fails_run: bool,
     /// Worst value seen.
     pub worst: Option<f64>,
     /// Threshold.
@@ -246,7 +277,8 @@ impl RuleSet {
         for &i in &self.by_key[key] {
             let r = &self.rules[i];
             let RuleWindow::Sliding(w) = r.window else { continue };
-            let Some(v) = ws.get(w).and_then(|w| w.stat(r.stat)) else { continue };
+            let Some(win) = ws.get(w) else { continue };
+            let Some(v) = r.judged(|s| win.stat(s)) else { continue };
             if v.is_nan() {
                 continue;
             }
@@ -309,19 +341,22 @@ impl RuleSet {
                         };
                         let worst = roles
                             .into_iter()
-                            .filter_map(|role| run.stat(r.metric, role, r.stat))
+                            .filter_map(|role| r.judged(|s| run.stat(r.metric, role, s)))
                             .reduce(|a, b| r.worse(a, b));
                         (worst, worst.is_some_and(|v| r.breaches(v)))
                     }
                 };
                 let raised = self.states[i].iter().map(|s| s.raised_count).sum();
+                let verdict = match (worst, failed) {
+                    (_, true) => "fail",
+                    (None, false) => "no_data",
+                    (Some(_), false) => "pass",
+                };
+                let critical = r.severity == Severity::Critical;
                 Verdict {
                     rule: r.name.clone(),
-                    verdict: match (worst, failed) {
-                        (_, true) => "fail",
-                        (None, false) => "no_data",
-                        (Some(_), false) => "pass",
-                    },
+                    verdict,
+                    fails_run: critical && (verdict == "fail" || (verdict == "no_data" && !r.allow_no_data)),
                     worst,
                     threshold: r.threshold,
                     direction: if r.above { "above" } else { "below" },
@@ -336,9 +371,10 @@ impl RuleSet {
     }
 }
 
-/// Whether any critical rule failed.
+/// Whether any verdict fails the run (a critical rule that failed, or that had no data
+/// and does not allow it).
 pub fn critical_failed(verdicts: &[Verdict]) -> bool {
-    verdicts.iter().any(|v| v.verdict == "fail" && v.severity == "critical")
+    verdicts.iter().any(|v| v.fails_run)
 }
 
 #[cfg(test)]
@@ -358,6 +394,9 @@ mod tests {
             sustain: 0.0,
             clear_after: 0.0,
             severity: Severity::Critical,
+            magnitude: false,
+            min_values: 0,
+            allow_no_data: false,
         }
     }
 

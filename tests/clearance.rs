@@ -245,3 +245,53 @@ fn plan_jobs_run_beside_the_engine_give_the_inline_samples() {
         assert_eq!(key(a), key(b), "sample {k}");
     }
 }
+
+/// A plan that keeps exactly `clearance.inflation_m` from an obstacle has a margin of 0,
+/// whatever its heading: the margin is snapped to 0 within a micrometre (below anything a
+/// site map or a planner resolves), so float rounding in the headings and corners cannot
+/// turn it into a breach of `below = 0`. Before: `-8.66e-8` raised the planner-margin rule
+/// twice a lap.
+#[test]
+fn a_plan_exactly_at_the_inflation_distance_has_a_margin_of_zero() {
+    let cp = ClearanceParams::default();
+    let (half_w, infl) = (cp.footprint.width / 2.0, cp.inflation);
+    for k in 0..24 {
+        let th = k as f64 * 0.2618 + 0.05;
+        let (c, s) = (th.cos(), th.sin());
+        let at = |u: f64, v: f64| (u * c - v * s, u * s + v * c);
+        // The box's near side lies half a footprint width plus the inflation off the line.
+        let (bx, by) = at(10.0, half_w + infl + 1.0);
+        let map = ObstacleSet {
+            stamp: 0.0,
+            obstacles: vec![Obstacle {
+                id: 1,
+                shape: Shape::Box,
+                x: Some(bx),
+                y: Some(by),
+                yaw: Some(th),
+                radius: None,
+                length: Some(40.0),
+                width: Some(2.0),
+                points: None,
+            }],
+        };
+        let poses = (0..=20)
+            .map(|i| {
+                let (x, y) = at(i as f64, 0.0);
+                plumbline::msg::PathPose { x, y, yaw: None }
+            })
+            .collect();
+        let plan = plumbline::msg::Path { stamp: 1.0, poses, goal: None, compute_s: None };
+        let mut e = Engine::new(TrackingParams::default(), AlignParams::default(), cp);
+        let mut out = Vec::new();
+        e.push(
+            Input::Message { role: Role::ReferenceObstacles, recv: Some(0.0), msg: Msg::Obstacles(map) },
+            &mut out,
+        );
+        e.push(Input::Message { role: Role::PlanPath, recv: Some(1.0), msg: Msg::Path(plan) }, &mut out);
+        e.finish(&mut out);
+        let margin: Vec<f64> =
+            out.iter().filter(|s| s.metric == Metric::PathMargin).map(|s| s.value).collect();
+        assert_eq!(margin, vec![0.0], "heading {th}");
+    }
+}

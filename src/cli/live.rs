@@ -204,6 +204,10 @@ pub fn watch_cmd(cfg: &Config, a: &WatchArgs) -> u8 {
     let _ = zenoh::Wait::wait(session.close());
     server.stop();
     match r {
+        Ok(rep) if rep.not_evaluable().is_some() => {
+            errln!("plumbline watch: {}", rep.not_evaluable().unwrap_or_default());
+            super::EXIT_INPUT
+        }
         Ok(rep) if critical_failed(&rep.verdicts) => super::EXIT_FAIL,
         Ok(_) => super::EXIT_OK,
         Err(e) => fail("watch", e),

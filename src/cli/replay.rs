@@ -107,6 +107,10 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     if !a.quiet {
         out!("{}", summary(&out.report));
     }
+    if let Some(why) = out.report.not_evaluable() {
+        errln!("plumbline replay: {}: {why}", a.log.display());
+        return super::EXIT_INPUT;
+    }
     if critical_failed(&out.report.verdicts) {
         super::EXIT_FAIL
     } else {

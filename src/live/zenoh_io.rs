@@ -44,10 +44,10 @@ pub fn payload_form(encoding: &str) -> Option<PayloadForm> {
 /// theirs, and never recorded as role data.
 pub fn is_role_data(bound: &zenoh::key_expr::KeyExpr<'_>, key: &zenoh::key_expr::KeyExpr<'_>) -> bool {
     let k = key.as_str();
-    if k == bound.as_str() {
-        return true;
+    if k.contains('*') {
+        return false;
     }
-    !(k.contains('*') || k.contains("$*")) && bound.includes(key)
+    k == bound.as_str() || bound.includes(key)
 }
 
 /// Opens a zenoh session as the config says (`[zenoh]`: mode, connect, listen, scouting, or
