@@ -308,3 +308,73 @@ fn a_closed_stderr_does_not_panic_the_command() {
     let out = child.wait_with_output().unwrap();
     assert_eq!(out.status.code(), Some(2));
 }
+
+/// Inputs that hold nothing to judge never give a green. Before: an empty `.jsonl`, a
+/// folder given as the log, an estimates-only log (600 steps skipped, every critical rule
+/// `no_data`) and a log whose reference is always late all exited 0.
+#[test]
+fn nothing_to_judge_exits_2_with_the_reason() {
+    let dir = tempfile::tempdir().unwrap();
+    let empty = dir.path().join("empty.jsonl");
+    std::fs::write(&empty, "").unwrap();
+    let out = plumbline(&["replay", empty.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
+    assert!(text(&out.stderr).contains("no evaluated step"), "{}", text(&out.stderr));
+
+    let out = plumbline(&["replay", dir.path().to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(text(&out.stderr).contains("is a folder"), "{}", text(&out.stderr));
+
+    // Estimates only: every tracking and ego step skipped for want of a reference.
+    let shipped =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl"))
+            .unwrap();
+    let est: String =
+        shipped.lines().filter(|l| l.contains("\"rig/estimate/")).map(|l| format!("{l}\n")).collect();
+    let only = dir.path().join("estimates.jsonl");
+    std::fs::write(&only, est).unwrap();
+    let out = plumbline(&["--config", "config/rig.toml", "replay", only.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
+    let err = text(&out.stderr);
+    assert!(err.contains("no evaluated step") && err.contains("no_reference"), "{err}");
+
+    // The reference always 3 s late (max_wait 0.5 s): tracking steps skip; the ego steps
+    // still judge, and the critical tracking requirement without data fails the run.
+    // A late message is also later in the log: the records go in arrival order.
+    let mut late: Vec<(f64, String)> = shipped
+        .lines()
+        .map(|l| {
+            let mut v: serde_json::Value = serde_json::from_str(l).unwrap();
+            if l.contains("\"rig/reference/objects\"") {
+                v["recv"] = serde_json::json!(v["recv"].as_f64().unwrap() + 3.0);
+            }
+            (v["recv"].as_f64().unwrap(), format!("{v}\n"))
+        })
+        .collect();
+    late.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let late: String = late.into_iter().map(|(_, l)| l).collect();
+    let late_log = dir.path().join("late.jsonl");
+    std::fs::write(&late_log, late).unwrap();
+    let report = dir.path().join("late.json");
+    let out = plumbline(&[
+        "--config",
+        "config/rig.toml",
+        "replay",
+        late_log.to_str().unwrap(),
+        "--report",
+        report.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out.stdout));
+    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    let v =
+        r["verdicts"].as_array().unwrap().iter().find(|v| v["rule"] == "run-tracking-error").unwrap().clone();
+    assert_eq!((v["verdict"].as_str(), v["fails_run"].as_bool()), (Some("no_data"), Some(true)), "{v}");
+    // Unless the rule says that no data is acceptable.
+    let rule = "[[rule]]\nname = \"run-tracking-error\"\nmetric = \"gospa\"\nwindow = \"run\"\nstat = \"mean\"\nabove = 3.0\nseverity = \"critical\"\n";
+    for (extra, code) in [("", 1), ("allow_no_data = true\n", 0)] {
+        let cfg = dir.path().join("one-rule.toml");
+        std::fs::write(&cfg, format!("{rule}{extra}")).unwrap();
+        let out = plumbline(&["--config", cfg.to_str().unwrap(), "replay", late_log.to_str().unwrap()]);
+        assert_eq!(out.status.code(), Some(code), "{extra}: {}", text(&out.stdout));
+    }
+}

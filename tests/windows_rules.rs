@@ -159,3 +159,45 @@ fn window_mean_rule_uses_the_window() {
     assert!((ev[0].value - 6.0).abs() < 1e-12);
     let _ = Stat::Mean;
 }
+
+/// A window statistic is judged only once the window holds `min_values` values. Before:
+/// at the first step a "10 s mean" was the mean of one value, so every run's worst value
+/// was that first step's.
+#[test]
+fn min_values_holds_judgement_until_the_window_has_warmed_up() {
+    let rule = "[[rule]]\nname = \"m\"\nmetric = \"gospa\"\nwindow = \"10s\"\nstat = \"mean\"\nabove = 3.0\n";
+    // 10 Hz: the first value is 12 (a start-up transient), the rest 1.
+    let stream: Vec<(f64, f64)> =
+        (0..200).map(|k| (k as f64 / 10.0, if k == 0 { 12.0 } else { 1.0 })).collect();
+    let (ev, rules) = run(&rules_config(rule), Metric::Gospa, &stream);
+    assert_eq!(ev.first().map(|e| e.kind), Some("raised"), "without a warm-up the first value alone raises");
+    let stats = plumbline::report::RunStats::new(&rules_config(rule));
+    assert_eq!(rules.verdicts(&stats)[0].worst, Some(12.0));
+    let warm = format!("{rule}min_values = 50\n");
+    let (ev, rules) = run(&rules_config(&warm), Metric::Gospa, &stream);
+    assert!(ev.is_empty(), "{ev:?}");
+    // The worst judged mean: 50 values, one of them 12 -> (12 + 49) / 50.
+    let w = rules.verdicts(&stats)[0].worst.unwrap();
+    assert!((w - 61.0 / 50.0).abs() < 1e-12, "{w}");
+}
+
+/// `magnitude = true` judges |value| of a signed metric: a heading error of -0.2 rad breaks
+/// `above = 0.05` as +0.2 does. Before: the shipped heading and lateral rules only looked
+/// at the positive side.
+#[test]
+fn magnitude_rules_judge_both_signs() {
+    let rule = "[[rule]]\nname = \"h\"\nmetric = \"ego_heading_error_rad\"\nwindow = \"1s\"\nstat = \"max\"\nabove = 0.05\n";
+    let stream: Vec<(f64, f64)> =
+        (0..30).map(|k| (k as f64 / 10.0, if k == 12 { -0.2 } else { 0.01 })).collect();
+    let (ev, _) = run(&rules_config(rule), Metric::EgoHeadingError, &stream);
+    assert!(ev.is_empty(), "max of the signed values never exceeds 0.05");
+    let both = format!("{rule}magnitude = true\n");
+    let (ev, rules) = run(&rules_config(&both), Metric::EgoHeadingError, &stream);
+    assert_eq!(ev.first().map(|e| (e.kind, e.value)), Some(("raised", 0.2)), "{ev:?}");
+    let stats = plumbline::report::RunStats::new(&rules_config(&both));
+    assert_eq!(rules.verdicts(&stats)[0].worst, Some(0.2));
+    // Only where the window's statistics give |value| exactly.
+    let bad = rule.replace("\"max\"", "\"p95\"") + "magnitude = true\n";
+    let e = Config::load(Some(("r.toml", &bad)), &[]).unwrap_err();
+    assert_eq!(e.key, "rule[0].magnitude");
+}
