@@ -21,8 +21,11 @@ pub struct RuleAggregate {
     /// Runs that failed, out of runs with data, with the 95% Clopper-Pearson interval on the
     /// failure rate.
     pub failure_rate: Option<Rate>,
-    /// Runs without data.
+    /// Runs without data (for a rule that allows it, or one that is not critical).
     pub no_data: u64,
+    /// Runs counted as failures because they could not be judged whole (unreadable,
+    /// nothing evaluated, or damaged): never counted as passing.
+    pub incomplete: u64,
     /// The worst runs (input, worst value), worst first.
     pub worst_runs: Vec<(String, f64)>,
     /// Every run's worst value (for the histogram).
@@ -53,11 +56,16 @@ pub struct CampaignReport {
     pub version: &'static str,
     /// Config digest.
     pub config_digest: String,
-    /// Runs replayed.
+    /// Runs read (the unreadable ones are not among them).
     pub runs: u64,
     /// Runs that could not be read.
     pub unreadable: Vec<String>,
-    /// Runs in which a critical rule failed.
+    /// Runs that were read but held no evaluated step.
+    pub empty: Vec<String>,
+    /// Runs whose binary log was damaged (a skipped stretch or a damaged tail): judged,
+    /// but never counted as passing.
+    pub damaged: Vec<String>,
+    /// Runs in which a critical rule failed (or had no data and does not allow that).
     pub critical_failures: u64,
     /// Per rule.
     pub rules: Vec<RuleAggregate>,
@@ -65,21 +73,66 @@ pub struct CampaignReport {
     pub metrics: BTreeMap<String, MetricAggregate>,
 }
 
+/// How a campaign ends, by the rule of the README: exit 1 when a run fails a critical
+/// rule or could not be judged whole (unreadable, empty, damaged); with
+/// `max_failure_rate`, exit 1 exactly when a critical rule's Clopper-Pearson upper bound
+/// (95% two-sided, incomplete runs counted as failures) exceeds it; exit 2 when no run
+/// holds anything to judge.
+pub fn exit_code(cfg: &Config, agg: &CampaignReport, max_failure_rate: Option<f64>) -> u8 {
+    let judged = agg.runs as usize - agg.empty.len();
+    if judged == 0 {
+        return 2;
+    }
+    let failed = match max_failure_rate {
+        None => {
+            agg.critical_failures > 0
+                || !agg.unreadable.is_empty()
+                || !agg.empty.is_empty()
+                || !agg.damaged.is_empty()
+        }
+        Some(limit) => cfg.rules.iter().zip(&agg.rules).any(|(r, a)| {
+            r.severity == crate::rules::Severity::Critical
+                && a.failure_rate.as_ref().is_some_and(|x| x.upper > limit)
+        }),
+    };
+    u8::from(failed)
+}
+
 /// Aggregates run reports (pure).
-pub fn aggregate(cfg: &Config, runs: &[Report], unreadable: Vec<String>) -> CampaignReport {
+pub fn aggregate(cfg: &Config, all: &[Report], unreadable: Vec<String>) -> CampaignReport {
+    // Runs with nothing evaluated are listed apart and judged by none of their verdicts.
+    let empty: Vec<String> =
+        all.iter().filter(|r| r.not_evaluable().is_some()).map(|r| r.input.clone()).collect();
+    let runs: Vec<&Report> = all.iter().filter(|r| r.not_evaluable().is_none()).collect();
+    let is_damaged = |r: &Report| r.records.tail.is_some() || r.records.damaged.stretches > 0;
+    let damaged: Vec<String> = runs.iter().filter(|r| is_damaged(r)).map(|r| r.input.clone()).collect();
+    // Unreadable, empty and damaged runs count as failures of every rule.
+    let incomplete = (unreadable.len() + empty.len()) as u64;
     let mut rules = Vec::new();
     for (i, r) in cfg.rules.iter().enumerate() {
-        let (mut fails, mut with_data, mut no_data) = (0u64, 0u64, 0u64);
+        let (mut fails, mut with_data, mut no_data) = (incomplete, incomplete, 0u64);
         let mut worst: Vec<(String, f64)> = Vec::new();
-        for rep in runs {
+        let mut run_incomplete = incomplete;
+        for rep in &runs {
             let Some(v) = rep.verdicts.get(i) else { continue };
-            match v.verdict {
-                "no_data" => no_data += 1,
-                "fail" => {
-                    fails += 1;
-                    with_data += 1
+            if is_damaged(rep) {
+                fails += 1;
+                with_data += 1;
+                run_incomplete += 1;
+            } else {
+                match v.verdict {
+                    // A critical rule without data that does not allow it fails the run.
+                    "no_data" if v.fails_run => {
+                        fails += 1;
+                        with_data += 1
+                    }
+                    "no_data" => no_data += 1,
+                    "fail" => {
+                        fails += 1;
+                        with_data += 1
+                    }
+                    _ => with_data += 1,
                 }
-                _ => with_data += 1,
             }
             if let Some(w) = v.worst {
                 worst.push((rep.input.clone(), w));
@@ -93,12 +146,13 @@ pub fn aggregate(cfg: &Config, runs: &[Report], unreadable: Vec<String>) -> Camp
             severity: r.severity.name().into(),
             failure_rate: clopper_pearson(fails, with_data, 0.05),
             no_data,
+            incomplete: run_incomplete,
             worst_runs: worst,
             worst_values: values,
         });
     }
     let mut per: BTreeMap<String, Vec<f64>> = BTreeMap::new();
-    for rep in runs {
+    for rep in &runs {
         for (m, st) in &rep.metrics {
             per.entry(m.to_string()).or_default().push(st.mean);
         }
@@ -124,9 +178,11 @@ pub fn aggregate(cfg: &Config, runs: &[Report], unreadable: Vec<String>) -> Camp
     CampaignReport {
         version: env!("CARGO_PKG_VERSION"),
         config_digest: cfg.digest(),
-        runs: runs.len() as u64,
-        unreadable,
+        runs: all.len() as u64,
         critical_failures: runs.iter().filter(|r| critical_failed(&r.verdicts)).count() as u64,
+        unreadable,
+        empty,
+        damaged,
         rules,
         metrics,
     }

@@ -223,7 +223,8 @@ fn campaign_over_a_seeded_family_reports_rates_with_intervals() {
         "--report",
         agg.to_str().unwrap(),
     ]);
-    assert!(out.status.success(), "{}", text(&out.stderr));
+    // Every run has the scripted contact, a critical rule: the campaign fails.
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out.stderr));
     let a: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&agg).unwrap()).unwrap();
     assert_eq!(a["runs"], 6);
     let contact = a["rules"].as_array().unwrap().iter().find(|r| r["rule"] == "contact").unwrap();
@@ -377,4 +378,52 @@ fn nothing_to_judge_exits_2_with_the_reason() {
         let out = plumbline(&["--config", cfg.to_str().unwrap(), "replay", late_log.to_str().unwrap()]);
         assert_eq!(out.status.code(), Some(code), "{extra}: {}", text(&out.stdout));
     }
+}
+
+/// A campaign is never green by default when a run fails a critical rule or cannot be
+/// judged whole; with `--max-failure-rate` it fails exactly when a critical rule's
+/// Clopper-Pearson upper bound exceeds the rate. Before: a campaign exited 0 with 30 of 30
+/// runs failing a critical rule and with an unreadable file among the runs.
+#[test]
+fn campaign_exit_codes_follow_failures_incomplete_runs_and_the_rate() {
+    let dir = tempfile::tempdir().unwrap();
+    let fam = dir.path().join("fam");
+    let gen = ["scenario", "--runs", "6", "--seed", "5", "--duration", "10", "--out", fam.to_str().unwrap()];
+    assert!(plumbline(&gen).status.success());
+    // One critical rule that every run passes (a run-mean GOSPA far below 100 m).
+    let cfg = dir.path().join("pass.toml");
+    std::fs::write(
+        &cfg,
+        "[[rule]]\nname = \"loose\"\nmetric = \"gospa\"\nwindow = \"run\"\nstat = \"mean\"\nabove = 100.0\nseverity = \"critical\"\n",
+    )
+    .unwrap();
+    let campaign = |extra: &[&str]| {
+        let agg = dir.path().join("agg.json");
+        let mut args = vec!["--config", cfg.to_str().unwrap(), "campaign", fam.to_str().unwrap(), "--report"];
+        args.push(agg.to_str().unwrap());
+        args.extend_from_slice(extra);
+        let out = plumbline(&args);
+        let a: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&agg).unwrap()).unwrap();
+        (out.status.code(), a)
+    };
+    let (code, a) = campaign(&[]);
+    assert_eq!(code, Some(0));
+    assert_eq!(a["rules"][0]["failure_rate"]["failures"], 0);
+    // 0 failures in 6: the 95% two-sided upper bound is 1 - 0.025^(1/6) = 0.4593 (the
+    // closed form of the Clopper-Pearson bound at x = 0; scipy.stats.beta.ppf(0.975, 1, 6)).
+    let upper = a["rules"][0]["failure_rate"]["upper"].as_f64().unwrap();
+    assert!((upper - (1.0 - 0.025f64.powf(1.0 / 6.0))).abs() < 1e-9, "{upper}");
+    assert_eq!(campaign(&["--max-failure-rate", "0.5"]).0, Some(0));
+    assert_eq!(campaign(&["--max-failure-rate", "0.4"]).0, Some(1));
+    // An unreadable and an empty run among them: listed apart, counted as failures.
+    std::fs::write(fam.join("zz-broken.plb"), b"not a log").unwrap();
+    std::fs::write(fam.join("zz-empty.jsonl"), b"").unwrap();
+    let (code, a) = campaign(&[]);
+    assert_eq!(code, Some(1));
+    assert_eq!(a["unreadable"].as_array().unwrap().len(), 1);
+    assert_eq!(a["empty"].as_array().unwrap().len(), 1);
+    assert_eq!(a["rules"][0]["failure_rate"]["failures"], 2);
+    assert_eq!(a["rules"][0]["failure_rate"]["runs"], 8);
+    // 2 failures in 8 against 0.9: the upper bound (about 0.65) is below it.
+    assert_eq!(campaign(&["--max-failure-rate", "0.9"]).0, Some(0));
 }

@@ -138,6 +138,18 @@ pub struct CampaignArgs {
     /// Write an HTML report (failure rates, worst-value histograms) here.
     #[arg(long, value_name = "FILE")]
     pub html: Option<PathBuf>,
+    /// Pass when every critical rule's failure rate is credibly at most this (its 95%
+    /// Clopper-Pearson upper bound, incomplete runs counted as failures); without it, any
+    /// failing or incomplete run fails the campaign.
+    #[arg(long, value_name = "RATE", value_parser = rate_in_unit)]
+    pub max_failure_rate: Option<f64>,
+}
+
+fn rate_in_unit(s: &str) -> Result<f64, String> {
+    match s.parse::<f64>() {
+        Ok(v) if (0.0..=1.0).contains(&v) => Ok(v),
+        _ => Err(format!("a failure rate from 0 to 1, found {s}")),
+    }
 }
 
 /// Expands a folder or a `*` pattern into sorted log paths.
@@ -212,11 +224,20 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
     }
     let agg = aggregate(cfg, &runs, unreadable);
     outln!(
-        "campaign of {} runs ({} unreadable), {} with a critical failure",
+        "campaign of {} runs ({} unreadable, {} with nothing evaluated, {} damaged: counted as failures), {} with a critical failure",
         agg.runs,
         agg.unreadable.len(),
+        agg.empty.len(),
+        agg.damaged.len(),
         agg.critical_failures
     );
+    for (what, list) in
+        [("unreadable", &agg.unreadable), ("nothing evaluated", &agg.empty), ("damaged", &agg.damaged)]
+    {
+        for f in list.iter().take(10) {
+            outln!("  {what}: {f}");
+        }
+    }
     outln!("{:<28} {:<9} {:>9} {:>9} {:>22}", "rule", "severity", "failures", "rate", "95% interval (CP)");
     for r in &agg.rules {
         match &r.failure_rate {
@@ -244,7 +265,16 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
             return super::fail("campaign", format!("{}: {e}", p.display()));
         }
     }
-    super::EXIT_OK
+    let code = crate::campaign::exit_code(cfg, &agg, a.max_failure_rate);
+    match (code, a.max_failure_rate) {
+        (2, _) => errln!("plumbline campaign: no run holds an evaluated step"),
+        (1, Some(r)) => {
+            outln!("FAIL: a critical rule's failure rate may exceed {r} (95% upper bound above it)")
+        }
+        (1, None) => outln!("FAIL: a run failed a critical rule or could not be judged whole"),
+        _ => {}
+    }
+    code
 }
 
 /// `compare` arguments.
