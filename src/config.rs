@@ -740,6 +740,43 @@ impl Config {
         self.roles.iter().find(|(_, k)| k == key).map(|(r, _)| *r)
     }
 
+    /// The settings that define what a metric means, by their config keys: two reports
+    /// whose definitions differ measure different things, and the gate refuses to compare
+    /// them unless told the change is intended. (Windows, rules and serving settings
+    /// change how values are judged or shown, not what they are.)
+    pub fn definitions(&self) -> std::collections::BTreeMap<&'static str, serde_json::Value> {
+        use serde_json::json;
+        let (t, a, c) = (&self.tracking, &self.align, &self.clearance);
+        let source = match t.ego_source {
+            EgoSource::Reference => "reference",
+            EgoSource::Estimate => "estimate",
+        };
+        [
+            ("tracking.cutoff_m", json!(t.cutoff)),
+            ("tracking.order", json!(t.order)),
+            ("tracking.alpha", json!(t.alpha)),
+            ("tracking.region_m", json!(t.region)),
+            ("tracking.ego_frame_source", json!(source)),
+            ("tracking.forget_after", json!(t.forget_after)),
+            ("time.max_wait", json!(a.max_wait)),
+            ("time.tolerance", json!(a.tolerance)),
+            ("vehicle.length", json!(c.footprint.length)),
+            ("vehicle.width", json!(c.footprint.width)),
+            ("vehicle.origin_to_rear", json!(c.footprint.origin_to_rear)),
+            ("clearance.object_radius_m", json!(c.object_radius)),
+            ("clearance.path_step_m", json!(c.path_step)),
+            ("clearance.inflation_m", json!(c.inflation)),
+            ("path.deviation_window_m", json!(c.deviation_window)),
+            ("path.grid_m", json!(c.grid_res)),
+            ("path.grid_margin_m", json!(c.grid_margin)),
+            ("path.max_grid_cells", json!(c.max_grid_cells)),
+            ("path.excess_every", json!(c.excess_every)),
+            ("limits.exact_assignment_cells", json!(t.exact_cells)),
+        ]
+        .into_iter()
+        .collect()
+    }
+
     /// SHA-256 of the resolved config's canonical JSON form.
     pub fn digest(&self) -> String {
         let json = serde_json::to_string(self).unwrap_or_default();

@@ -84,7 +84,35 @@ fn stat_of(report: &Value, metric: &str, stat: &str) -> Option<f64> {
     report.get("metrics")?.get(metric)?.get(stat)?.as_f64()
 }
 
-/// The default tolerances for two reports: the mean of every directional metric in either.
+/// Rare-event counts, gated on their run total with an absolute tolerance of one event:
+/// one extra track switch in 600 steps is not a 5% regression.
+pub const EVENT_COUNTS: [&str; 3] = ["track_switches", "fragmentations", "path_missing"];
+
+/// The settings whose values differ between two reports' `definitions`, as
+/// `key: baseline vs candidate`; a report without definitions (older versions) differs in
+/// nothing that can be told.
+pub fn definition_changes(base: &Value, cand: &Value) -> Vec<String> {
+    let (Some(b), Some(c)) = (
+        base.get("definitions").and_then(Value::as_object),
+        cand.get("definitions").and_then(Value::as_object),
+    ) else {
+        return Vec::new();
+    };
+    let mut keys: Vec<&String> = b.keys().chain(c.keys()).collect();
+    keys.sort();
+    keys.dedup();
+    keys.into_iter()
+        .filter(|k| b.get(*k) != c.get(*k))
+        .map(|k| {
+            let show = |v: Option<&Value>| v.map_or_else(|| "(unset)".to_string(), Value::to_string);
+            format!("{k}: {} vs {}", show(b.get(k)), show(c.get(k)))
+        })
+        .collect()
+}
+
+/// The default tolerances for two reports: the mean of every directional metric in either
+/// (5% of the baseline), and the run total of the rare-event counts ([`EVENT_COUNTS`], one
+/// event).
 pub fn default_tolerances(base: &Value, cand: &Value) -> Vec<Tolerance> {
     let mut names: Vec<String> = Vec::new();
     for r in [base, cand] {
@@ -97,12 +125,12 @@ pub fn default_tolerances(base: &Value, cand: &Value) -> Vec<Tolerance> {
     names
         .into_iter()
         .filter_map(|m| {
-            default_direction(&m).map(|worse| Tolerance {
-                metric: m,
-                stat: "mean".into(),
-                worse,
-                abs: 1e-9,
-                rel: 0.05,
+            default_direction(&m).map(|worse| {
+                if EVENT_COUNTS.contains(&m.as_str()) {
+                    Tolerance { metric: m, stat: "sum".into(), worse, abs: 1.0, rel: 0.0 }
+                } else {
+                    Tolerance { metric: m, stat: "mean".into(), worse, abs: 1e-9, rel: 0.05 }
+                }
             })
         })
         .collect()
@@ -136,6 +164,11 @@ pub fn compare(base: &Value, cand: &Value, tolerances: &[Tolerance]) -> Vec<Row>
         .collect()
 }
 
+/// A number as people read it: the shortest form that reads back to the same value.
+fn fmt_num(v: f64) -> String {
+    format!("{v}")
+}
+
 fn esc(s: &str) -> String {
     s.replace('&', "&amp;")
         .replace('<', "&lt;")
@@ -153,13 +186,18 @@ pub fn junit(rows: &[Row], candidate: &Value) -> String {
         let name = v.get("rule").and_then(Value::as_str).unwrap_or("");
         let verdict = v.get("verdict").and_then(Value::as_str).unwrap_or("");
         cases += &format!("    <testcase classname=\"plumbline.rules\" name=\"{}\" time=\"0\">", esc(name));
-        if verdict == "fail" {
+        let fails_run = v.get("fails_run").and_then(Value::as_bool).unwrap_or(false);
+        if verdict == "fail" || (verdict == "no_data" && fails_run) {
             failures += 1;
+            let num = |k: &str| v.get(k).and_then(Value::as_f64).map_or_else(|| "none".to_string(), fmt_num);
             let msg = format!(
-                "{} rule failed: worst {} against threshold {}",
+                "{} rule failed: worst {} ({} {} over {}) against threshold {}",
                 v.get("severity").and_then(Value::as_str).unwrap_or(""),
-                v.get("worst").map(Value::to_string).unwrap_or_default(),
-                v.get("threshold").map(Value::to_string).unwrap_or_default()
+                num("worst"),
+                v.get("stat").and_then(Value::as_str).unwrap_or(""),
+                v.get("metric").and_then(Value::as_str).unwrap_or(""),
+                v.get("window").and_then(Value::as_str).unwrap_or(""),
+                num("threshold")
             );
             cases += &format!("<failure message=\"{}\" type=\"rule\"/>", esc(&msg));
         }
@@ -173,9 +211,12 @@ pub fn junit(rows: &[Row], candidate: &Value) -> String {
         );
         if r.status == "regressed" {
             failures += 1;
+            let show = |x: Option<f64>| x.map_or_else(|| "none".to_string(), fmt_num);
             let msg = format!(
-                "regressed: baseline {:?}, candidate {:?}, allowed change {}",
-                r.baseline, r.candidate, r.allowed
+                "regressed: baseline {}, candidate {}, allowed change {}",
+                show(r.baseline),
+                show(r.candidate),
+                fmt_num(r.allowed)
             );
             cases += &format!("<failure message=\"{}\" type=\"regression\"/>", esc(&msg));
         }
@@ -206,5 +247,26 @@ mod tests {
         );
         assert!(x.contains("tests=\"4\" failures=\"2\""), "{x}");
         assert!(x.contains("name=\"a&lt;b\""));
+        // Numbers, not Rust's debug form of options.
+        assert!(x.contains("baseline 1, candidate 1.2") && !x.contains("Some("), "{x}");
+    }
+
+    /// One extra track switch over a run is within the default gate; two are not.
+    #[test]
+    fn event_counts_are_gated_on_their_total_with_one_event_of_slack() {
+        let base = json!({"metrics": {"track_switches": {"mean": 1.0 / 600.0, "sum": 1.0}}});
+        for (sum, status) in [(2.0, "within"), (3.0, "regressed"), (0.0, "within")] {
+            let cand = json!({"metrics": {"track_switches": {"mean": sum / 600.0, "sum": sum}}});
+            let rows = compare(&base, &cand, &default_tolerances(&base, &cand));
+            assert_eq!((rows[0].stat.as_str(), rows[0].status), ("sum", status), "{sum}");
+        }
+    }
+
+    #[test]
+    fn definition_changes_name_their_keys() {
+        let base = json!({"definitions": {"tracking.cutoff_m": 2.0, "tracking.order": 1.0}});
+        let cand = json!({"definitions": {"tracking.cutoff_m": 0.5, "tracking.order": 1.0}});
+        assert_eq!(definition_changes(&base, &cand), vec!["tracking.cutoff_m: 2.0 vs 0.5".to_string()]);
+        assert!(definition_changes(&base, &base).is_empty());
     }
 }

@@ -211,6 +211,8 @@ pub struct Report {
     pub version: &'static str,
     /// Digest of the resolved config.
     pub config_digest: String,
+    /// The settings that define the metrics (`Config::definitions`), by config key.
+    pub definitions: BTreeMap<&'static str, serde_json::Value>,
     /// Digest of the input bytes.
     pub input_digest: String,
     /// Input file.
@@ -304,6 +306,7 @@ impl Report {
             tool: "plumbline",
             version: env!("CARGO_PKG_VERSION"),
             config_digest: cfg.digest(),
+            definitions: cfg.definitions(),
             input_digest: inputs.input_digest,
             input: inputs.input,
             duration_s,

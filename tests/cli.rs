@@ -427,3 +427,33 @@ fn campaign_exit_codes_follow_failures_incomplete_runs_and_the_rate() {
     // 2 failures in 8 against 0.9: the upper bound (about 0.65) is below it.
     assert_eq!(campaign(&["--max-failure-rate", "0.9"]).0, Some(0));
 }
+
+/// A baseline made with `tracking.cutoff_m = 2` and a candidate made with 0.5 measure
+/// different things: the gate refuses (exit 2, naming the key) unless the change is
+/// declared intended. Before: it called GOSPA "improved".
+#[test]
+fn gate_refuses_reports_that_define_metrics_differently() {
+    let dir = tempfile::tempdir().unwrap();
+    let base = dir.path().join("base.json");
+    let log = "replay-logs/campus-loop.jsonl";
+    assert!(plumbline(&["replay", log, "--quiet", "--report", base.to_str().unwrap()]).status.success());
+    let out =
+        plumbline(&["--set", "tracking.cutoff_m=0.5", "gate", "--baseline", base.to_str().unwrap(), log]);
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out.stdout));
+    let err = text(&out.stderr);
+    assert!(
+        err.contains("tracking.cutoff_m: 2.0 vs 0.5") && err.contains("--allow-definition-change"),
+        "{err}"
+    );
+    let out = plumbline(&[
+        "--set",
+        "tracking.cutoff_m=0.5",
+        "gate",
+        "--baseline",
+        base.to_str().unwrap(),
+        log,
+        "--allow-definition-change",
+    ]);
+    assert_ne!(out.status.code(), Some(2), "{}", text(&out.stderr));
+    assert!(text(&out.stdout).contains("gospa"));
+}

@@ -35,6 +35,10 @@ pub struct GateArgs {
     /// Write an HTML report here (the candidate run with the gate table; needs LOG).
     #[arg(long, value_name = "FILE", requires = "log")]
     pub html: Option<PathBuf>,
+    /// Compare even when the two reports define metrics differently (a changed cutoff,
+    /// order, footprint, ...): the change is intended.
+    #[arg(long)]
+    pub allow_definition_change: bool,
 }
 
 fn read_json(p: &Path) -> Result<Value, String> {
@@ -74,6 +78,24 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
         },
         (None, None) => return super::fail("gate", "give a LOG or --candidate FILE"),
     };
+    let changed = gate::definition_changes(&base, &cand);
+    if !changed.is_empty() {
+        if !a.allow_definition_change {
+            return super::fail(
+                "gate",
+                format!(
+                    "the baseline and the candidate define their metrics differently ({}); comparing them would call a change of definition a change of quality. Make both with the same settings, or pass --allow-definition-change if the change is intended",
+                    changed.join(", ")
+                ),
+            );
+        }
+        errln!("plumbline gate: definitions differ (allowed): {}", changed.join(", "));
+    }
+    if cand.get("records").is_some() {
+        if let Some(why) = cand_report.as_ref().and_then(Report::not_evaluable) {
+            return super::fail("gate", format!("the candidate holds nothing to judge: {why}"));
+        }
+    }
     let tol = if cfg.gate.is_empty() { gate::default_tolerances(&base, &cand) } else { cfg.gate.clone() };
     let rows = gate::compare(&base, &cand, &tol);
     out!("{}", gate_table(&rows));
@@ -89,10 +111,12 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
         }
     }
     let regressed = rows.iter().filter(|r| r.status == "regressed").count();
-    let critical = cand
-        .get("verdicts")
-        .and_then(Value::as_array)
-        .is_some_and(|v| v.iter().any(|v| v["verdict"] == "fail" && v["severity"] == "critical"));
+    let critical = cand.get("verdicts").and_then(Value::as_array).is_some_and(|v| {
+        v.iter().any(|v| {
+            v["fails_run"].as_bool().unwrap_or(false)
+                || (v["verdict"] == "fail" && v["severity"] == "critical")
+        })
+    });
     outln!("{regressed} regression(s){}", if critical { ", and a critical rule failed" } else { "" });
     if regressed > 0 || critical {
         super::EXIT_FAIL
