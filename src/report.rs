@@ -134,6 +134,14 @@ pub struct Steps {
     pub tracking: StepCounts,
     /// Ego steps (one per `estimate/ego` message).
     pub ego: StepCounts,
+    /// Clearance steps (one per `reference/ego` message).
+    pub clearance: StepCounts,
+    /// Path following at the clearance steps, once plans have been heard.
+    pub path_following: StepCounts,
+    /// The clearance-loss budget at the evaluated ego steps.
+    pub budget: StepCounts,
+    /// Path quality (one per `plan/path` message).
+    pub plans: StepCounts,
     /// Steps resolved early because too many were waiting.
     pub pending_overflow: u64,
 }
@@ -313,6 +321,10 @@ impl Report {
             steps: Steps {
                 tracking: c.tracking.clone(),
                 ego: c.ego.clone(),
+                clearance: c.clearance.clone(),
+                path_following: c.path_following.clone(),
+                budget: c.budget.clone(),
+                plans: c.plans.clone(),
                 pending_overflow: c.pending_overflow,
             },
             records: Records {

@@ -103,7 +103,7 @@ fn too_old_reference_skips_the_step_with_its_reason() {
     assert!(values(&out, Metric::Gospa).is_empty());
     let c = &e.counters().tracking;
     assert_eq!(c.skipped, 1);
-    assert_eq!(c.skipped_by_reason.get("reference_too_old"), Some(&1));
+    assert_eq!(c.skipped_by_reason.get("no_reference_in_time"), Some(&1));
 }
 
 #[test]

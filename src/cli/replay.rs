@@ -167,7 +167,21 @@ pub fn summary(r: &Report) -> String {
             at.join(", ")
         );
     }
-    for (name, st) in [("tracking", &r.steps.tracking), ("ego", &r.steps.ego)] {
+    let st = &r.steps;
+    let families = [
+        ("tracking", &st.tracking),
+        ("ego", &st.ego),
+        ("clearance", &st.clearance),
+        ("path following", &st.path_following),
+        ("clearance budget", &st.budget),
+        ("plan", &st.plans),
+    ];
+    let mut late = false;
+    for (name, st) in families {
+        if name != "tracking" && name != "ego" && st.evaluated + st.skipped == 0 {
+            continue;
+        }
+        late |= st.skipped_by_reason.keys().any(|k| k.ends_with("_in_time") || k.ends_with("_late"));
         let _ = write!(
             s,
             "{name} steps: {} evaluated (exact {}, interpolated {}, fallback {}), {} skipped",
@@ -184,6 +198,29 @@ pub fn summary(r: &Report) -> String {
             );
         }
         s.push('\n');
+    }
+    if late {
+        let wait = r.definitions.get("time.max_wait").and_then(|v| v.as_f64()).unwrap_or(f64::NAN);
+        let _ = write!(
+            s,
+            "  steps skipped as *_in_time or *_late: what they read came later than time.max_wait ({wait} s) after them, or not at all;"
+        );
+        let lat: Vec<String> = r
+            .transport
+            .iter()
+            .filter_map(|(role, t)| {
+                t.latency_s.as_ref().filter(|l| l.p99 > wait).map(|l| format!("{role} {:.3} s", l.p99))
+            })
+            .collect();
+        if lat.is_empty() {
+            let _ = writeln!(s, " no role arrives that late (a gap in the reference?)");
+        } else {
+            let _ = writeln!(
+                s,
+                " latency p99 above it: {} (a time.max_wait above that would have found them)",
+                lat.join(", ")
+            );
+        }
     }
     if r.records.non_finite_samples > 0 {
         let _ = writeln!(s, "{} non-finite metric values dropped", r.records.non_finite_samples);

@@ -19,6 +19,8 @@ pub struct Transport {
     last_recv: Option<f64>,
     #[serde(skip)]
     last_stamp: Option<f64>,
+    #[serde(skip)]
+    last_latency: Option<f64>,
 }
 
 /// One accepted message's transport samples.
@@ -42,6 +44,9 @@ impl Transport {
         }
         self.last_stamp = Some(stamp);
         let latency = recv.map(|r| r - stamp);
+        if latency.is_some() {
+            self.last_latency = latency;
+        }
         let interarrival = match (recv, self.last_recv) {
             (Some(r), Some(prev)) => Some(r - prev),
             _ => None,
@@ -50,6 +55,11 @@ impl Transport {
             self.last_recv = recv;
         }
         TransportSample { latency, interarrival, regression }
+    }
+
+    /// The latest message's latency (recv - stamp), when arrival times are known.
+    pub fn last_latency(&self) -> Option<f64> {
+        self.last_latency
     }
 
     /// Seconds since the last arrival at `now`, if anything arrived.

@@ -29,14 +29,14 @@ use std::sync::Arc;
 use serde::Serialize;
 
 use super::{Engine, Pending, PointSet};
-use crate::core::align::{self, Point, Timeline};
+use crate::core::align::{self, How, Point, Timeline};
 use crate::core::engine::Sample;
 use crate::core::ClearanceParams;
 use crate::geometry::{nearer, nearest_of, Body, Nearest, ObstacleId, ObstacleIndex};
 use crate::metrics::ego::wrap_angle;
 use crate::metrics::path::{self, Grid};
 use crate::metrics::Metric;
-use crate::msg::{ObstacleSet, Path, Pose};
+use crate::msg::{ObstacleSet, Path, Pose, Role};
 
 /// Collisions kept for the report; later ones are counted.
 pub const KEEP_COLLISIONS: usize = 1000;
@@ -75,6 +75,16 @@ enum PlanWork {
     /// No path: was there one from `start` to `goal`?
     Missing { start: [f64; 2], goal: [f64; 2] },
     /// A path (densified as `dense`); `excess`: its length over the shortest is due.
+    Quality { pts: Vec<[f64; 2]>, dense: Arc<Vec<[f64; 2]>>, excess: bool },
+}
+
+/// A plan as it waits for the reference at its stamp: what its arrival fixed.
+#[derive(Debug)]
+pub(super) enum PlanStep {
+    /// No path: the goal (its own, else the previous plan's end) and the previous plan's
+    /// start, for when the reference ego at the stamp is not known.
+    Missing { goal: Option<[f64; 2]>, prev_start: Option<[f64; 2]> },
+    /// A path, densified, and whether its length excess is due.
     Quality { pts: Vec<[f64; 2]>, dense: Arc<Vec<[f64; 2]>>, excess: bool },
 }
 
@@ -203,6 +213,11 @@ pub(super) struct ClearState {
     pub(super) est_sets: Timeline<Arc<PointSet>>,
     pub(super) clears: VecDeque<Pending<Pose>>,
     pub(super) last_clear_t: Option<f64>,
+    /// Plans waiting for the reference at their stamp.
+    pub(super) plan_steps: VecDeque<Pending<PlanStep>>,
+    pub(super) last_plan_t: Option<f64>,
+    /// The latest stamp of any plan heard (an empty one included).
+    latest_plan_stamp: Option<f64>,
     prev_ego: Option<(f64, Pose, Option<f64>)>,
     open: Option<Collision>,
     pub(super) collisions: Vec<Collision>,
@@ -222,6 +237,9 @@ impl ClearState {
             est_sets: Timeline::new(64),
             clears: VecDeque::new(),
             last_clear_t: None,
+            plan_steps: VecDeque::new(),
+            last_plan_t: None,
+            latest_plan_stamp: None,
             prev_ego: None,
             open: None,
             collisions: Vec::new(),
@@ -255,16 +273,79 @@ impl Engine {
         self.clear.map.insert(set.stamp, Arc::new(ObstacleIndex::from_map(&set.obstacles)));
     }
 
+    /// Whether a message of `role` stamped at or after `t` has arrived, so that what the
+    /// role says about `t` (its value at `t`, or its latest message at or before `t`) is
+    /// known. The site map is static: known once one has arrived.
+    fn known_at(&self, role: Role, t: f64) -> bool {
+        match role {
+            Role::ReferenceObjects => self.ref_objects.has_at_or_after(t),
+            Role::ReferenceEgo => self.ref_ego.has_at_or_after(t),
+            Role::EstimateEgo => self.est_ego.has_at_or_after(t),
+            Role::EstimateObjects => self.clear.est_sets.has_at_or_after(t),
+            Role::PlanPath => self.clear.latest_plan_stamp.is_some_and(|s| s >= t - align::EXACT_S),
+            Role::ReferenceObstacles => !self.clear.map.is_empty(),
+        }
+    }
+
+    /// Whether the role has been heard at all this run.
+    fn heard(&self, role: Role) -> bool {
+        self.transport[role.index()].messages > 0
+    }
+
+    /// A role read as "its latest message at or before `t`" is late when the step had to
+    /// resolve without a newer one and the role's own messages arrive more than
+    /// `time.max_wait` after their stamps: the one in force at `t` may still be coming.
+    fn late(&self, role: Role, t: f64, ready: bool) -> bool {
+        !ready
+            && !self.known_at(role, t)
+            && self.transport[role.index()].last_latency().is_some_and(|l| l > self.ap.max_wait)
+    }
+
+    /// Clearance steps read the reference objects at `t`, the plan in force and the map.
     pub(super) fn clearance_ready(&self, t: f64) -> bool {
-        self.ref_objects.has_at_or_after(t)
+        [Role::ReferenceObjects, Role::PlanPath, Role::ReferenceObstacles]
+            .iter()
+            .all(|&r| self.known_at(r, t))
+    }
+
+    /// Ego steps (with their clearance budget) read the reference ego and objects, the
+    /// estimated objects, the plan and the map at `t`.
+    pub(super) fn ego_ready(&self, t: f64) -> bool {
+        [
+            Role::ReferenceEgo,
+            Role::ReferenceObjects,
+            Role::EstimateObjects,
+            Role::PlanPath,
+            Role::ReferenceObstacles,
+        ]
+        .iter()
+        .all(|&r| self.known_at(r, t))
+    }
+
+    /// A plan's path quality reads the reference objects and the map at its stamp (and,
+    /// for an empty plan, the reference ego: where the search starts).
+    pub(super) fn plan_ready(&self, t: f64, step: &PlanStep) -> bool {
+        self.known_at(Role::ReferenceObjects, t)
+            && self.known_at(Role::ReferenceObstacles, t)
+            && (!matches!(step, PlanStep::Missing { .. }) || self.known_at(Role::ReferenceEgo, t))
+    }
+
+    /// Reference objects at `t` by the alignment rule: `Ok(None)` when the role has never
+    /// been heard (a setup without them), `Err(reason)` when it has but gives nothing
+    /// for `t`.
+    fn reference_objects_for(&self, t: f64) -> Result<(Vec<Point>, How), &'static str> {
+        if !self.heard(Role::ReferenceObjects) {
+            return Ok((Vec::new(), How::Exact));
+        }
+        let mut pts = Vec::new();
+        let how = self.reference_into(t, &mut Vec::new(), &mut Vec::new(), &mut pts)?;
+        Ok((pts, how))
     }
 
     /// Reference objects at `t` (none when the alignment finds nothing).
+    #[cfg(test)]
     fn reference_points_at(&self, t: f64) -> Vec<Point> {
-        let mut pts = Vec::new();
-        // A miss leaves the list empty; the tracking step counts misses, clearance does not.
-        let _ = self.reference_into(t, &mut Vec::new(), &mut Vec::new(), &mut pts);
-        pts
+        self.reference_objects_for(t).map(|(p, _)| p).unwrap_or_default()
     }
 
     /// Estimated objects (the latest set at or before `t`).
@@ -288,27 +369,49 @@ impl Engine {
         clearance_with(&self.clear.cp, self.map_at(t).map(|m| &**m), x, y, yaw, objects)
     }
 
-    pub(super) fn eval_clearance(&mut self, t: f64, pose: &Pose, out: &mut Vec<Sample>) {
+    pub(super) fn eval_clearance(&mut self, t: f64, pose: &Pose, ready: bool, out: &mut Vec<Sample>) {
         self.clear.last_clear_t = Some(t);
+        match self.reference_objects_for(t) {
+            Err(reason) => self.counters.clearance.skip(reason),
+            Ok((bodies, how)) => {
+                if let Some(n) = self.clearance_of(t, pose.x, pose.y, pose.yaw, &bodies) {
+                    self.counters.clearance.hit(how);
+                    out.push(Sample { t, metric: Metric::Clearance, role: None, value: n.distance });
+                    let touching = n.distance <= 0.0;
+                    let value = if touching { 1.0 } else { 0.0 };
+                    out.push(Sample { t, metric: Metric::Collision, role: None, value });
+                    match (&mut self.clear.open, touching) {
+                        (Some(c), true) => c.end = t,
+                        (None, true) => {
+                            self.clear.open = Some(Collision { start: t, end: t, obstacle: n.id })
+                        }
+                        (Some(_), false) => self.close_collision(),
+                        (None, false) => {}
+                    }
+                }
+            }
+        }
+        if self.heard(Role::PlanPath) {
+            if self.late(Role::PlanPath, t, ready) {
+                self.counters.path_following.skip("plan_late");
+            } else {
+                match self
+                    .clear
+                    .plans
+                    .latest_at_or_before(t)
+                    .and_then(|(_, plan)| path::project(&plan.dense, pose.x, pose.y))
+                {
+                    None => self.counters.path_following.skip("no_plan_before"),
+                    Some(p) => {
+                        self.counters.path_following.hit(How::Exact);
+                        out.push(Sample { t, metric: Metric::CrossTrack, role: None, value: p.lateral });
+                        let value = path::heading_error(pose.yaw, &p);
+                        out.push(Sample { t, metric: Metric::PathHeadingError, role: None, value });
+                    }
+                }
+            }
+        }
         let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
-        let bodies = self.reference_points_at(t);
-        if let Some(n) = self.clearance_of(t, pose.x, pose.y, pose.yaw, &bodies) {
-            push(Metric::Clearance, n.distance);
-            let touching = n.distance <= 0.0;
-            push(Metric::Collision, if touching { 1.0 } else { 0.0 });
-            match (&mut self.clear.open, touching) {
-                (Some(c), true) => c.end = t,
-                (None, true) => self.clear.open = Some(Collision { start: t, end: t, obstacle: n.id }),
-                (Some(_), false) => self.close_collision(),
-                (None, false) => {}
-            }
-        }
-        if let Some((_, plan)) = self.clear.plans.latest_at_or_before(t) {
-            if let Some(p) = path::project(&plan.dense, pose.x, pose.y) {
-                push(Metric::CrossTrack, p.lateral);
-                push(Metric::PathHeadingError, path::heading_error(pose.yaw, &p));
-            }
-        }
         // Comfort from successive reference poses: lateral acceleration v * yaw rate, and
         // its rate of change.
         if let Some((t0, p0, a0)) = &self.clear.prev_ego {
@@ -341,9 +444,27 @@ impl Engine {
         self.close_collision();
     }
 
-    /// The clearance-loss budget at an ego step (see the module note).
-    pub(super) fn eval_budget(&mut self, t: f64, est: &Pose, reference: &Pose, out: &mut Vec<Sample>) {
-        let ref_bodies = self.reference_points_at(t);
+    /// The clearance-loss budget at an ego step (see the module note). Skipped (and
+    /// counted) when the reference objects at `t` are not known, or the estimated objects
+    /// or the plan in force may still be on their way.
+    pub(super) fn eval_budget(
+        &mut self,
+        t: f64,
+        est: &Pose,
+        reference: &Pose,
+        ready: bool,
+        out: &mut Vec<Sample>,
+    ) {
+        let (ref_bodies, how) = match self.reference_objects_for(t) {
+            Ok(x) => x,
+            Err(reason) => return self.counters.budget.skip(reason),
+        };
+        if self.late(Role::EstimateObjects, t, ready) {
+            return self.counters.budget.skip("estimate_objects_late");
+        }
+        if self.heard(Role::PlanPath) && self.late(Role::PlanPath, t, ready) {
+            return self.counters.budget.skip("plan_late");
+        }
         let est_bodies = self.estimate_points_at(t);
         let c = |s: &Self, p: (f64, f64, f64), b: &[Point]| {
             s.clearance_of(t, p.0, p.1, p.2, b).map(|n| n.distance)
@@ -361,6 +482,7 @@ impl Engine {
             .and_then(|(_, plan)| path::project(&plan.dense, est.x, est.y))
             .and_then(|p| c(self, (p.point[0], p.point[1], p.yaw), &est_bodies))
             .unwrap_or(believed);
+        self.counters.budget.hit(how);
         let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
         push(Metric::BelievedClearance, believed);
         push(Metric::ClearanceLoss, planned - truth);
@@ -369,9 +491,9 @@ impl Engine {
         push(Metric::ClearanceLossLocalization, est_ref - truth);
     }
 
-    /// A plan arrives: its interval and compute time now, the rest of its path quality as
-    /// a [`PlanJob`] (run now, or kept for the caller when deferring).
-    pub(super) fn on_plan(&mut self, path: &Path, out: &mut Vec<Sample>) {
+    /// A plan arrives: its interval and compute time now; what its path quality needs from
+    /// the plan itself is fixed as a [`PlanStep`] that waits for the reference at its stamp.
+    pub(super) fn on_plan(&mut self, path: &Path, out: &mut Vec<Sample>) -> PlanStep {
         let t = path.stamp;
         let cp = self.clear.cp;
         let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
@@ -381,29 +503,48 @@ impl Engine {
         if let Some(c) = path.compute_s {
             push(Metric::PlanCompute, c);
         }
+        self.clear.latest_plan_stamp = Some(self.clear.latest_plan_stamp.map_or(t, |s| s.max(t)));
         let pts: Vec<[f64; 2]> = path.poses.iter().map(|p| [p.x, p.y]).collect();
-        let work = if pts.is_empty() {
-            // No path: was there one? Search from the reference ego (else the previous
-            // plan's start) to the goal (else the previous plan's end).
-            let start = align::resolve(&self.ref_ego, t, self.ap.tolerance)
-                .ok()
-                .map(|r| align::pose_at(r, t).0)
-                .map(|p| [p.x, p.y])
-                .or(self.clear.prev_plan.map(|p| p.1));
+        if pts.is_empty() {
             let goal = path.goal.as_ref().map(|g| [g.x, g.y]).or(self.clear.prev_plan.map(|p| p.2));
-            let (Some(start), Some(goal)) = (start, goal) else { return };
-            PlanWork::Missing { start, goal }
-        } else {
-            let dense = Arc::new(path::densify(&pts, cp.path_step));
-            let excess = t - self.clear.last_excess_t >= cp.excess_every - align::EXACT_S && pts.len() >= 2;
-            if excess {
-                self.clear.last_excess_t = t;
-            }
-            self.clear.prev_plan = Some((t, pts[0], pts[pts.len() - 1]));
-            self.clear.plans.insert(t, Plan { dense: Arc::clone(&dense) });
-            PlanWork::Quality { pts, dense, excess }
+            return PlanStep::Missing { goal, prev_start: self.clear.prev_plan.map(|p| p.1) };
+        }
+        let dense = Arc::new(path::densify(&pts, cp.path_step));
+        let excess = t - self.clear.last_excess_t >= cp.excess_every - align::EXACT_S && pts.len() >= 2;
+        if excess {
+            self.clear.last_excess_t = t;
+        }
+        self.clear.prev_plan = Some((t, pts[0], pts[pts.len() - 1]));
+        self.clear.plans.insert(t, Plan { dense: Arc::clone(&dense) });
+        PlanStep::Quality { pts, dense, excess }
+    }
+
+    /// A plan's reference is known (or its wait is over): its path quality as a
+    /// [`PlanJob`], run now or kept for the caller when deferring.
+    pub(super) fn eval_plan(&mut self, t: f64, step: PlanStep, out: &mut Vec<Sample>) {
+        self.clear.last_plan_t = Some(t);
+        let (bodies, how) = match self.reference_objects_for(t) {
+            Ok(x) => x,
+            Err(reason) => return self.counters.plans.skip(reason),
         };
-        let job = PlanJob { t, cp, map: self.map_at(t).cloned(), bodies: self.reference_points_at(t), work };
+        let work = match step {
+            PlanStep::Missing { goal, prev_start } => {
+                // No path: was there one? Search from the reference ego (else the previous
+                // plan's start) to the goal (else the previous plan's end).
+                let start = align::resolve(&self.ref_ego, t, self.ap.tolerance)
+                    .ok()
+                    .map(|r| align::pose_at(r, t).0)
+                    .map(|p| [p.x, p.y])
+                    .or(prev_start);
+                let (Some(start), Some(goal)) = (start, goal) else {
+                    return self.counters.plans.skip("no_start_or_goal");
+                };
+                PlanWork::Missing { start, goal }
+            }
+            PlanStep::Quality { pts, dense, excess } => PlanWork::Quality { pts, dense, excess },
+        };
+        self.counters.plans.hit(how);
+        let job = PlanJob { t, cp: self.clear.cp, map: self.map_at(t).cloned(), bodies, work };
         let points = job.points();
         match self.clear.deferred.as_mut() {
             Some(d) if d.held + points <= d.budget => {
@@ -540,17 +681,21 @@ mod tests {
         let mut e = Engine::new(cfg.tracking, cfg.align, cfg.clearance);
         let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl");
         let (mut out, mut checked) = (Vec::new(), 0);
+        // Plans by stamp: a plan's path quality comes out when its reference is known, and
+        // is checked then, against the same reference.
+        let mut plans = std::collections::BTreeMap::new();
         read_all(&cfg, &path, &mut |item, _| {
             let Item::Record { role, rec } = item else { return };
-            let want = match (&role, &rec.msg) {
-                (Role::PlanPath, Msg::Path(p)) if !p.poses.is_empty() => Some(e.path_clearance_every_pose(p)),
-                _ => None,
-            };
+            if let (Role::PlanPath, Msg::Path(p)) = (&role, &rec.msg) {
+                if !p.poses.is_empty() {
+                    plans.insert(p.stamp.to_bits(), p.clone());
+                }
+            }
             out.clear();
             e.push(Input::Message { role, recv: rec.recv, msg: rec.msg }, &mut out);
-            if let Some(want) = want {
-                let got = out.iter().find(|s| s.metric == Metric::PathClearance).map(|s| s.value);
-                assert_eq!(got, want);
+            for s in out.iter().filter(|s| s.metric == Metric::PathClearance) {
+                let plan = plans.remove(&s.t.to_bits()).expect("a sample for a plan heard");
+                assert_eq!(Some(s.value), e.path_clearance_every_pose(&plan));
                 checked += 1;
             }
         })

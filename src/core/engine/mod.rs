@@ -120,6 +120,15 @@ pub struct Counters {
     pub tracking: StepCounts,
     /// Ego steps.
     pub ego: StepCounts,
+    /// Clearance steps (at `reference/ego` stamps: clearance, collision, comfort).
+    pub clearance: StepCounts,
+    /// Path following at clearance steps (cross-track and heading error to the plan in
+    /// force), counted once plans have been heard.
+    pub path_following: StepCounts,
+    /// The clearance-loss budget at ego steps.
+    pub budget: StepCounts,
+    /// Plans' path quality (at `plan/path` stamps).
+    pub plans: StepCounts,
     /// Records accepted.
     pub accepted: u64,
     /// Records rejected.
@@ -139,16 +148,19 @@ pub struct Counters {
     pub cut_short: u64,
 }
 
-fn miss_reason(m: Miss, what: &'static str) -> &'static str {
+/// Why a step found no reference. `*_in_time`: none at or after the step's stamp arrived
+/// within `time.max_wait`, and the last one before it is older than `time.tolerance` (a
+/// late reference, or a gap in it).
+pub(super) fn miss_reason(m: Miss, what: &'static str) -> &'static str {
     match (what, m) {
         ("objects", Miss::NoReference) => "no_reference",
-        ("objects", Miss::TooOld) => "reference_too_old",
+        ("objects", Miss::TooOld) => "no_reference_in_time",
         ("objects", Miss::NoneBefore) => "no_reference_before",
         ("ego", Miss::NoReference) => "no_reference_ego",
-        ("ego", Miss::TooOld) => "reference_ego_too_old",
+        ("ego", Miss::TooOld) => "no_reference_ego_in_time",
         ("ego", Miss::NoneBefore) => "no_reference_ego_before",
         (_, Miss::NoReference) => "no_frame_pose",
-        (_, Miss::TooOld) => "frame_pose_too_old",
+        (_, Miss::TooOld) => "no_frame_pose_in_time",
         (_, Miss::NoneBefore) => "no_frame_pose_before",
     }
 }
@@ -435,19 +447,28 @@ impl Engine {
                 if self.clear.clears.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
                     if let Some(q) = self.clear.clears.pop_front() {
-                        self.eval_clearance(q.t, &q.item, out);
+                        self.eval_clearance(q.t, &q.item, false, out);
                     }
                 }
                 self.clear.clears.push_back(Pending { t: stamp, deadline, item: p });
             }
-            (Role::PlanPath, Prepared::Path(p)) => self.on_plan(&p, out),
+            (Role::PlanPath, Prepared::Path(p)) => {
+                let step = self.on_plan(&p, out);
+                if self.clear.plan_steps.len() >= self.ap.pending_steps {
+                    self.counters.pending_overflow += 1;
+                    if let Some(q) = self.clear.plan_steps.pop_front() {
+                        self.eval_plan(q.t, q.item, out);
+                    }
+                }
+                self.clear.plan_steps.push_back(Pending { t: stamp, deadline, item: step });
+            }
             (Role::ReferenceObstacles, Prepared::Obstacles(o)) => self.on_obstacles(&o),
             (Role::EstimateEgo, Prepared::Pose(p)) => {
                 self.est_ego.insert(stamp, p.clone());
                 if self.egos.len() >= self.ap.pending_steps {
                     self.counters.pending_overflow += 1;
                     if let Some(q) = self.egos.pop_front() {
-                        self.eval_ego(q.t, &q.item, out);
+                        self.eval_ego(q.t, &q.item, false, out);
                     }
                 }
                 self.egos.push_back(Pending { t: stamp, deadline, item: p });
@@ -475,7 +496,12 @@ impl Engine {
         for _ in self.egos.drain(..) {
             self.counters.ego.skip("cut_short");
         }
-        self.clear.clears.clear();
+        for _ in self.clear.clears.drain(..) {
+            self.counters.clearance.skip("cut_short");
+        }
+        for _ in self.clear.plan_steps.drain(..) {
+            self.counters.plans.skip("cut_short");
+        }
     }
 
     /// End of input: every waiting step is resolved as if its wait ran out.
@@ -518,18 +544,28 @@ impl Engine {
             self.eval_tracking(p.t, &p.item, out);
         }
         while let Some(p) = self.egos.front() {
-            if !(all || p.deadline < self.now || self.ref_ego.has_at_or_after(p.t)) {
+            let ready = self.ego_ready(p.t);
+            if !(all || p.deadline < self.now || ready) {
                 break;
             }
             let p = self.egos.pop_front().expect("front exists");
-            self.eval_ego(p.t, &p.item, out);
+            self.eval_ego(p.t, &p.item, ready, out);
         }
         while let Some(p) = self.clear.clears.front() {
-            if !(all || p.deadline < self.now || self.clearance_ready(p.t)) {
+            let ready = self.clearance_ready(p.t);
+            if !(all || p.deadline < self.now || ready) {
                 break;
             }
             let p = self.clear.clears.pop_front().expect("front exists");
-            self.eval_clearance(p.t, &p.item, out);
+            self.eval_clearance(p.t, &p.item, ready, out);
+        }
+        while let Some(p) = self.clear.plan_steps.front() {
+            let ready = self.plan_ready(p.t, &p.item);
+            if !(all || p.deadline < self.now || ready) {
+                break;
+            }
+            let p = self.clear.plan_steps.pop_front().expect("front exists");
+            self.eval_plan(p.t, p.item, out);
         }
         self.prune();
     }
@@ -540,6 +576,7 @@ impl Engine {
             self.tracks.front().map(|p| p.t),
             self.egos.front().map(|p| p.t),
             self.clear.clears.front().map(|p| p.t),
+            self.clear.plan_steps.front().map(|p| p.t),
         ];
         for t in fronts
             .into_iter()
@@ -547,6 +584,7 @@ impl Engine {
             .chain(self.last_track_t)
             .chain(self.last_ego_t)
             .chain(self.clear.last_clear_t)
+            .chain(self.clear.last_plan_t)
         {
             low = low.min(t);
         }
@@ -712,7 +750,7 @@ impl Engine {
         }
     }
 
-    fn eval_ego(&mut self, t: f64, est: &Pose, out: &mut Vec<Sample>) {
+    fn eval_ego(&mut self, t: f64, est: &Pose, ready: bool, out: &mut Vec<Sample>) {
         self.last_ego_t = Some(t);
         let (reference, how) = match align::resolve(&self.ref_ego, t, self.ap.tolerance) {
             Ok(r) => align::pose_at(r, t),
@@ -728,7 +766,7 @@ impl Engine {
         ] {
             out.push(Sample { t, metric, role: None, value });
         }
-        self.eval_budget(t, est, &reference, out);
+        self.eval_budget(t, est, &reference, ready, out);
     }
 
     /// Collisions so far (the first [`clearance::KEEP_COLLISIONS`]) and how many more.
