@@ -310,25 +310,35 @@ pub fn summary(r: &Report) -> String {
     if !r.verdicts.is_empty() {
         let _ = writeln!(
             s,
-            "\n{:<28} {:<9} {:<8} {:>11} {:>11} {:>7}",
-            "rule", "severity", "verdict", "worst", "threshold", "raised"
+            "\n{:<28} {:<9} {:<8} {:<18} {:>11} {:>13} {:>7}",
+            "rule", "severity", "verdict", "statistic", "worst", "threshold", "raised"
         );
         for v in &r.verdicts {
             let worst = v.worst.map(num).unwrap_or_else(|| "-".into());
+            let stat = format!("{} over {}", v.stat, v.window);
+            let sign = if v.direction == "above" { ">" } else { "<" };
+            let verdict = if v.verdict == "no_data" && v.fails_run { "no_data!" } else { v.verdict };
             let _ = writeln!(
                 s,
-                "{:<28} {:<9} {:<8} {:>11} {:>11} {:>7}",
+                "{:<28} {:<9} {:<8} {:<18} {:>11} {:>13} {:>7}",
                 v.rule,
                 v.severity,
-                v.verdict,
+                verdict,
+                stat,
                 worst,
-                num(v.threshold),
+                format!("fails {sign} {}", num(v.threshold)),
                 v.raised
             );
         }
         let failed = r.verdicts.iter().filter(|v| v.verdict == "fail").count();
-        let critical = r.verdicts.iter().filter(|v| v.verdict == "fail" && v.severity == "critical").count();
-        let _ = writeln!(s, "{failed} rule(s) failed, {critical} critical");
+        let critical = r.verdicts.iter().filter(|v| v.fails_run).count();
+        let _ = writeln!(
+            s,
+            "{failed} rule(s) failed, {critical} failing the run; worst: the worst judged value of the statistic (a sliding rule fails only when its breach held for its sustain time)"
+        );
+        if r.verdicts.iter().any(|v| v.verdict == "no_data" && v.fails_run) {
+            let _ = writeln!(s, "no_data!: a critical rule without data fails the run (set allow_no_data = true on it if that is acceptable)");
+        }
     }
     s
 }
