@@ -150,6 +150,8 @@ pub struct RawZenoh {
     pub listen: Option<Vec<String>>,
     /// multicast scouting on or off
     pub multicast_scouting: Option<bool>,
+    /// the interface multicast scouting uses ("auto": zenoh's choice, beyond the machine)
+    pub multicast_interface: Option<String>,
     /// a zenoh config file passed through (TLS, access control)
     pub config_file: Option<String>,
 }
@@ -337,6 +339,9 @@ pub struct RawMonitor {
     pub prefix: Option<String>,
 }
 
+/// The loopback interface's name, where discovery stays by default.
+pub const LOOPBACK_INTERFACE: &str = if cfg!(target_os = "macos") { "lo0" } else { "lo" };
+
 /// Stage two: the resolved configuration.
 #[derive(Debug, Clone, Serialize)]
 pub struct Config {
@@ -391,6 +396,9 @@ pub struct ZenohParams {
     pub listen: Vec<String>,
     /// multicast scouting
     pub multicast: bool,
+    /// the interface multicast scouting uses: the loopback by default, so discovery
+    /// stays on the machine; "auto" lets zenoh pick (the rig network)
+    pub multicast_interface: String,
     /// passthrough zenoh config file
     pub config_file: Option<String>,
 }
@@ -630,6 +638,7 @@ impl Config {
             connect: z.connect.clone().unwrap_or_default(),
             listen: z.listen.clone().unwrap_or_default(),
             multicast: z.multicast_scouting.unwrap_or(true),
+            multicast_interface: z.multicast_interface.clone().unwrap_or_else(|| LOOPBACK_INTERFACE.into()),
             config_file: z.config_file.clone(),
         };
         let l = &raw.live;

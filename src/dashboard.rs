@@ -167,6 +167,8 @@ pub struct Dashboard {
     /// Per chart line (in chart order): when its key last had a value, on the monitor's clock.
     line_seen: Vec<Option<f64>>,
     active: Vec<Active>,
+    /// Per metric: when it last had a value, on the monitor's clock.
+    metric_seen: Vec<Option<f64>>,
     recent: VecDeque<AlertEvent>,
     /// Per role: (clock, messages) pairs for the rate, oldest first.
     counts: Vec<VecDeque<(f64, u64)>>,
@@ -196,6 +198,7 @@ impl Dashboard {
             latest: vec![None; TILES.len()],
             line_seen: vec![None; lines],
             active: Vec::new(),
+            metric_seen: vec![None; Metric::ALL.len()],
             recent: VecDeque::with_capacity(RECENT_EVENTS),
             counts: vec![VecDeque::new(); Role::ALL.len()],
             now: f64::NEG_INFINITY,
@@ -212,6 +215,7 @@ impl Dashboard {
         // The monitor's clock as given: after a jump back the page follows it.
         self.now = now;
         for s in samples {
+            self.metric_seen[s.metric as usize] = Some(now);
             for (k, l) in self.charts.iter().flat_map(|c| &c.lines).enumerate() {
                 if l.metric == s.metric && l.role == s.role {
                     self.line_seen[k] = Some(now);
@@ -329,6 +333,9 @@ impl Dashboard {
                 metric: a.event.metric,
                 raised_t: a.event.t,
                 active_s: (now - a.seen_at).max(0.0),
+                stale: Metric::from_name(a.event.metric)
+                    .and_then(|m| self.metric_seen[m as usize])
+                    .is_none_or(|seen| now - seen > stale_after),
                 value: a.event.value,
                 threshold: a.event.threshold,
             })
@@ -351,11 +358,16 @@ impl Dashboard {
                     (Some(a), Some(b)) if b.0 > a.0 => Some((b.1 - a.1) as f64 / (b.0 - a.0)),
                     _ => None,
                 };
+                let publishers = monitor
+                    .windows
+                    .get(Metric::Publishers, Some(r))
+                    .and_then(|ws| ws.get(0))
+                    .and_then(|w| w.stat(Stat::Last));
                 let state = match staleness_s {
                     None => "no_data",
+                    Some(s) if s > stale_after && r != Role::ReferenceObstacles => "stale",
+                    _ if publishers.is_some_and(|n| n > 1.0) => "merged",
                     // A site map is published once or rarely: silence is its normal state.
-                    Some(_) if r == Role::ReferenceObstacles => "ok",
-                    Some(s) if s > stale_after => "stale",
                     Some(_) => "ok",
                 };
                 Topic {
@@ -369,9 +381,26 @@ impl Dashboard {
                     dropped: tr.dropped,
                     decode_errors: tr.decode_errors,
                     stamp_regressions: tr.stamp_regressions,
+                    publishers,
                 }
             })
+            .collect::<Vec<Topic>>();
+        // The page's header: `no_data` before any input, `stale` when every role heard
+        // (the site map aside) has gone quiet, `merged` when a role has several
+        // publishers, else `live`.
+        let streams: Vec<&Topic> = topics
+            .iter()
+            .filter(|t| t.role != Role::ReferenceObstacles.name() && t.state != "no_data")
             .collect();
+        let input = if streams.is_empty() {
+            "no_data"
+        } else if streams.iter().all(|t| t.state == "stale") {
+            "stale"
+        } else if streams.iter().any(|t| t.state == "merged") {
+            "merged"
+        } else {
+            "live"
+        };
         let c = monitor.engine.counters();
         Snapshot {
             version: env!("CARGO_PKG_VERSION"),
@@ -386,6 +415,7 @@ impl Dashboard {
             charts,
             alerts_active: active,
             alerts_recent: self.recent.iter().rev().cloned().collect(),
+            input,
             topics,
             verdicts: monitor.verdicts(),
             steps: Steps {
@@ -440,6 +470,8 @@ pub struct Snapshot {
     pub alerts_active: Vec<ActiveAlert>,
     /// The latest alert events, newest first.
     pub alerts_recent: Vec<AlertEvent>,
+    /// The state of the input as a whole: `live`, `stale`, `merged` or `no_data`.
+    pub input: &'static str,
     /// Per-role transport health.
     pub topics: Vec<Topic>,
     /// Every rule's verdict so far.
@@ -512,6 +544,8 @@ pub struct ActiveAlert {
     pub raised_t: f64,
     /// Seconds active, on the monitor's clock.
     pub active_s: f64,
+    /// Its metric has had no value for `stale_after`: the alert says what was, not what is.
+    pub stale: bool,
     /// Value that raised it.
     pub value: f64,
     /// Threshold.
@@ -523,7 +557,7 @@ pub struct ActiveAlert {
 pub struct Topic {
     /// Role.
     pub role: &'static str,
-    /// `ok`, `stale` or `no_data`.
+    /// `ok`, `stale`, `no_data`, or `merged` (more than one publisher).
     pub state: &'static str,
     /// Messages per second over the last 5 s of the monitor's clock.
     pub rate_hz: Option<f64>,
@@ -541,6 +575,8 @@ pub struct Topic {
     pub decode_errors: u64,
     /// Stamps older than the previous one.
     pub stamp_regressions: u64,
+    /// Publishers heard on the role in the last 10 s (live; `None` before any).
+    pub publishers: Option<f64>,
 }
 
 /// Step counts.

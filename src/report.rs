@@ -125,6 +125,8 @@ pub struct RoleTransport {
     pub latency_s: Option<Stats>,
     /// Time between arrivals.
     pub interarrival_s: Option<Stats>,
+    /// The most publishers heard on the role at once (live only).
+    pub publishers_max: Option<f64>,
 }
 
 /// Steps section.
@@ -278,7 +280,7 @@ impl Report {
         // With alpha != 2 the engine emits only the gospa total (SPEC §6), so the parts
         // and counts are absent here too.
         for m in Metric::ALL {
-            if matches!(m, Metric::Latency | Metric::Interarrival | Metric::Staleness) {
+            if m.is_per_role() {
                 continue;
             }
             if let Some(s) = stats.get(m, None) {
@@ -303,6 +305,7 @@ impl Report {
                     stamp_regressions: t.stamp_regressions,
                     latency_s: stats.get(Metric::Latency, Some(r)),
                     interarrival_s: stats.get(Metric::Interarrival, Some(r)),
+                    publishers_max: stats.get(Metric::Publishers, Some(r)).map(|s| s.max),
                 },
             );
         }
@@ -360,7 +363,7 @@ impl Report {
     /// no requirement). Such a run exits 2, whatever its rules say.
     pub fn not_evaluable(&self) -> Option<String> {
         let judged = self.metrics.iter().any(|(name, st)| {
-            st.count > 0 && !matches!(*name, "latency_s" | "interarrival_s" | "staleness_s")
+            st.count > 0 && !matches!(*name, "latency_s" | "interarrival_s" | "staleness_s" | "publishers")
         });
         if judged {
             return None;

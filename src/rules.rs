@@ -229,7 +229,7 @@ pub struct RuleSet {
 }
 
 fn is_per_role(m: Metric) -> bool {
-    matches!(m, Metric::Latency | Metric::Interarrival | Metric::Staleness)
+    m.is_per_role()
 }
 
 impl RuleSet {

@@ -719,3 +719,66 @@ fn wildcard_puts_and_unknown_encodings_are_counted_not_used() {
     .unwrap();
     assert_eq!(n, 1);
 }
+
+/// Two publishers on the same role keys (here two `publish` runs of the shipped log) are
+/// counted as two: `plumbline_publishers{role}` reads 2, the report keeps the most seen at
+/// once, and a rule can require exactly one. Before: the two streams merged silently
+/// (GOSPA 10.4 instead of 2.4, every topic `ok`).
+#[test]
+fn a_second_publisher_on_a_role_is_counted_and_can_fail_a_rule() {
+    let dir = tempfile::tempdir().unwrap();
+    let (report, cfgf) = (dir.path().join("report.json"), dir.path().join("one.toml"));
+    std::fs::write(
+        &cfgf,
+        "[[rule]]\nname = \"one-tracker\"\nmetric = \"publishers\"\nrole = \"estimate/objects\"\nwindow = \"1s\"\nstat = \"max\"\nabove = 1.0\nseverity = \"critical\"\n",
+    )
+    .unwrap();
+    let zport = free_port();
+    let mut w = Watcher::spawn(
+        &["--config", cfgf.to_str().unwrap()],
+        "watch",
+        zport,
+        &["--report", report.to_str().unwrap()],
+    );
+    let connect = format!("tcp/127.0.0.1:{zport}");
+    let pubs: Vec<Child> = (0..2)
+        .map(|_| {
+            bin()
+                .args([
+                    "publish",
+                    "replay-logs/campus-loop.jsonl",
+                    "--rate",
+                    "10",
+                    "--restamp",
+                    "--connect",
+                    &connect,
+                    "--no-multicast",
+                ])
+                .stdout(Stdio::null())
+                .stderr(Stdio::null())
+                .spawn()
+                .unwrap()
+        })
+        .collect();
+    std::thread::sleep(Duration::from_millis(2500));
+    let m = http_get(w.http, "/metrics").unwrap_or_default();
+    let line = m
+        .lines()
+        .find(|l| {
+            l.starts_with("plumbline_publishers{")
+                && l.contains("role=\"estimate/objects\"")
+                && l.contains("window=\"now\"")
+        })
+        .unwrap_or_default()
+        .to_string();
+    assert!(line.ends_with(" 2"), "{line}");
+    for mut p in pubs {
+        let _ = p.wait();
+    }
+    w.signal("-TERM");
+    assert_eq!(w.wait(), Some(1), "the critical one-publisher rule fails the run");
+    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    assert_eq!(r["transport"]["estimate/objects"]["publishers_max"], 2.0);
+    let v = r["verdicts"].as_array().unwrap().iter().find(|v| v["rule"] == "one-tracker").unwrap().clone();
+    assert_eq!(v["verdict"], "fail", "{v}");
+}

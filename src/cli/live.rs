@@ -276,6 +276,13 @@ const RIG_PROFILE: &str = include_str!("../../config/rig.toml");
 /// Runs `demo`: the scenario published live over zenoh and watched, in one process.
 pub fn demo_cmd(cfg: &Config, sets: &[String], a: &DemoArgs) -> u8 {
     let mut cfg = a.session.apply(cfg);
+    // The demo's stack and watcher talk on keys of this process alone, so two demos on
+    // one machine (or a watcher on the default keys) never see each other's messages.
+    let own = format!("{}/demo-{}", cfg.prefix, std::process::id());
+    for (role, key) in cfg.roles.iter_mut() {
+        *key = format!("{own}/{}", role.name());
+    }
+    cfg.prefix = own;
     if cfg.rules.is_empty() {
         match Config::load(Some(("config/rig.toml (built in)", RIG_PROFILE)), sets) {
             Ok(rig) => {
@@ -291,7 +298,7 @@ pub fn demo_cmd(cfg: &Config, sets: &[String], a: &DemoArgs) -> u8 {
         Ok(x) => x,
         Err(e) => return fail("demo", e),
     };
-    outln!("plumbline demo: the Aldermoor campus shuttle, live over zenoh");
+    outln!("plumbline demo: the Aldermoor campus shuttle, live over zenoh on {}/*", cfg.prefix);
     outln!("dashboard at http://{0}/  metrics at http://{0}/metrics  (Ctrl-C to stop)", server.addr);
     let session = match zenoh_io::open(&cfg) {
         Ok(s) => s,

@@ -48,6 +48,7 @@ pub fn run(cfg: &Config, o: LoadOptions, session: &zenoh::Session) -> Result<u64
         .collect::<Result<_, _>>()
         .map_err(|e| format!("declaring publishers: {e}"))?;
     let total = (o.rate * o.seconds.min(600.0)) as u64;
+    let tag = super::zenoh_io::source_tag(session);
     let start = Instant::now();
     let mut sent = 0u64;
     while sent < total && start.elapsed().as_secs_f64() < o.seconds.min(600.0) + 5.0 {
@@ -68,7 +69,11 @@ pub fn run(cfg: &Config, o: LoadOptions, session: &zenoh::Session) -> Result<u64
             .collect();
         let msg = Msg::Objects(ObjectSet { stamp: t, frame: None, objects });
         let payload = if o.binary { msg.to_postcard() } else { msg.to_json().into_bytes() };
-        pubs[(sent % 2) as usize].put(payload).wait().map_err(|e| format!("publishing: {e}"))?;
+        pubs[(sent % 2) as usize]
+            .put(payload)
+            .attachment(tag.clone())
+            .wait()
+            .map_err(|e| format!("publishing: {e}"))?;
         sent += 1;
     }
     Ok(sent)

@@ -28,16 +28,19 @@ pub struct PublishOptions {
 /// Publishes one record. Congestion blocks rather than drops, so a replayed log arrives
 /// whole.
 pub fn put(session: &zenoh::Session, rec: &LogRecord, binary: bool) -> Result<(), String> {
+    let tag = super::zenoh_io::source_tag(session);
     let r = if binary {
         session
             .put(rec.key.as_str(), rec.msg.to_postcard())
             .encoding(postcard_encoding())
+            .attachment(tag)
             .congestion_control(CongestionControl::Block)
             .wait()
     } else {
         session
             .put(rec.key.as_str(), rec.msg.to_json())
             .encoding(Encoding::APPLICATION_JSON)
+            .attachment(tag)
             .congestion_control(CongestionControl::Block)
             .wait()
     };

@@ -69,7 +69,16 @@ pub struct Liveness {
     last_arrival: Vec<AtomicU64>,
     /// `live.stall_after` (s).
     stall_after: f64,
+    /// Per role, the publishers heard (by the name their attachment gives, or
+    /// `unidentified`) and when each was last heard (wall time); at most
+    /// [`MAX_SOURCES`] a role, the longest silent forgotten first.
+    sources: Mutex<Vec<Vec<(String, f64)>>>,
 }
+
+/// Publishers remembered per role.
+pub const MAX_SOURCES: usize = 64;
+/// A publisher counts in `publishers` while it was heard this recently (s).
+pub const SOURCE_WINDOW: f64 = 10.0;
 
 impl Liveness {
     /// Liveness for `live.stall_after` = `stall_after` (s); the engine counts as having
@@ -81,7 +90,35 @@ impl Liveness {
             epoch: Instant::now(),
             last_arrival: Role::ALL.iter().map(|_| AtomicU64::new(0)).collect(),
             stall_after,
+            sources: Mutex::new(vec![Vec::new(); Role::ALL.len()]),
         }
+    }
+
+    /// A sample of `role` from the publisher `source` arrived at wall time `t`.
+    pub fn heard_from(&self, role: Role, source: &str, t: f64) {
+        let Ok(mut all) = self.sources.lock() else { return };
+        let list = &mut all[role.index()];
+        if let Some(e) = list.iter_mut().find(|(s, _)| s == source) {
+            e.1 = t;
+            return;
+        }
+        if list.len() >= MAX_SOURCES {
+            if let Some(k) = (0..list.len()).min_by(|&a, &b| list[a].1.total_cmp(&list[b].1)) {
+                list.swap_remove(k);
+            }
+        }
+        list.push((source.to_string(), t));
+    }
+
+    /// Publishers of `role` heard in the [`SOURCE_WINDOW`] before `now`, and their names.
+    pub fn publishers(&self, role: Role, now: f64) -> (usize, Vec<String>) {
+        let Ok(all) = self.sources.lock() else { return (0, Vec::new()) };
+        let names: Vec<String> = all[role.index()]
+            .iter()
+            .filter(|(_, t)| now - t <= SOURCE_WINDOW)
+            .map(|(s, _)| s.clone())
+            .collect();
+        (names.len(), names)
     }
 
     /// The engine loop made progress.
@@ -173,6 +210,8 @@ pub fn run(
             .callback(move |sample| {
                 let recv = wall_now();
                 q.liveness.arrived(role, recv);
+                let source = sample.attachment().and_then(|a| zenoh_io::source_of(&a.to_bytes()));
+                q.liveness.heard_from(role, source.as_deref().unwrap_or("unidentified"), recv);
                 let rec = if zenoh_io::is_role_data(&bound, sample.key_expr()) {
                     let payload = sample.payload().to_bytes();
                     zenoh_io::decode(&c, role, sample.key_expr().as_str(), sample.encoding(), &payload, recv)
@@ -242,6 +281,8 @@ pub fn run(
         || stop.load(Ordering::SeqCst) || opts.duration.is_some_and(|d| started.elapsed().as_secs_f64() >= d);
     // Messages taken from the queue but not evaluated because the stop came first.
     let mut cut_short = [0u64; 6];
+    // Roles with more than one publisher now (warned once each time it starts).
+    let mut merged = [false; 6];
     'run: loop {
         live.beat();
         if must_stop() {
@@ -334,8 +375,9 @@ pub fn run(
         monitor.advance(now, &mut samples, &mut events);
         let refresh_due = last_refresh.elapsed().as_secs_f64() >= cfg.live.refresh;
         if refresh_due {
-            // Staleness of every role heard from, as samples so rules can watch it.
-            let stale: Vec<Sample> = Role::ALL
+            // Staleness of every role heard from, and how many publishers each has, as
+            // samples so rules can watch them (a rule `publishers above 1` requires one).
+            let mut stale: Vec<Sample> = Role::ALL
                 .iter()
                 .filter_map(|&r| {
                     monitor.engine.transport(r).staleness(now).map(|v| Sample {
@@ -346,6 +388,22 @@ pub fn run(
                     })
                 })
                 .collect();
+            for r in Role::ALL {
+                let (n, names) = live.publishers(r, now);
+                if n == 0 {
+                    continue;
+                }
+                stale.push(Sample { t: now, metric: Metric::Publishers, role: Some(r), value: n as f64 });
+                if n > 1 && !merged[r.index()] {
+                    tracing::warn!(role = r.name(), publishers = ?names, "more than one publisher on a role");
+                    errln!(
+                        "plumbline: warning: {} has {n} publishers ({}): their messages merge into one stream",
+                        r.name(),
+                        names.join(", ")
+                    );
+                }
+                merged[r.index()] = n > 1;
+            }
             monitor.inject(&mut samples, &stale, &mut events);
         }
         handle(&samples[from_messages..], &events, shared, &alert_pub, journal.as_mut());

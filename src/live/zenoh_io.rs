@@ -50,6 +50,26 @@ pub fn is_role_data(bound: &zenoh::key_expr::KeyExpr<'_>, key: &zenoh::key_expr:
     k == bound.as_str() || bound.includes(key)
 }
 
+/// The attachment prefix by which a publisher names itself: `plumbline-source=<name>`.
+/// plumbline's own publishers (`publish`, `demo`, `load`) attach it with their session id;
+/// any stack may attach it with a name of its own. Samples without it count as one
+/// unidentified publisher per role.
+pub const SOURCE_PREFIX: &[u8] = b"plumbline-source=";
+
+/// The attachment naming this session as a publisher.
+pub fn source_tag(session: &zenoh::Session) -> Vec<u8> {
+    let mut v = SOURCE_PREFIX.to_vec();
+    v.extend_from_slice(session.zid().to_string().as_bytes());
+    v
+}
+
+/// The publisher a sample's attachment names, if it names one (at most 64 bytes of it).
+pub fn source_of(attachment: &[u8]) -> Option<String> {
+    let name = attachment.strip_prefix(SOURCE_PREFIX)?;
+    let name = &name[..name.len().min(64)];
+    std::str::from_utf8(name).ok().filter(|n| !n.is_empty()).map(str::to_string)
+}
+
 /// Opens a zenoh session as the config says (`[zenoh]`: mode, connect, listen, scouting, or
 /// a passthrough zenoh config file that the other keys then amend).
 pub fn open(cfg: &Config) -> Result<zenoh::Session, String> {
@@ -67,8 +87,18 @@ pub fn open(cfg: &Config) -> Result<zenoh::Session, String> {
     }
     if !z.listen.is_empty() {
         set(&mut zc, "listen/endpoints", serde_json::to_string(&z.listen).unwrap_or_default())?;
+    } else if z.config_file.is_none() {
+        // Nothing said: listen on this machine only (zenoh's own default is every interface).
+        set(&mut zc, "listen/endpoints", r#"["tcp/127.0.0.1:0"]"#.into())?;
     }
     set(&mut zc, "scouting/multicast/enabled", z.multicast.to_string())?;
+    if z.config_file.is_none() || z.multicast_interface != crate::config::LOOPBACK_INTERFACE {
+        set(
+            &mut zc,
+            "scouting/multicast/interface",
+            serde_json::to_string(&z.multicast_interface).unwrap_or_default(),
+        )?;
+    }
     if z.config_file.is_none() {
         // Reconnect to a restarted router within a second rather than zenoh's default
         // back-off up to 4 s (a passthrough config file keeps its own settings).

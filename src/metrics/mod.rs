@@ -92,11 +92,13 @@ pub enum Metric {
     Interarrival,
     /// Now minus the last arrival (s), per role; live only.
     Staleness,
+    /// Distinct publishers heard on the role in the last 10 s, per role; live only.
+    Publishers,
 }
 
 impl Metric {
     /// Every metric, in report order.
-    pub const ALL: [Metric; 40] = [
+    pub const ALL: [Metric; 41] = [
         Metric::Gospa,
         Metric::GospaLocalization,
         Metric::GospaMissed,
@@ -137,6 +139,7 @@ impl Metric {
         Metric::Latency,
         Metric::Interarrival,
         Metric::Staleness,
+        Metric::Publishers,
     ];
 
     /// The SPEC §5 name.
@@ -182,12 +185,19 @@ impl Metric {
             Metric::Latency => "latency_s",
             Metric::Interarrival => "interarrival_s",
             Metric::Staleness => "staleness_s",
+            Metric::Publishers => "publishers",
         }
     }
 
     /// Parses a SPEC name.
     pub fn from_name(s: &str) -> Option<Metric> {
         Metric::ALL.into_iter().find(|m| m.name() == s)
+    }
+
+    /// Whether the metric is kept per role (transport and the monitor's own view of its
+    /// inputs) rather than per step.
+    pub fn is_per_role(self) -> bool {
+        matches!(self, Metric::Latency | Metric::Interarrival | Metric::Staleness | Metric::Publishers)
     }
 
     /// Whether the metric is a per-step count whose run total matters.

@@ -181,12 +181,14 @@ function drawAlerts(active) {
   ul.replaceChildren();
   if (active.length === 0) { ul.append(el("li", { class: "none" }, "no rule raised")); return; }
   for (const a of active) {
-    const li = el("li", { class: "sev-" + a.severity, "data-rule": a.rule, "data-raised-t": String(a.raised_t) });
+    const li = el("li", { class: "sev-" + a.severity + (a.stale ? " stale" : ""), "data-rule": a.rule,
+      "data-raised-t": String(a.raised_t), "data-stale": String(a.stale) });
     li.append(el("span", { class: "sev" }, a.severity));
     li.append(el("span", { class: "rule" }, a.rule + (a.role ? " [" + a.role + "]" : "")));
     li.append(el("span", { class: "when" }, "raised at " + fmtTime(a.raised_t)));
     li.append(el("span", { class: "for" }, "active for " + fmtAge(a.active_s)));
     li.append(el("span", {}, a.metric + " " + fmt(a.value) + " vs threshold " + fmt(a.threshold)));
+    if (a.stale) li.append(el("span", { class: "stale-note" }, "STALE: no new " + a.metric + " value; this is the last known state"));
     ul.append(li);
   }
 }
@@ -221,7 +223,8 @@ function drawTopics(topics) {
     const ms = (v) => (v === null ? "–" : fmt(v * 1000));
     tr.append(cell(t.role), badge(t.state, "state state-" + t.state), cell(fmt(t.rate_hz), "n"),
       cell(ms(t.latency_p50_s), "n"), cell(ms(t.latency_p99_s), "n"), cell(fmt(t.staleness_s), "n"),
-      cell(String(t.dropped), "n"), cell(String(t.decode_errors), "n"), cell(String(t.stamp_regressions), "n"));
+      cell(String(t.dropped), "n"), cell(String(t.decode_errors), "n"), cell(String(t.stamp_regressions), "n"),
+      cell(t.publishers === null ? "–" : String(t.publishers), "n"));
     tb.append(labelCells(tr, "#topics"));
   }
 }
@@ -246,9 +249,18 @@ function drawVerdicts(verdicts) {
 
 let last = null;
 
+// What the header says once the stream is up: the state of the input, not of the socket.
+const INPUT_STATES = {
+  live: ["live", "streaming"],
+  stale: ["stale", "INPUT STALE: every role has gone quiet"],
+  merged: ["merged", "several publishers on one role: their messages merge"],
+  no_data: ["connecting", "waiting for input"],
+};
+
 function render(s) {
   if (!s || !s.charts) return;
   last = s;
+  if (streaming && INPUT_STATES[s.input]) setLink(...INPUT_STATES[s.input]);
   document.getElementById("clock").textContent = isFinite(s.now) ? fmtTime(s.now) : "–";
   document.getElementById("steps-tracking").textContent = String(s.steps.tracking_evaluated);
   document.getElementById("steps-ego").textContent = String(s.steps.ego_evaluated);
@@ -261,6 +273,8 @@ function render(s) {
   drawEvents(s.alerts_recent);
   document.body.dataset.snapshots = String((+document.body.dataset.snapshots || 0) + 1);
 }
+
+let streaming = false;
 
 function setLink(state, text) {
   const l = document.getElementById("link");
@@ -313,6 +327,7 @@ async function follow() {
       if (r.status === 401) { await askToken(); continue; }
       if (!r.ok) throw new Error("HTTP " + r.status);
       setLink("live", "streaming");
+      streaming = true;
       const reader = r.body.getReader();
       const dec = new TextDecoder();
       let buf = "";
@@ -327,6 +342,7 @@ async function follow() {
         }
       }
     } catch (e) { /* fall through: retry */ }
+    streaming = false;
     setLink("lost", "connection lost: retrying");
     await sleep(1000);
   }
