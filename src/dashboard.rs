@@ -361,7 +361,7 @@ impl Dashboard {
                 let publishers = monitor
                     .windows
                     .get(Metric::Publishers, Some(r))
-                    .and_then(|ws| ws.get(0))
+                    .and_then(|ws| ws.first())
                     .and_then(|w| w.stat(Stat::Last));
                 let state = match staleness_s {
                     None => "no_data",
