@@ -1,5 +1,6 @@
 //! The command line from the outside: exit codes, messages, report and series files.
 
+use std::collections::BTreeMap;
 use std::path::Path;
 use std::process::{Command, Output};
 
@@ -456,4 +457,93 @@ fn gate_refuses_reports_that_define_metrics_differently() {
     ]);
     assert_ne!(out.status.code(), Some(2), "{}", text(&out.stderr));
     assert!(text(&out.stdout).contains("gospa"));
+}
+
+/// `compare` judges one value per run (its mean), not the autocorrelated steps: 20 field
+/// runs from the generator of the simulated family are not told apart from it, and no more
+/// than a few of them on their own (the rank test's false alarms run at alpha); 20 runs
+/// with twice the tracker noise differ on the tracking metrics and not on localisation,
+/// which the noise does not touch. Before: per-step KS called eight twins of one
+/// generator `differs` with p = 1.2e-37.
+#[test]
+fn compare_uses_per_run_statistics_with_honest_error_rates() {
+    let dir = tempfile::tempdir().unwrap();
+    let fam = |name: &str, runs: &str, seed: &str, noise: &str| {
+        let out = dir.path().join(name);
+        let args = [
+            "scenario",
+            "--runs",
+            runs,
+            "--seed",
+            seed,
+            "--duration",
+            "10",
+            "--noise",
+            noise,
+            "--out",
+            out.to_str().unwrap(),
+        ];
+        assert!(plumbline(&args).status.success());
+        out
+    };
+    let sim = fam("sim", "40", "100", "0.12");
+    let same = fam("same", "20", "500", "0.12");
+    let noisy = fam("noisy", "20", "500", "0.24");
+    let metrics = ["gospa", "gospa_localization", "ospa", "ego_position_error_m"];
+    let run = |field: &Path| {
+        let report = dir.path().join("cmp.json");
+        let mut args = vec!["compare", "--field", field.to_str().unwrap(), "--sim", sim.to_str().unwrap()];
+        for m in &metrics {
+            args.extend(["--metric", m]);
+        }
+        args.extend(["--report", report.to_str().unwrap()]);
+        let out = plumbline(&args);
+        let v: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+        (out.status.code(), v)
+    };
+    let (code, v) = run(&same);
+    assert_eq!(code, Some(0));
+    for row in v.as_array().unwrap() {
+        assert_eq!(row["verdict"], "not_distinguished", "{}", row["metric"]);
+        assert_eq!(row["field_runs"], 20);
+        // alpha = 0.05 of 20 runs is 1; four or more happens with probability 1.6%.
+        assert!(
+            row["share_differs"].as_f64().unwrap() <= 0.15,
+            "{}: {}",
+            row["metric"],
+            row["share_differs"]
+        );
+    }
+    let (code, v) = run(&noisy);
+    assert_eq!(code, Some(1), "a family that differs fails the comparison");
+    let by: BTreeMap<String, serde_json::Value> = v
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| (r["metric"].as_str().unwrap().to_string(), r.clone()))
+        .collect();
+    for m in ["gospa", "gospa_localization", "ospa"] {
+        assert_eq!(by[m]["verdict"], "differs", "{m}");
+        assert!(by[m]["ks"]["p_value"].as_f64().unwrap() < 1e-3, "{m}");
+        assert!(by[m]["share_differs"].as_f64().unwrap() >= 0.4, "{m}: {}", by[m]["share_differs"]);
+    }
+    assert_eq!(by["ego_position_error_m"]["verdict"], "not_distinguished");
+    // Three simulated runs can never give p < 0.05 for one field run: said, not hidden.
+    let few = fam("few", "3", "100", "0.12");
+    let report = dir.path().join("few.json");
+    let one = same.join("run-0000.plb");
+    let out = plumbline(&[
+        "compare",
+        "--field",
+        one.to_str().unwrap(),
+        "--sim",
+        few.to_str().unwrap(),
+        "--metric",
+        "gospa",
+        "--report",
+        report.to_str().unwrap(),
+    ]);
+    assert_eq!(out.status.code(), Some(0));
+    let v: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
+    assert_eq!(v[0]["verdict"], "too_few_runs");
 }

@@ -77,8 +77,9 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     super::EXIT_OK
 }
 
-/// A seeded family of runs: run i has seed `seed + i`, tracker noise in [0.06, 0.26) m,
-/// 8 to 23 objects, and object topics at 10 or 20 Hz, all drawn from the family seed.
+/// A seeded family of runs: run i has seed `seed + i`, tracker noise in [0.5, 2.17) times
+/// `--noise` (with the default 0.12 m: [0.06, 0.26) m), 8 to 23 objects, and object topics
+/// at 10 or 20 Hz, all drawn from the family seed.
 fn family(cfg: &Config, a: &Args, base: &ScenarioParams, n: usize) -> u8 {
     use rand::{Rng, SeedableRng};
     if a.format != "plb" && a.format != "jsonl" {
@@ -93,7 +94,7 @@ fn family(cfg: &Config, a: &Args, base: &ScenarioParams, n: usize) -> u8 {
     for i in 0..n {
         let p = ScenarioParams {
             seed: a.seed + i as u64,
-            noise: rng.random_range(0.06..0.26),
+            noise: rng.random_range(0.06..0.26) * (base.noise / 0.12),
             objects: rng.random_range(8..24),
             rate_hz: if rng.random_bool(0.5) { 10.0 } else { 20.0 },
             ..base.clone()
