@@ -371,6 +371,9 @@ pub fn rank_p_value(x: f64, sims: &[f64]) -> f64 {
     (2.0 * (1 + below.min(above)) as f64 / (sims.len() + 1) as f64).min(1.0)
 }
 
+/// A run's name and its mean of each metric it has.
+type RunMeans = (String, BTreeMap<Metric, f64>);
+
 /// Each run's mean of each metric (one value per run: the runs are independent draws,
 /// where the steps within one run are strongly autocorrelated).
 fn run_means(
@@ -378,7 +381,7 @@ fn run_means(
     logs: &[PathBuf],
     metrics: &[Metric],
     jobs: usize,
-) -> Result<Vec<(String, BTreeMap<Metric, f64>)>, String> {
+) -> Result<Vec<RunMeans>, String> {
     let pool = rayon::ThreadPoolBuilder::new().num_threads(jobs.max(1)).build().map_err(|e| e.to_string())?;
     pool.install(|| {
         logs.par_iter()
@@ -423,7 +426,7 @@ pub fn compare_cmd(cfg: &Config, a: &CompareArgs) -> u8 {
     let rows: Vec<Comparison> = metrics
         .iter()
         .map(|m| {
-            let of = |runs: &[(String, BTreeMap<Metric, f64>)]| -> Vec<(String, f64)> {
+            let of = |runs: &[RunMeans]| -> Vec<(String, f64)> {
                 runs.iter().filter_map(|(n, v)| v.get(m).map(|&x| (n.clone(), x))).collect()
             };
             let (f, sv) = (of(&field), of(&sim));
