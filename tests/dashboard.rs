@@ -166,3 +166,32 @@ fn topic_rate_and_state_follow_the_monitor_clock() {
     d.observe(204.5, &[], &[]);
     assert_eq!(topic(&d.snapshot(&m), "estimate/ego").state, "stale");
 }
+
+/// When every role heard has gone quiet the header says so, and an alert whose metric has
+/// had no value for `stale_after` is marked stale. Before: the header said "streaming" and
+/// a critical contact alert stayed active with nothing saying its input had stopped.
+#[test]
+fn the_header_and_the_alerts_say_when_the_input_is_stale() {
+    let cfg = Config::defaults();
+    let mut m = Monitor::new(&cfg);
+    let mut d = Dashboard::new(params(), &cfg);
+    let (mut s, mut e) = (Vec::new(), Vec::new());
+    assert_eq!(d.snapshot(&m).input, "no_data");
+    for k in 0..10 {
+        let t = 300.0 + k as f64 * 0.1;
+        let msg = Msg::Pose(Pose { stamp: t, x: 0.0, y: 0.0, yaw: 0.0, v: None, cov: None });
+        m.push(Input::Message { role: Role::ReferenceEgo, recv: Some(t), msg }, &mut s, &mut e);
+    }
+    let contact = [sample(300.9, Metric::Collision, 1.0)];
+    m.inject(&mut s, &contact, &mut e);
+    d.observe(300.9, &s, &[event("raised", 300.9)]);
+    let snap = d.snapshot(&m);
+    assert_eq!(snap.input, "live");
+    assert!(!snap.alerts_active[0].stale);
+    // 1.5 s of silence, past stale_after = 1 s.
+    d.observe(302.4, &[], &[]);
+    let snap = d.snapshot(&m);
+    assert_eq!(snap.input, "stale");
+    assert_eq!(snap.alerts_active.len(), 1, "still raised: nothing cleared it");
+    assert!(snap.alerts_active[0].stale, "but marked stale");
+}
