@@ -21,7 +21,7 @@ sleep 1.5
 wpid=$!
 trap cleanup EXIT
 wait_ready "$hport" "$dir/watch.log"
-"$bin" load --rate 200 --seconds 16 --objects 5 --mode client --connect "tcp/127.0.0.1:$rport" \
+"$bin" stress --messages-per-s 200 --seconds 16 --objects 5 --mode client --connect "tcp/127.0.0.1:$rport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!
 sleep 5

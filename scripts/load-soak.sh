@@ -27,7 +27,7 @@ hport=$(port)
 wpid=$!
 trap 'kill $wpid 2>/dev/null || true; rm -rf "$dir"' EXIT
 wait_ready "$hport" "$dir/watch.log"
-"$bin" load --rate "$rate" --seconds "$secs" --objects "${OBJECTS:-10}" ${BINARY:+--binary} --connect "tcp/127.0.0.1:$zport" \
+"$bin" stress --messages-per-s "$rate" --seconds "$secs" --objects "${OBJECTS:-10}" ${BINARY:+--postcard} --connect "tcp/127.0.0.1:$zport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!
 python3 - "$mode" "$wpid" "$lpid" "$hport" "$secs" <<'PY'

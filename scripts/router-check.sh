@@ -15,7 +15,7 @@ sleep 1.5
 wpid=$!
 wait_ready "$hport" "$dir/watch.log"
 sleep 0.5
-"$bin" publish replay-logs/campus-loop.jsonl --rate 20 --mode client --connect "tcp/127.0.0.1:$rport" --no-multicast
+"$bin" publish replay-logs/campus-loop.jsonl --speed 20 --mode client --connect "tcp/127.0.0.1:$rport" --no-multicast
 sleep 1
 kill -TERM "$wpid"
 wait "$wpid" || true

@@ -15,6 +15,7 @@
 //! - [`rules`]: threshold rules, alerts and verdicts (pure);
 //! - [`monitor`]: engine + statistics + windows + rules, the unit live and replay drive (pure);
 //! - [`scenario`]: the demo-scenario generator (pure, seeded);
+//! - [`schema`]: JSON Schemas of the messages and records (pure);
 //! - `live` (feature `live`): zenoh, HTTP and signals (I/O edge);
 //! - [`logio`]: log readers and writers (file I/O edge);
 //! - [`replay`]: drives the engine from a log (file I/O edge, two threads);
@@ -51,6 +52,7 @@ pub mod replay;
 pub mod report;
 pub mod rules;
 pub mod scenario;
+pub mod schema;
 pub mod stats;
 pub mod windows;
 pub mod wire;

@@ -547,3 +547,50 @@ fn compare_uses_per_run_statistics_with_honest_error_rates() {
     let v: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
     assert_eq!(v[0]["verdict"], "too_few_runs");
 }
+
+/// The README's command table lists every command and, for each, exactly the options its
+/// `--help` lists (the global ones aside).
+#[test]
+fn the_readme_command_table_matches_help() {
+    let readme = std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("README.md")).unwrap();
+    let table: Vec<&str> = readme.lines().filter(|l| l.starts_with("| `plumbline ")).collect();
+    let help = text(&plumbline(&["--help"]).stdout);
+    let commands: Vec<String> = help
+        .lines()
+        .skip_while(|l| !l.starts_with("Commands:"))
+        .skip(1)
+        .take_while(|l| l.starts_with("  "))
+        .filter_map(|l| l.split_whitespace().next().map(str::to_string))
+        .filter(|c| c != "help")
+        .collect();
+    assert!(commands.len() >= 12, "{commands:?}");
+    let options = |s: &str| -> std::collections::BTreeSet<String> {
+        s.split(|c: char| !(c.is_ascii_alphanumeric() || c == '-'))
+            .filter(|w| w.starts_with("--") && w.len() > 2)
+            .map(str::to_string)
+            .collect()
+    };
+    for c in &commands {
+        let row = table
+            .iter()
+            .find(|r| {
+                r.starts_with(&format!("| `plumbline {c} ")) || r.starts_with(&format!("| `plumbline {c}`"))
+            })
+            .unwrap_or_else(|| panic!("no README row for `{c}`"));
+        let row = row.replace("\\|", "/");
+        let cell = row.split('|').nth(1).unwrap();
+        let h = text(&plumbline(&[c, "--help"]).stdout);
+        let mut want = options(&h);
+        for global in ["--config", "--set", "--log-json", "--help"] {
+            want.remove(global);
+        }
+        // Only what the Options section lists, not words of the descriptions.
+        let listed: std::collections::BTreeSet<String> = h
+            .lines()
+            .filter(|l| l.trim_start().starts_with("--") || l.trim_start().starts_with("-"))
+            .flat_map(|l| options(l.split("  ").find(|p| !p.trim().is_empty()).unwrap_or("")))
+            .filter(|o| want.contains(o))
+            .collect();
+        assert_eq!(options(cell), listed, "README row for `{c}` against its --help");
+    }
+}

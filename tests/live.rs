@@ -89,7 +89,7 @@ impl Watcher {
 fn publish(zport: u16, log: &str, rate: &str) {
     let connect = format!("tcp/127.0.0.1:{zport}");
     let st = bin()
-        .args(["publish", log, "--rate", rate, "--connect", &connect, "--no-multicast"])
+        .args(["publish", log, "--speed", rate, "--connect", &connect, "--no-multicast"])
         .stdout(Stdio::null())
         .stderr(Stdio::null())
         .status()
@@ -747,7 +747,7 @@ fn a_second_publisher_on_a_role_is_counted_and_can_fail_a_rule() {
                 .args([
                     "publish",
                     "replay-logs/campus-loop.jsonl",
-                    "--rate",
+                    "--speed",
                     "10",
                     "--restamp",
                     "--connect",

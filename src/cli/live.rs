@@ -82,12 +82,13 @@ pub struct RecordArgs {
 pub struct PublishArgs {
     /// The log to play.
     pub log: PathBuf,
-    /// Time scale (1.0 = original timing) or `max`.
-    #[arg(long, default_value = "1.0")]
-    pub rate: String,
-    /// Postcard payloads instead of JSON.
-    #[arg(long)]
-    pub binary: bool,
+    /// Playback speed: 1.0 plays the log's own timing, 2.0 twice as fast, `max` as fast as
+    /// possible (`--rate` is the old name).
+    #[arg(long = "speed", alias = "rate", default_value = "1.0")]
+    pub speed: String,
+    /// Postcard payloads instead of JSON (`--binary` is the old name).
+    #[arg(long = "postcard", alias = "binary")]
+    pub postcard: bool,
     /// Shift stamps onto the wall clock: the log's first arrival becomes now, and every
     /// message keeps its recorded latency.
     #[arg(long)]
@@ -97,46 +98,47 @@ pub struct PublishArgs {
     pub session: SessionArgs,
 }
 
-/// `load` arguments.
+/// `stress` arguments.
 #[derive(Debug, clap::Args)]
 pub struct LoadArgs {
-    /// Messages per second (all roles together).
-    #[arg(long, default_value_t = 1000.0)]
-    pub rate: f64,
+    /// Messages per second, all roles together (`--rate` is the old name).
+    #[arg(long = "messages-per-s", alias = "rate", default_value_t = 1000.0)]
+    pub messages_per_s: f64,
     /// How long to run (s, at most 600).
     #[arg(long, default_value_t = 10.0)]
     pub seconds: f64,
     /// Objects per set.
     #[arg(long, default_value_t = 10)]
     pub objects: usize,
-    /// Postcard payloads instead of JSON.
-    #[arg(long)]
-    pub binary: bool,
+    /// Postcard payloads instead of JSON (`--binary` is the old name).
+    #[arg(long = "postcard", alias = "binary")]
+    pub postcard: bool,
     /// Session settings (endpoints must be on loopback).
     #[command(flatten)]
     pub session: SessionArgs,
 }
 
-/// Runs `load`.
+/// Runs `stress` (`load` is its old name).
 pub fn load_cmd(cfg: &Config, a: &LoadArgs) -> u8 {
+    super::renamed(&[("load", "stress"), ("--rate", "--messages-per-s"), ("--binary", "--postcard")]);
     let cfg = a.session.apply(cfg);
     if !crate::live::load::loopback_only(&cfg.zenoh.connect)
         || !crate::live::load::loopback_only(&cfg.zenoh.listen)
     {
-        return fail("load", "endpoints must be on loopback (127.0.0.0/8, localhost or [::1])");
+        return fail("stress", "endpoints must be on loopback (127.0.0.0/8, localhost or [::1])");
     }
-    if !(a.rate > 0.0 && a.rate <= 1e6 && a.seconds > 0.0 && a.seconds <= 600.0) {
-        return fail("load", "--rate must be in (0, 1e6] and --seconds in (0, 600]");
+    if !(a.messages_per_s > 0.0 && a.messages_per_s <= 1e6 && a.seconds > 0.0 && a.seconds <= 600.0) {
+        return fail("stress", "--messages-per-s must be in (0, 1e6] and --seconds in (0, 600]");
     }
     let session = match zenoh_io::open(&cfg) {
         Ok(s) => s,
-        Err(e) => return fail("load", e),
+        Err(e) => return fail("stress", e),
     };
     let opts = crate::live::load::LoadOptions {
-        rate: a.rate,
+        rate: a.messages_per_s,
         seconds: a.seconds,
         objects: a.objects,
-        binary: a.binary,
+        binary: a.postcard,
     };
     let t0 = std::time::Instant::now();
     let r = crate::live::load::run(&cfg, opts, &session);
@@ -145,10 +147,10 @@ pub fn load_cmd(cfg: &Config, a: &LoadArgs) -> u8 {
     match r {
         Ok(n) => {
             let el = t0.elapsed().as_secs_f64();
-            errln!("plumbline load: {n} messages in {el:.2} s ({:.0}/s)", n as f64 / el);
+            errln!("plumbline stress: {n} messages in {el:.2} s ({:.0}/s)", n as f64 / el);
             super::EXIT_OK
         }
-        Err(e) => fail("load", e),
+        Err(e) => fail("stress", e),
     }
 }
 
@@ -244,11 +246,12 @@ pub fn record_cmd(cfg: &Config, a: &RecordArgs) -> u8 {
 /// Runs `publish`.
 pub fn publish_cmd(cfg: &Config, a: &PublishArgs) -> u8 {
     let cfg = a.session.apply(cfg);
-    let rate = match a.rate.as_str() {
+    super::renamed(&[("--rate", "--speed"), ("--binary", "--postcard")]);
+    let rate = match a.speed.as_str() {
         "max" => None,
         s => match s.parse::<f64>() {
             Ok(r) if r.is_finite() && r > 0.0 => Some(r),
-            _ => return fail("publish", format!("--rate: a positive number or `max`, found `{s}`")),
+            _ => return fail("publish", format!("--speed: a positive number or `max`, found `{s}`")),
         },
     };
     let session = match zenoh_io::open(&cfg) {
@@ -256,7 +259,7 @@ pub fn publish_cmd(cfg: &Config, a: &PublishArgs) -> u8 {
         Err(e) => return fail("publish", e),
     };
     let stop = AtomicBool::new(false);
-    let opts = PublishOptions { rate, binary: a.binary, restamp: a.restamp };
+    let opts = PublishOptions { rate, binary: a.postcard, restamp: a.restamp };
     let r = publish::run(&cfg, &a.log, opts, &session, &stop);
     // Give the transport a moment to deliver the last samples before closing.
     std::thread::sleep(std::time::Duration::from_millis(300));

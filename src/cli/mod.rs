@@ -63,8 +63,10 @@ pub enum Command {
     Gate(campaign::GateArgs),
     /// Replay many logs in parallel and aggregate pass rates with confidence bounds.
     Campaign(campaign::CampaignArgs),
-    /// Does the simulation represent the field? Two-sample KS per metric.
+    /// Field runs against their simulated twins, on per-run statistics.
     Compare(campaign::CompareArgs),
+    /// Print the JSON Schema (draft 2020-12) of a message or of a JSON Lines record.
+    Schema(SchemaArgs),
     /// Watch a live stack over zenoh: metrics on HTTP, alerts, optional recording.
     #[cfg(feature = "live")]
     Watch(live::WatchArgs),
@@ -77,9 +79,36 @@ pub enum Command {
     /// The demo stack and the watcher in one process (no stack or router needed).
     #[cfg(feature = "live")]
     Demo(live::DemoArgs),
-    /// A bounded load generator for the watcher (loopback only).
+    /// A bounded stress generator for the watcher, loopback only (`load` is the old name).
     #[cfg(feature = "live")]
-    Load(live::LoadArgs),
+    #[command(alias = "load")]
+    Stress(live::LoadArgs),
+}
+
+/// `schema` arguments.
+#[derive(Debug, clap::Args)]
+pub struct SchemaArgs {
+    /// Which schema: record (a JSON Lines line), object-set, pose, path or obstacle-set;
+    /// none: all of them in one object by name.
+    pub name: Option<String>,
+}
+
+/// Runs `schema`: the schemas with the config's role keys and limits.
+fn schema_cmd(cfg: &Config, a: &SchemaArgs) -> u8 {
+    let v = match &a.name {
+        Some(n) => match crate::schema::by_name(cfg, n) {
+            Some(v) => v,
+            None => return fail("schema", format!("`{n}`: one of {}", crate::schema::NAMES.join(", "))),
+        },
+        None => serde_json::Value::Object(
+            crate::schema::NAMES
+                .iter()
+                .filter_map(|n| Some((n.to_string(), crate::schema::by_name(cfg, n)?)))
+                .collect(),
+        ),
+    };
+    outln!("{}", serde_json::to_string_pretty(&v).unwrap_or_default());
+    EXIT_OK
 }
 
 /// Runs the parsed command line and returns the process exit code.
@@ -99,6 +128,7 @@ pub fn run(cli: Cli) -> ExitCode {
         Command::Gate(a) => campaign::gate_cmd(&cfg, a),
         Command::Campaign(a) => campaign::campaign_cmd(&cfg, a),
         Command::Compare(a) => campaign::compare_cmd(&cfg, a),
+        Command::Schema(a) => schema_cmd(&cfg, a),
         #[cfg(feature = "live")]
         Command::Watch(a) => live::watch_cmd(&cfg, a),
         #[cfg(feature = "live")]
@@ -108,7 +138,7 @@ pub fn run(cli: Cli) -> ExitCode {
         #[cfg(feature = "live")]
         Command::Demo(a) => live::demo_cmd(&cfg, &cli.sets, a),
         #[cfg(feature = "live")]
-        Command::Load(a) => live::load_cmd(&cfg, a),
+        Command::Stress(a) => live::load_cmd(&cfg, a),
     };
     ExitCode::from(code)
 }
@@ -128,6 +158,18 @@ pub(crate) fn write_out(args: std::fmt::Arguments<'_>) {
         GONE.store(true, Ordering::Relaxed);
         if e.kind() != std::io::ErrorKind::BrokenPipe {
             tracing::warn!(error = %e, "stdout cannot be written; the rest of the text is dropped");
+        }
+    }
+}
+
+/// Warns, naming the new name, for each old command or option name the command line used
+/// (old names keep working for one release).
+pub(crate) fn renamed(pairs: &[(&str, &str)]) {
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    for (old, new) in pairs {
+        let used = args.iter().any(|a| a == old || a.starts_with(&format!("{old}=")));
+        if used {
+            errln!("plumbline: warning: `{old}` is now `{new}`; the old name goes in the next release");
         }
     }
 }

@@ -29,9 +29,9 @@ pub struct Args {
     /// Tracker position noise (m).
     #[arg(long, default_value_t = 0.12)]
     pub noise: f64,
-    /// Rate of the truth and tracker object topics (Hz).
-    #[arg(long, default_value_t = 10.0)]
-    pub rate: f64,
+    /// Rate of the truth and tracker object topics, Hz (`--rate` is the old name).
+    #[arg(long = "topic-hz", alias = "rate", default_value_t = 10.0)]
+    pub topic_hz: f64,
     /// Objects carry only id, x and y (lean logs for throughput runs).
     #[arg(long)]
     pub minimal: bool,
@@ -39,9 +39,10 @@ pub struct Args {
 
 /// Runs the command.
 pub fn run(cfg: &Config, a: &Args) -> u8 {
+    super::renamed(&[("--rate", "--topic-hz")]);
     let ok = |x: f64| x.is_finite() && x > 0.0;
-    if !(ok(a.duration) && ok(a.rate) && a.rate <= 1000.0 && a.noise.is_finite() && a.noise >= 0.0) {
-        errln!("plumbline scenario: --duration and --rate must be > 0 (rate <= 1000), --noise >= 0");
+    if !(ok(a.duration) && ok(a.topic_hz) && a.topic_hz <= 1000.0 && a.noise.is_finite() && a.noise >= 0.0) {
+        errln!("plumbline scenario: --duration and --topic-hz must be > 0 (topic-hz <= 1000), --noise >= 0");
         return super::EXIT_INPUT;
     }
     let p = ScenarioParams {
@@ -49,7 +50,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
         duration: a.duration,
         objects: a.objects,
         noise: a.noise,
-        rate_hz: a.rate,
+        rate_hz: a.topic_hz,
         minimal: a.minimal,
     };
     if let Some(n) = a.runs {
