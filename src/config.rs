@@ -24,7 +24,7 @@ use crate::windows::Stat;
 
 /// A configuration error, naming where it came from.
 #[derive(Debug, Error)]
-#[error("{source_name}: key `{key}`: {expected}")]
+#[error("{source_name}: {}{expected}", if key.is_empty() { String::new() } else { format!("key `{key}`: ") })]
 pub struct ConfigError {
     /// The file name or the `--set` text.
     pub source_name: String,
@@ -463,20 +463,24 @@ impl Config {
         let mut table = toml::Table::new();
         let mut last_source = "built-in defaults".to_string();
         if let Some((name, text)) = file {
-            table = text
-                .parse::<toml::Table>()
-                .map_err(|e| err(name, "", format!("not valid TOML: {}", e.message().trim())))?;
-            check_raw(&table, name)?;
+            table = text.parse::<toml::Table>().map_err(|e| {
+                let at = e
+                    .span()
+                    .map(|s| line_col(text, s.start))
+                    .map(|(l, c)| format!(" at line {l}, column {c}"));
+                err(name, "", format!("not valid TOML{}: {}", at.unwrap_or_default(), e.message().trim()))
+            })?;
+            check_raw(&table, name).map_err(|e| annotate(e, &table))?;
             last_source = name.to_string();
         }
         for s in sets {
             let label = format!("--set {s}");
             apply_set(&mut table, s).map_err(|e| err(&label, &e.0, e.1))?;
-            check_raw(&table, &label)?;
+            check_raw(&table, &label).map_err(|e| annotate(e, &table))?;
             last_source = label;
         }
-        let raw = check_raw(&table, &last_source)?;
-        Config::build(&raw, &last_source)
+        let raw = check_raw(&table, &last_source).map_err(|e| annotate(e, &table))?;
+        Config::build(&raw, &last_source).map_err(|e| annotate(e, &table))
     }
 
     /// Stage two: resolves a checked raw config.
@@ -583,9 +587,9 @@ impl Config {
             max_plan_points: count(source, "limits.max_plan_points", rl.max_plan_points, dl.max_plan_points)?,
             plan_step: clearance.path_step,
         };
-        let http_listen = raw.http.listen.clone().unwrap_or_else(|| "127.0.0.1:9464".into());
+        let http_listen = raw.http.listen.clone().unwrap_or_else(|| "127.0.0.1:21847".into());
         if http_listen.parse::<std::net::SocketAddr>().is_err() {
-            return Err(err(source, "http.listen", "an address such as \"127.0.0.1:9464\""));
+            return Err(err(source, "http.listen", "an address such as \"127.0.0.1:21847\""));
         }
         let h = &raw.http;
         let http = HttpParams {
@@ -887,6 +891,38 @@ fn build_rule(
     })
 }
 
+/// 1-based line and column of a byte offset.
+fn line_col(text: &str, at: usize) -> (usize, usize) {
+    let before = &text[..at.min(text.len())];
+    let line = before.matches('\n').count() + 1;
+    let col = before.rsplit('\n').next().map_or(0, |l| l.chars().count()) + 1;
+    (line, col)
+}
+
+/// Says more where a key alone says little: which `[[rule]]` table (counted from 1, with
+/// its name) a `rule[i]` key is, and the form a list must take.
+fn annotate(mut e: ConfigError, table: &toml::Table) -> ConfigError {
+    if let Some(i) =
+        e.key.strip_prefix("rule[").and_then(|r| r.split(']').next()).and_then(|n| n.parse::<usize>().ok())
+    {
+        let name = table
+            .get("rule")
+            .and_then(|r| r.as_array())
+            .and_then(|a| a.get(i))
+            .and_then(|r| r.get("name"))
+            .and_then(|n| n.as_str());
+        let which = match name {
+            Some(n) => format!("the [[rule]] number {} in the file, named \"{n}\"", i + 1),
+            None => format!("the [[rule]] number {} in the file", i + 1),
+        };
+        e.expected = format!("{} ({which})", e.expected);
+    }
+    if e.expected.contains("expected a sequence") {
+        e.expected = format!("{} (a list in brackets, e.g. lengths = [\"1s\", \"10s\"])", e.expected);
+    }
+    e
+}
+
 fn check_raw(table: &toml::Table, source: &str) -> Result<RawConfig, ConfigError> {
     let value = toml::Value::Table(table.clone());
     serde_path_to_error::deserialize::<_, RawConfig>(value).map_err(|e| {
@@ -1003,7 +1039,7 @@ mod tests {
         assert_eq!(c.align.max_wait, 0.5);
         assert_eq!(c.align.tolerance, 0.1);
         assert_eq!(c.key_of(Role::EstimateObjects), "rig/estimate/objects");
-        assert_eq!(c.http_listen, "127.0.0.1:9464");
+        assert_eq!(c.http_listen, "127.0.0.1:21847");
     }
 
     #[test]

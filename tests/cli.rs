@@ -594,3 +594,24 @@ fn the_readme_command_table_matches_help() {
         assert_eq!(options(cell), listed, "README row for `{c}` against its --help");
     }
 }
+
+/// Config errors say where: a TOML syntax error its line and column, a `[[rule]]` key
+/// which rule (counted from 1, with its name), a list the form it takes; a taken HTTP port
+/// names the key that moves it.
+#[test]
+fn config_errors_point_at_the_line_the_rule_and_the_form() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = dir.path().join("bad.toml");
+    std::fs::write(&f, "[tracking]\ncutoff_m = 2.0\n[windows\nlengths = [\"1s\"]\n").unwrap();
+    let out = plumbline(&["--config", f.to_str().unwrap(), "replay", "replay-logs/campus-loop.jsonl"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(text(&out.stderr).contains("at line 3, column"), "{}", text(&out.stderr));
+    std::fs::write(&f, "[[rule]]\nname = \"a\"\nmetric = \"gospa\"\nwindow = \"1s\"\nstat = \"mean\"\nabove = 1.0\n\n[[rule]]\nname = \"second\"\nmetric = \"gospa\"\nwindow = \"1s\"\nstat = \"mode\"\nabove = 1.0\n").unwrap();
+    let err = text(
+        &plumbline(&["--config", f.to_str().unwrap(), "replay", "replay-logs/campus-loop.jsonl"]).stderr,
+    );
+    assert!(err.contains("number 2 in the file") && err.contains("\"second\""), "{err}");
+    let err =
+        text(&plumbline(&["--set", "windows.lengths=1s", "replay", "replay-logs/campus-loop.jsonl"]).stderr);
+    assert!(err.contains("[\"1s\", \"10s\"]"), "{err}");
+}

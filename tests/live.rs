@@ -782,3 +782,15 @@ fn a_second_publisher_on_a_role_is_counted_and_can_fail_a_rule() {
     let v = r["verdicts"].as_array().unwrap().iter().find(|v| v["rule"] == "one-tracker").unwrap().clone();
     assert_eq!(v["verdict"], "fail", "{v}");
 }
+
+/// A taken HTTP port is said as such, with the key that moves it.
+#[test]
+fn a_taken_http_port_names_the_key_that_moves_it() {
+    let taken = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
+    let port = taken.local_addr().unwrap().port();
+    let set = format!("http.listen=127.0.0.1:{port}");
+    let out = bin().args(["--set", &set, "watch", "--duration", "1", "--no-multicast"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("the port is taken") && err.contains("http.listen"), "{err}");
+}

@@ -297,7 +297,15 @@ pub fn start(
         streams: AtomicUsize::new(0),
         epoch: Instant::now(),
     });
-    let std_listener = std::net::TcpListener::bind(listen).map_err(|e| format!("binding {listen}: {e}"))?;
+    let std_listener = std::net::TcpListener::bind(listen).map_err(|e| {
+        if e.kind() == std::io::ErrorKind::AddrInUse {
+            format!(
+                "binding {listen}: the port is taken by another program; set http.listen to another address (--set http.listen=127.0.0.1:0 takes any free port)"
+            )
+        } else {
+            format!("binding {listen} (http.listen): {e}")
+        }
+    })?;
     std_listener.set_nonblocking(true).map_err(|e| e.to_string())?;
     let addr = std_listener.local_addr().map_err(|e| e.to_string())?;
     if !addr.ip().is_loopback() && !has_token {
