@@ -88,7 +88,7 @@ fn charts(order: f64, w: &str) -> Vec<ChartDef> {
             unit: gospa_unit,
             lines: vec![
                 line(Metric::Gospa, Stat::Mean, "gospa"),
-                line(Metric::GospaLocalization, Stat::Mean, "localisation"),
+                line(Metric::GospaLocalization, Stat::Mean, "localization"),
                 line(Metric::GospaMissed, Stat::Mean, "missed"),
                 line(Metric::GospaFalse, Stat::Mean, "false"),
             ],
@@ -100,14 +100,14 @@ fn charts(order: f64, w: &str) -> Vec<ChartDef> {
             lines: vec![
                 line(Metric::Clearance, Stat::Min, "clearance"),
                 line(Metric::ClearanceLoss, Stat::Mean, "loss"),
-                line(Metric::ClearanceLossLocalization, Stat::Mean, "loss: localisation"),
+                line(Metric::ClearanceLossLocalization, Stat::Mean, "loss: localization"),
                 line(Metric::ClearanceLossPerception, Stat::Mean, "loss: perception"),
                 line(Metric::ClearanceLossPathFollowing, Stat::Mean, "loss: path following"),
             ],
         },
         ChartDef {
             id: "ego",
-            title: format!("Localisation error ({w} mean)"),
+            title: format!("Localization error ({w} mean)"),
             unit: "m",
             lines: vec![
                 line(Metric::EgoPositionError, Stat::Mean, "position"),
@@ -128,15 +128,16 @@ fn charts(order: f64, w: &str) -> Vec<ChartDef> {
 }
 
 /// The metrics shown as tiles, with their display label and unit.
-const TILES: [(Metric, &str, &str); 8] = [
-    (Metric::Gospa, "GOSPA", "m"),
-    (Metric::Ospa, "OSPA", "m"),
-    (Metric::MissedCount, "Missed objects", "objects"),
-    (Metric::FalseCount, "False tracks", "objects"),
-    (Metric::Clearance, "Clearance", "m"),
-    (Metric::EgoPositionError, "Position error", "m"),
-    (Metric::EgoHeadingError, "Heading error", "rad"),
-    (Metric::CrossTrack, "Cross-track", "m"),
+/// The tiles' metrics; their labels and units come from the metric catalog.
+const TILES: [Metric; 8] = [
+    Metric::Gospa,
+    Metric::Ospa,
+    Metric::MissedCount,
+    Metric::FalseCount,
+    Metric::Clearance,
+    Metric::EgoPositionError,
+    Metric::EgoHeadingError,
+    Metric::CrossTrack,
 ];
 
 #[derive(Debug, Clone, Copy)]
@@ -224,7 +225,7 @@ impl Dashboard {
             if s.role.is_some() {
                 continue;
             }
-            if let Some(k) = TILES.iter().position(|(m, _, _)| *m == s.metric) {
+            if let Some(k) = TILES.iter().position(|m| *m == s.metric) {
                 self.latest[k] = Some(Latest { t: s.t, value: s.value, seen_at: now });
             }
         }
@@ -287,7 +288,9 @@ impl Dashboard {
         let tiles = TILES
             .iter()
             .zip(&self.latest)
-            .map(|(&(m, label, unit), l)| {
+            .map(|(&m, l)| {
+                let e = crate::metrics::catalog::entry(m);
+                let (label, unit) = (e.label.unwrap_or(m.name()), e.unit);
                 let (value, t, age_s) = match l {
                     Some(l) => (Some(l.value), Some(l.t), Some((now - l.seen_at).max(0.0))),
                     None => (None, None, None),

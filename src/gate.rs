@@ -35,32 +35,19 @@ pub struct Tolerance {
     pub rel: f64,
 }
 
-/// The direction of the metrics gated by default; signed or neutral metrics are left out.
+/// The direction of the metrics gated by default, from the metric catalog; signed or
+/// neutral metrics, and the monitor's own view of its inputs, are left out.
 pub fn default_direction(metric: &str) -> Option<Worse> {
-    Some(match metric {
-        "clearance_m" | "path_clearance_m" | "path_margin_m" | "believed_clearance_m" | "assigned_count" => {
-            Worse::Lower
-        }
-        "gospa"
-        | "gospa_localization"
-        | "gospa_missed"
-        | "gospa_false"
-        | "missed_count"
-        | "false_count"
-        | "ospa"
-        | "track_switches"
-        | "fragmentations"
-        | "establishment_delay_s"
-        | "deletion_delay_s"
-        | "nees"
-        | "ego_position_error_m"
-        | "clearance_loss_m"
-        | "collision"
-        | "path_length_excess"
-        | "path_missing"
-        | "plan_compute_s" => Worse::Higher,
-        _ => return None,
-    })
+    use crate::metrics::catalog::{entry, Worse as W};
+    let m = crate::metrics::Metric::from_name(metric)?;
+    if m.is_per_role() {
+        return None;
+    }
+    match entry(m).worse {
+        W::Higher => Some(Worse::Higher),
+        W::Lower => Some(Worse::Lower),
+        W::Neither => None,
+    }
 }
 
 /// One row of the comparison.

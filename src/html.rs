@@ -318,7 +318,7 @@ pub fn run_report_with(r: &Report, s: &Series, extra: &str) -> String {
         "m (parts: m^p)",
         &[
             ("gospa", INK, s.get(Metric::Gospa)),
-            ("localisation", C1, s.get(Metric::GospaLocalization)),
+            ("localization", C1, s.get(Metric::GospaLocalization)),
             ("missed", C2, s.get(Metric::GospaMissed)),
             ("false", C4, s.get(Metric::GospaFalse)),
         ],
@@ -420,7 +420,7 @@ pub fn run_report_with(r: &Report, s: &Series, extra: &str) -> String {
         "<!doctype html><html lang=\"en\"><head><meta charset=\"utf-8\"><title>plumbline report</title><style>{STYLE}</style></head><body>\
 <h1>plumbline report: {}</h1><p class=\"note\">{:.1} s of stamps; {} tracking steps, {} ego steps; {} records, {} rejected; {} collision(s). \
 plumbline {} &middot; config {} &middot; input {}</p>\
-<h2>Rule verdicts</h2>{}{extra}<h2>Tracking</h2>{gospa}<h2>Clearance</h2>{clearance}<h2>Localisation</h2>{ego}<h2>Transport</h2>{latency}<h2>Alerts</h2>{alerts}\
+<h2>Rule verdicts</h2>{}{extra}<h2>Tracking</h2>{gospa}<h2>Clearance</h2>{clearance}<h2>Localization</h2>{ego}<h2>Transport</h2>{latency}<h2>Alerts</h2>{alerts}\
 <p class=\"note\">A measurement and alerting aid, not a safety function.</p></body></html>\n",
         esc(&r.input),
         r.duration_s,

@@ -20,7 +20,7 @@ pub enum Role {
     EstimateObjects,
     /// Reference-grade ego pose.
     ReferenceEgo,
-    /// The localisation under test.
+    /// The localization under test.
     EstimateEgo,
     /// The planner under test.
     PlanPath,

@@ -10,7 +10,7 @@
 //!   a confirmation delay before each track appears, coasting after an object leaves;
 //! - short-lived false tracks around the shuttle;
 //! - one identity switch: two pedestrians cross and their track ids swap;
-//! - localisation drift that grows between corrections every 20 s;
+//! - localization drift that grows between corrections every 20 s;
 //! - a site map (a hall inside the loop, bollards, a planter, a delivery van parked on the
 //!   north straight that the shuttle detours around);
 //! - close passes (a pedestrian walking along the road edge) and one brief contact (a cart

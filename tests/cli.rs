@@ -146,7 +146,7 @@ fn rig_profile_raises_alerts_journals_them_and_exits_1_on_a_critical_failure() {
     ]);
     assert_eq!(out.status.code(), Some(1), "{}", text(&out.stderr));
     let stdout = text(&out.stdout);
-    assert!(stdout.contains("localisation-error") && stdout.contains("critical"), "{stdout}");
+    assert!(stdout.contains("localization-error") && stdout.contains("critical"), "{stdout}");
     let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
     let alerts = r["alerts"].as_array().unwrap();
     assert!(!alerts.is_empty());
@@ -157,7 +157,7 @@ fn rig_profile_raises_alerts_journals_them_and_exits_1_on_a_critical_failure() {
         .collect();
     assert_eq!(&lines, alerts, "the journal holds exactly the report's events");
     let v = r["verdicts"].as_array().unwrap();
-    let loc = v.iter().find(|v| v["rule"] == "localisation-error").unwrap();
+    let loc = v.iter().find(|v| v["rule"] == "localization-error").unwrap();
     assert_eq!(loc["verdict"], "fail");
     // The field profile also loads and runs.
     let out =
@@ -228,7 +228,7 @@ fn campaign_over_a_seeded_family_reports_rates_with_intervals() {
     assert_eq!(out.status.code(), Some(1), "{}", text(&out.stderr));
     let a: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&agg).unwrap()).unwrap();
     assert_eq!(a["runs"], 6);
-    let contact = a["rules"].as_array().unwrap().iter().find(|r| r["rule"] == "contact").unwrap();
+    let contact = a["rules"].as_array().unwrap().iter().find(|r| r["rule"] == "collision").unwrap();
     let rate = &contact["failure_rate"];
     // Every run has the scripted contact: 6 of 6, Clopper-Pearson lower bound (0.025)^(1/6).
     assert_eq!(rate["failures"], 6);
@@ -462,7 +462,7 @@ fn gate_refuses_reports_that_define_metrics_differently() {
 /// `compare` judges one value per run (its mean), not the autocorrelated steps: 20 field
 /// runs from the generator of the simulated family are not told apart from it, and no more
 /// than a few of them on their own (the rank test's false alarms run at alpha); 20 runs
-/// with twice the tracker noise differ on the tracking metrics and not on localisation,
+/// with twice the tracker noise differ on the tracking metrics and not on localization,
 /// which the noise does not touch. Before: per-step KS called eight twins of one
 /// generator `differs` with p = 1.2e-37.
 #[test]

@@ -96,7 +96,7 @@ fn tiles_go_from_no_data_to_ok_to_stale() {
 
 fn event(kind: &'static str, t: f64) -> AlertEvent {
     AlertEvent {
-        rule: "contact".into(),
+        rule: "collision".into(),
         kind,
         t,
         value: 1.0,
@@ -119,7 +119,7 @@ fn an_alert_is_active_from_raise_to_clear() {
     let snap = d.snapshot(&m);
     assert_eq!(snap.alerts_active.len(), 1);
     let a = &snap.alerts_active[0];
-    assert_eq!((a.rule.as_str(), a.raised_t, a.active_s), ("contact", 49.9, 3.0));
+    assert_eq!((a.rule.as_str(), a.raised_t, a.active_s), ("collision", 49.9, 3.0));
     d.observe(54.0, &[], &[event("cleared", 53.9)]);
     let snap = d.snapshot(&m);
     assert!(snap.alerts_active.is_empty());

@@ -13,31 +13,7 @@ use crate::msg::Role;
 use crate::rules::AlertEvent;
 use crate::windows::Stat;
 
-/// The Prometheus name of a metric: `plumbline_` and the metric, with base units spelled out.
-pub fn prom_name(m: Metric) -> String {
-    let n = m.name();
-    let base = if let Some(s) = n.strip_suffix("_mps2") {
-        format!("{s}_meters_per_second_squared")
-    } else if let Some(s) = n.strip_suffix("_mps3") {
-        format!("{s}_meters_per_second_cubed")
-    } else if let Some(s) = n.strip_suffix("_rad") {
-        format!("{s}_radians")
-    } else if let Some(s) = n.strip_suffix("_m") {
-        format!("{s}_meters")
-    } else if let Some(s) = n.strip_suffix("_s") {
-        format!("{s}_seconds")
-    } else if matches!(m, Metric::Gospa | Metric::Ospa) {
-        format!("{n}_meters")
-    } else if let Some(s) = n.strip_suffix("_count") {
-        // A `_count` suffix is reserved for histograms and summaries.
-        format!("{s}_objects")
-    } else if m == Metric::PathCurvatureMax {
-        "path_curvature_max_per_meter".to_string()
-    } else {
-        n.to_string()
-    };
-    format!("plumbline_{base}")
-}
+pub use crate::metrics::catalog::prom_name;
 
 /// Every family of the monitor.
 pub struct Exposition {
@@ -108,8 +84,8 @@ impl Exposition {
         ));
         must(registry.register(Box::new(active.clone())));
         let collisions = must(IntGauge::new(
-            "plumbline_collisions",
-            "contacts between the footprint and an obstacle so far",
+            "plumbline_collision_events",
+            "collision events so far: stretches of overlap of the footprint with an obstacle (plumbline_collision is the 0/1 flag)",
         ));
         must(registry.register(Box::new(collisions.clone())));
         let queue = must(IntGauge::new("plumbline_queue_length", "messages waiting for the engine"));

@@ -6,7 +6,7 @@
 //! For alpha = 2 (SPEC §5):
 //! `gospa = (min_g [ sum_{(i,j) in g} d(x_i,y_j)^p + c^p/2 (|X| + |Y| - 2|g|) ])^(1/p)`,
 //! where an assignment g pairs only x, y with d < c. The three terms of gospa^p are the
-//! localisation, missed (c^p/2 per missed reference) and false (c^p/2 per false estimate)
+//! localization, missed (c^p/2 per missed reference) and false (c^p/2 per false estimate)
 //! parts, in m^p; for p = 1 they add up to gospa (m).
 //!
 //! For other alpha, the paper's permutation form with |X| = m <= n = |Y|:
@@ -23,7 +23,7 @@ use crate::core::assign::Matching;
 pub struct Gospa {
     /// The total (m).
     pub total: f64,
-    /// Localisation term of gospa^p (alpha = 2 only).
+    /// Localization term of gospa^p (alpha = 2 only).
     pub localization: f64,
     /// Missed term of gospa^p (alpha = 2 only).
     pub missed: f64,

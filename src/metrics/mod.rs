@@ -1,6 +1,7 @@
 //! One module per metric family. Each module's note gives the formula, units and source;
 //! a hand-worked test sits beside it. Everything here is pure computation.
 
+pub mod catalog;
 pub mod ego;
 pub mod gospa;
 pub mod nees;
@@ -14,7 +15,7 @@ pub mod transport;
 pub enum Metric {
     /// GOSPA total (m).
     Gospa,
-    /// Localisation term of gospa^p.
+    /// Localization term of gospa^p.
     GospaLocalization,
     /// Missed term of gospa^p.
     GospaMissed,
@@ -54,7 +55,7 @@ pub enum Metric {
     BelievedClearance,
     /// Planned minus true clearance (m).
     ClearanceLoss,
-    /// Localisation part of the clearance loss (m).
+    /// Localization part of the clearance loss (m).
     ClearanceLossLocalization,
     /// Perception part of the clearance loss (m).
     ClearanceLossPerception,

@@ -17,7 +17,7 @@
 //! - `clearance_loss_m` = planned - true
 //!   = path following  [planned - believed]
 //!   + perception      [C(estimated pose, estimated objects) - C(estimated pose, reference objects)]
-//!   + localisation    [C(estimated pose, reference objects) - true]
+//!   + localization    [C(estimated pose, reference objects) - true]
 //!
 //! The three parts telescope, so they add up to the total exactly (up to rounding).
 //! Positive means clearance lost. The estimated objects are the latest estimate set at or

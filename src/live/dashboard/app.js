@@ -264,7 +264,7 @@ function render(s) {
   document.getElementById("clock").textContent = isFinite(s.now) ? fmtTime(s.now) : "–";
   document.getElementById("steps-tracking").textContent = String(s.steps.tracking_evaluated);
   document.getElementById("steps-ego").textContent = String(s.steps.ego_evaluated);
-  document.getElementById("contacts").textContent = String(s.collisions);
+  document.getElementById("collisions").textContent = String(s.collisions);
   drawAlerts(s.alerts_active);
   drawTiles(s.tiles);
   for (const c of s.charts) drawChart(c, s.row_times, s.now, s.history_s);
