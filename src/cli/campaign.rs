@@ -262,7 +262,7 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
             outln!("  {what}: {f}");
         }
     }
-    outln!("{:<28} {:<9} {:>9} {:>9} {:>22}", "rule", "severity", "failures", "rate", "95% interval (CP)");
+    outln!("{:<28} {:<9} {:>9} {:>9} {:>22}", "rule", "severity", "failures", "rate", "95% Clopper-Pearson");
     for r in &agg.rules {
         match &r.failure_rate {
             Some(x) => outln!(

@@ -184,7 +184,7 @@ pub fn summary(r: &Report) -> String {
         late |= st.skipped_by_reason.keys().any(|k| k.ends_with("_in_time") || k.ends_with("_late"));
         let _ = write!(
             s,
-            "{name} steps: {} evaluated (exact {}, interpolated {}, fallback {}), {} skipped",
+            "{name} steps: {} evaluated (exact {}, interpolated {}, last before within tolerance {}), {} skipped",
             st.evaluated, st.exact, st.interpolated, st.fallback, st.skipped
         );
         if st.skipped > 0 {
@@ -225,12 +225,14 @@ pub fn summary(r: &Report) -> String {
     if r.records.non_finite_samples > 0 {
         let _ = writeln!(s, "{} non-finite metric values dropped", r.records.non_finite_samples);
     }
-    let _ = writeln!(s, "\n{:<26} {:>8} {:>11} {:>11} {:>11}", "metric", "count", "mean", "p95", "max");
+    // The longest metric name sets the first column, so every number stays in its column.
+    let w = Metric::ALL.iter().map(|m| m.name().len()).max().unwrap_or(26);
+    let _ = writeln!(s, "\n{:<w$} {:>8} {:>11} {:>11} {:>11}", "metric", "count", "mean", "p95", "max");
     for m in Metric::ALL {
         if let Some(st) = r.metrics.get(m.name()) {
             let _ = writeln!(
                 s,
-                "{:<26} {:>8} {:>11} {:>11} {:>11}",
+                "{:<w$} {:>8} {:>11} {:>11} {:>11}",
                 m.name(),
                 st.count,
                 num(st.mean),
@@ -257,8 +259,14 @@ pub fn summary(r: &Report) -> String {
     if !r.transport.is_empty() {
         let _ = writeln!(
             s,
-            "\n{:<20} {:>8} {:>10} {:>10} {:>10} {:>7} {:>7}",
-            "role", "messages", "lat p50 s", "lat p99 s", "gap p99 s", "errors", "regress"
+            "\n{:<20} {:>8} {:>16} {:>16} {:>20} {:>8} {:>17}",
+            "role",
+            "messages",
+            "latency p50 (s)",
+            "latency p99 (s)",
+            "interarrival p99 (s)",
+            "rejected",
+            "stamp regressions"
         );
         for role in Role::ALL {
             let Some(t) = r.transport.get(role.name()) else {
@@ -267,7 +275,7 @@ pub fn summary(r: &Report) -> String {
             let f = |x: Option<f64>| x.map(num).unwrap_or_else(|| "-".into());
             let _ = writeln!(
                 s,
-                "{:<20} {:>8} {:>10} {:>10} {:>10} {:>7} {:>7}",
+                "{:<20} {:>8} {:>16} {:>16} {:>20} {:>8} {:>17}",
                 role.name(),
                 t.messages,
                 f(t.latency_s.map(|x| x.p50)),
@@ -310,8 +318,8 @@ pub fn summary(r: &Report) -> String {
     if !r.verdicts.is_empty() {
         let _ = writeln!(
             s,
-            "\n{:<28} {:<9} {:<8} {:<18} {:>11} {:>13} {:>7}",
-            "rule", "severity", "verdict", "statistic", "worst", "threshold", "raised"
+            "\n{:<28} {:<9} {:<8} {:<18} {:>11} {:>13} {:>12}",
+            "rule", "severity", "verdict", "statistic", "worst", "threshold", "times raised"
         );
         for v in &r.verdicts {
             let worst = v.worst.map(num).unwrap_or_else(|| "-".into());
@@ -320,7 +328,7 @@ pub fn summary(r: &Report) -> String {
             let verdict = if v.verdict == "no_data" && v.fails_run { "no_data!" } else { v.verdict };
             let _ = writeln!(
                 s,
-                "{:<28} {:<9} {:<8} {:<18} {:>11} {:>13} {:>7}",
+                "{:<28} {:<9} {:<8} {:<18} {:>11} {:>13} {:>12}",
                 v.rule,
                 v.severity,
                 verdict,
