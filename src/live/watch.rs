@@ -283,6 +283,8 @@ pub fn run(
     let mut cut_short = [0u64; 6];
     // Roles with more than one publisher now (warned once each time it starts).
     let mut merged = [false; 6];
+    // Messages of a batch the stop interrupted, for the shutdown drain.
+    let mut leftover: Vec<Item> = Vec::new();
     'run: loop {
         live.beat();
         if must_stop() {
@@ -304,12 +306,10 @@ pub fn run(
                 let mut batch = batch.into_iter();
                 while let Some((role, got, item)) = batch.next() {
                     // A stop takes effect between two messages, whatever the batch holds;
-                    // what is left of it is counted, not evaluated.
+                    // what is left of it goes to the shutdown drain, ahead of the queue.
                     if must_stop() {
-                        cut_short[role.index()] += 1;
-                        for (r, _, _) in batch {
-                            cut_short[r.index()] += 1;
-                        }
+                        leftover.push((role, got, item));
+                        leftover.extend(batch);
                         break 'run;
                     }
                     live.beat();
@@ -441,7 +441,8 @@ pub fn run(
     // within about a second whatever the engine was given.
     drop(subs);
     let stopping = Instant::now();
-    while let Ok((role, _, item)) = rx.try_recv() {
+    let mut rest = leftover.into_iter().chain(std::iter::from_fn(|| rx.try_recv().ok()));
+    for (role, _, item) in rest.by_ref() {
         if stopping.elapsed() > DRAIN {
             cut_short[role.index()] += 1;
             continue;

@@ -179,8 +179,8 @@ try {
   await page2.close();
 
   // 5. A stack that goes quiet: a watcher fed 3 s of the shipped log, then nothing. Its
-  // roles and tiles must turn stale (after [dashboard] stale_after, 2 s) while the page
-  // still streams.
+  // roles and tiles must turn stale (after [dashboard] stale_after, 2 s), and the header,
+  // while the page still streams, must say the input is stale rather than "streaming".
   const short = path.join(out, "short.jsonl");
   writeFileSync(short, readFileSync(path.join(root, "replay-logs", "campus-loop.jsonl"), "utf8")
     .split("\n").slice(0, 400).join("\n") + "\n");
@@ -203,11 +203,13 @@ try {
     (await page3.locator('#topics tr[data-role="estimate/objects"]').getAttribute("data-state")) === "stale" &&
     (await page3.locator('#topics tr[data-role="reference/ego"]').getAttribute("data-state")) === "stale" &&
     (await page3.locator('.tile[data-metric="gospa"]').getAttribute("data-state")) === "stale" &&
-    (await page3.locator("#link").getAttribute("data-state")) === "live");
+    (await page3.locator("#link").getAttribute("data-state")) === "stale");
+  const header = await page3.locator("#link").innerText();
+  if (!/STALE/.test(header)) throw new Error(`the header says: ${header}`);
   const staleText = await page3.locator('.tile[data-metric="gospa"] .age').innerText();
   if (!/STALE/.test(staleText)) throw new Error(`the stale tile says: ${staleText}`);
   await page3.screenshot({ path: path.join(out, "dashboard-stale-wide.png"), fullPage: true });
-  ok("a quiet stack turns its roles and tiles stale while the page streams");
+  ok("a quiet stack turns its roles, tiles and the header stale while the page streams");
   await page3.close();
 } catch (e) {
   failed = true;
