@@ -253,3 +253,35 @@ fn far_away_plans_are_rejected_before_they_are_densified() {
     assert!(clean == dirty);
     assert_eq!(r.report.records.non_finite_samples, 0);
 }
+
+/// A site map from `clearance.map_file` (stamped 0, no arrival time) beside a log on Unix
+/// time takes no part in the arrival clock: the first record is not a "jump", nothing is
+/// rejected, and the run's duration is the log's.
+#[test]
+fn a_map_file_stamped_0_does_not_move_the_clock() {
+    let dir = tempfile::tempdir().unwrap();
+    let map = dir.path().join("map.json");
+    std::fs::write(
+        &map,
+        r#"{"stamp": 0.0, "obstacles": [{"id": 1, "shape": "circle", "x": 30.0, "y": 0.0, "radius": 1.0}]}"#,
+    )
+    .unwrap();
+    let shift = 1.79e9;
+    let lines: Vec<String> = shipped_lines()
+        .iter()
+        .filter(|l| !l.contains("\"rig/reference/obstacles\""))
+        .map(|l| {
+            let mut v: serde_json::Value = serde_json::from_str(l).unwrap();
+            v["recv"] = serde_json::json!(v["recv"].as_f64().unwrap() + shift);
+            v["msg"]["stamp"] = serde_json::json!(v["msg"]["stamp"].as_f64().unwrap() + shift);
+            v.to_string()
+        })
+        .collect();
+    let log = dir.path().join("unix.jsonl");
+    write(&log, &lines);
+    let cfg = Config::load(None, &[format!("clearance.map_file={}", map.display())]).unwrap();
+    let (r, _) = run(&cfg, &log);
+    assert_eq!(r.report.records.rejected, 0, "{:?}", r.report.records.rejected_by_reason);
+    assert!(r.report.duration_s < 61.0, "{}", r.report.duration_s);
+    assert!(r.report.metrics["clearance_m"].count > 1000);
+}

@@ -148,6 +148,12 @@ pub struct Counters {
     pub cut_short: u64,
 }
 
+/// A site map with no arrival time: loaded from a file, or a log's map record without
+/// `recv`. It is known from the start and takes no part in the arrival clock.
+fn is_static_map(role: Role, recv: Option<f64>) -> bool {
+    role == Role::ReferenceObstacles && recv.is_none()
+}
+
 /// Why a step found no reference. `*_in_time`: none at or after the step's stamp arrived
 /// within `time.max_wait`, and the last one before it is older than `time.tolerance` (a
 /// late reference, or a gap in it).
@@ -381,6 +387,9 @@ impl Engine {
     /// 100 s) is rejected and never moves the clock that every wait is measured on.
     /// Rejected messages are counted under `implausible_stamp` / `implausible_recv`.
     fn admit(&mut self, role: Role, stamp: f64, recv: Option<f64>) -> bool {
+        if is_static_map(role, recv) {
+            return true;
+        }
         let lead = self.ap.max_stamp_lead;
         let reason = if recv.is_some_and(|r| stamp - r > lead) {
             Some("implausible_stamp")
@@ -416,12 +425,19 @@ impl Engine {
     fn message(&mut self, role: Role, recv: Option<f64>, msg: Prepared, out: &mut Vec<Sample>) {
         let stamp = msg.stamp();
         let arrival = recv.unwrap_or(stamp);
-        self.advance(arrival, out);
+        // A site map without an arrival time (`clearance.map_file`, stamped 0 as a rule)
+        // is static: it moves neither the arrival clock nor the run's span of stamps.
+        let static_map = is_static_map(role, recv);
+        if !static_map {
+            self.advance(arrival, out);
+        }
         let c = &mut self.counters;
         c.accepted += 1;
         c.object_states += msg.object_count() as u64;
-        c.first_stamp = Some(c.first_stamp.map_or(stamp, |s| s.min(stamp)));
-        c.last_stamp = Some(c.last_stamp.map_or(stamp, |s| s.max(stamp)));
+        if !static_map {
+            c.first_stamp = Some(c.first_stamp.map_or(stamp, |s| s.min(stamp)));
+            c.last_stamp = Some(c.last_stamp.map_or(stamp, |s| s.max(stamp)));
+        }
         let ts = self.transport[role.index()].accept(stamp, recv);
         if let Some(v) = ts.latency {
             out.push(Sample { t: stamp, metric: Metric::Latency, role: Some(role), value: v });
