@@ -101,9 +101,8 @@ pub fn exit_code(cfg: &Config, agg: &CampaignReport, max_failure_rate: Option<f6
 /// Aggregates run reports (pure).
 pub fn aggregate(cfg: &Config, all: &[Report], unreadable: Vec<String>) -> CampaignReport {
     // Runs with nothing evaluated are listed apart and judged by none of their verdicts.
-    let empty: Vec<String> =
-        all.iter().filter(|r| r.not_evaluable().is_some()).map(|r| r.input.clone()).collect();
-    let runs: Vec<&Report> = all.iter().filter(|r| r.not_evaluable().is_none()).collect();
+    let (runs, empty): (Vec<&Report>, Vec<&Report>) = all.iter().partition(|r| r.not_evaluable().is_none());
+    let empty: Vec<String> = empty.into_iter().map(|r| r.input.clone()).collect();
     let is_damaged = |r: &Report| r.records.tail.is_some() || r.records.damaged.stretches > 0;
     let damaged: Vec<String> = runs.iter().filter(|r| is_damaged(r)).map(|r| r.input.clone()).collect();
     // Unreadable, empty and damaged runs count as failures of every rule.

@@ -516,7 +516,7 @@ impl Config {
             }
         };
         let forget_after = duration(source, "tracking.forget_after", &t.forget_after, 300.0)?;
-        let tracking = TrackingParams::try_new(
+        let mut tracking = TrackingParams::try_new(
             t.cutoff_m.unwrap_or(2.0),
             t.order.unwrap_or(1.0),
             t.alpha.unwrap_or(2.0),
@@ -542,7 +542,6 @@ impl Config {
         if align.max_stamp_lead <= 0.0 {
             return Err(err(source, "limits.max_stamp_lead_s", "a duration > 0"));
         }
-        let mut tracking = tracking;
         tracking.exact_cells = count(
             source,
             "limits.exact_assignment_cells",

@@ -534,9 +534,9 @@ impl Default for Limits {
 }
 
 /// Largest angle magnitude (rad) accepted: a yaw is an angle, not a counter of turns.
-const MAX_ANGLE: f64 = 1e4;
+pub const MAX_ANGLE: f64 = 1e4;
 /// Largest covariance entry magnitude (m^2, rad^2): beyond it determinants overflow.
-const MAX_COV: f64 = 1e12;
+pub const MAX_COV: f64 = 1e12;
 
 /// Decodes a JSON message of the given kind and validates it.
 pub fn decode_json(kind: MsgKind, text: &str, limits: &Limits) -> Result<Msg, Reject> {
@@ -605,22 +605,31 @@ fn size(name: &str, v: f64, bound: f64, bad: impl Fn(String) -> Reject) -> Resul
     }
 }
 
-/// Checks a stamp or arrival time against `limits.max_stamp_s`.
-pub fn check_time(name: &str, v: f64, limits: &Limits) -> Result<(), Reject> {
-    finite(name, v)?;
+/// Checks a message's stamp against `limits.max_stamp_s`.
+fn check_stamp(v: f64, limits: &Limits) -> Result<(), Reject> {
+    finite("stamp", v)?;
     if v.abs() <= limits.max_stamp {
         Ok(())
-    } else if name == "recv" {
-        Err(Reject::ImplausibleRecv(format!("recv = {v:e} beyond {:e} s", limits.max_stamp)))
     } else {
-        Err(Reject::ImplausibleStamp(format!("{name} = {v:e} beyond {:e} s", limits.max_stamp)))
+        Err(Reject::ImplausibleStamp(format!("stamp = {v:e} beyond {:e} s", limits.max_stamp)))
+    }
+}
+
+/// Checks a record's arrival time, when it has one, against `limits.max_stamp_s`.
+pub fn check_recv(recv: Option<f64>, limits: &Limits) -> Result<(), Reject> {
+    let Some(v) = recv else { return Ok(()) };
+    finite("recv", v)?;
+    if v.abs() <= limits.max_stamp {
+        Ok(())
+    } else {
+        Err(Reject::ImplausibleRecv(format!("recv = {v:e} beyond {:e} s", limits.max_stamp)))
     }
 }
 
 /// Checks the rules of SPEC §2 that serde cannot (finite numbers, unique ids, shapes,
 /// covariance sanity, size limits) and the plausibility bounds of [`Limits`].
 pub fn validate(msg: &Msg, limits: &Limits) -> Result<(), Reject> {
-    check_time("stamp", msg.stamp(), limits)?;
+    check_stamp(msg.stamp(), limits)?;
     let (xy, len, speed) = (limits.max_coordinate, limits.max_size, limits.max_speed);
     match msg {
         Msg::Objects(set) => {

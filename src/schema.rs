@@ -12,7 +12,7 @@
 use serde_json::{json, Value};
 
 use crate::config::Config;
-use crate::msg::{MsgKind, Role};
+use crate::msg::{MsgKind, MAX_ANGLE, MAX_COV};
 
 /// The draft every schema declares.
 pub const DRAFT: &str = "https://json-schema.org/draft/2020-12/schema";
@@ -31,10 +31,6 @@ fn opt(v: Value) -> Value {
 fn array_of(item: Value, n: usize) -> Value {
     json!({"type": "array", "items": item, "minItems": n, "maxItems": n})
 }
-
-/// Largest angle magnitude and covariance entry, as `msg::validate` bounds them.
-const MAX_ANGLE: f64 = 1e4;
-const MAX_COV: f64 = 1e12;
 
 /// The schema of one message kind under the config's limits.
 pub fn message(cfg: &Config, kind: MsgKind) -> Value {
@@ -116,10 +112,7 @@ pub fn message(cfg: &Config, kind: MsgKind) -> Value {
                 &["x", "y", "radius"],
                 json!({"radius": {"type": "number", "minimum": 0, "maximum": size}}),
             );
-            let rect = need(
-                &["x", "y", "length", "width"],
-                json!({"length": positive_size(size), "width": positive_size(size)}),
-            );
+            let rect = need(&["x", "y", "length", "width"], json!({"length": positive, "width": positive}));
             let polygon = json!({
                 "required": ["points"],
                 "properties": {"points": {"type": "array", "minItems": 3, "items": array_of(xy.clone(), 2)}}
@@ -161,10 +154,6 @@ pub fn message(cfg: &Config, kind: MsgKind) -> Value {
         o.insert("$id".into(), json!(format!("plumbline:{}", title)));
     }
     v
-}
-
-fn positive_size(size: f64) -> Value {
-    json!({"type": "number", "exclusiveMinimum": 0, "maximum": size})
 }
 
 /// The schema of one JSON Lines record: `key` one of the config's bound keys, `recv` an
@@ -213,22 +202,6 @@ pub fn by_name(cfg: &Config, name: &str) -> Option<Value> {
 
 /// The names `plumbline schema` takes.
 pub const NAMES: [&str; 5] = ["record", "object-set", "pose", "path", "obstacle-set"];
-
-/// Which message each role carries, for the documentation.
-pub fn role_messages() -> Vec<(&'static str, &'static str)> {
-    Role::ALL
-        .iter()
-        .map(|r| {
-            let m = match r.kind() {
-                MsgKind::Objects => "object-set",
-                MsgKind::Pose => "pose",
-                MsgKind::Path => "path",
-                MsgKind::Obstacles => "obstacle-set",
-            };
-            (r.name(), m)
-        })
-        .collect()
-}
 
 #[cfg(test)]
 mod tests {

@@ -557,6 +557,7 @@ fn a_vanished_publisher_raises_staleness_within_two_periods_and_monitoring_resum
     let session = plumbline::live::zenoh_io::open(&pcfg).unwrap();
     std::thread::sleep(Duration::from_millis(500));
     let wall = plumbline::live::zenoh_io::wall_now;
+    let tag = plumbline::live::zenoh_io::source_tag(&session);
     let burst = |n: usize| -> f64 {
         let mut last_put = 0.0;
         for _ in 0..n {
@@ -571,7 +572,7 @@ fn a_vanished_publisher_raises_staleness_within_two_periods_and_monitoring_resum
                     cov: None,
                 });
                 let rec = plumbline::logio::LogRecord { key: key.into(), recv: None, msg };
-                plumbline::live::publish::put(&session, &rec, false).unwrap();
+                plumbline::live::publish::put(&session, &rec, false, &tag).unwrap();
             }
             last_put = wall();
             std::thread::sleep(Duration::from_secs_f64(period));

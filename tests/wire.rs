@@ -191,7 +191,7 @@ fn agree(cfg: &Config, line: &[u8]) -> Option<bool> {
     let limits = Limits { max_objects: usize::MAX, ..Limits::default() };
     let fast = wire::json::record(line, role_of(cfg))?;
     let slow = decode_line_serde(cfg, &limits, line);
-    let recv_ok = |r: &LogRecord| r.recv.map_or(Ok(()), |v| plumbline::msg::check_time("recv", v, &limits));
+    let recv_ok = |r: &LogRecord| plumbline::msg::check_recv(r.recv, &limits);
     Some(match (validate(&fast.1.msg, &limits).and_then(|_| recv_ok(&fast.1)), slow) {
         (Ok(()), Ok((rs, s))) => fast.0 == rs && same(&fast.1, &s),
         (Err(ef), Err((rs, es))) => {

@@ -91,10 +91,8 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
         }
         errln!("plumbline gate: definitions differ (allowed): {}", changed.join(", "));
     }
-    if cand.get("records").is_some() {
-        if let Some(why) = cand_report.as_ref().and_then(Report::not_evaluable) {
-            return super::fail("gate", format!("the candidate holds nothing to judge: {why}"));
-        }
+    if let Some(why) = cand_report.as_ref().and_then(Report::not_evaluable) {
+        return super::fail("gate", format!("the candidate holds nothing to judge: {why}"));
     }
     let tol = if cfg.gate.is_empty() { gate::default_tolerances(&base, &cand) } else { cfg.gate.clone() };
     let rows = gate::compare(&base, &cand, &tol);

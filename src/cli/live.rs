@@ -206,12 +206,14 @@ pub fn watch_cmd(cfg: &Config, a: &WatchArgs) -> u8 {
     let _ = zenoh::Wait::wait(session.close());
     server.stop();
     match r {
-        Ok(rep) if rep.not_evaluable().is_some() => {
-            errln!("plumbline watch: {}", rep.not_evaluable().unwrap_or_default());
-            super::EXIT_INPUT
-        }
-        Ok(rep) if critical_failed(&rep.verdicts) => super::EXIT_FAIL,
-        Ok(_) => super::EXIT_OK,
+        Ok(rep) => match rep.not_evaluable() {
+            Some(why) => {
+                errln!("plumbline watch: {why}");
+                super::EXIT_INPUT
+            }
+            None if critical_failed(&rep.verdicts) => super::EXIT_FAIL,
+            None => super::EXIT_OK,
+        },
         Err(e) => fail("watch", e),
     }
 }
@@ -337,6 +339,7 @@ fn demo_stack(cfg: &Config, session: &zenoh::Session, stop: &AtomicBool, seed: u
     let lap = 60.0;
     let start = zenoh_io::wall_now();
     let t0 = std::time::Instant::now();
+    let tag = zenoh_io::source_tag(session);
     for k in 0.. {
         let p = ScenarioParams { seed: seed + k, duration: lap, ..Default::default() };
         let offset = start + k as f64 * lap;
@@ -350,7 +353,7 @@ fn demo_stack(cfg: &Config, session: &zenoh::Session, stop: &AtomicBool, seed: u
                 std::thread::sleep(w);
             }
             publish::shift(&mut rec, offset);
-            if let Err(e) = publish::put(session, &rec, false) {
+            if let Err(e) = publish::put(session, &rec, false, &tag) {
                 tracing::warn!(error = %e, "demo publish failed");
             }
         }

@@ -27,20 +27,21 @@ pub struct PublishOptions {
 
 /// Publishes one record. Congestion blocks rather than drops, so a replayed log arrives
 /// whole.
-pub fn put(session: &zenoh::Session, rec: &LogRecord, binary: bool) -> Result<(), String> {
-    let tag = super::zenoh_io::source_tag(session);
+/// Puts one record, naming the publisher with `tag` ([`super::zenoh_io::source_tag`],
+/// made once per session by the caller).
+pub fn put(session: &zenoh::Session, rec: &LogRecord, binary: bool, tag: &[u8]) -> Result<(), String> {
     let r = if binary {
         session
             .put(rec.key.as_str(), rec.msg.to_postcard())
             .encoding(postcard_encoding())
-            .attachment(tag)
+            .attachment(tag.to_vec())
             .congestion_control(CongestionControl::Block)
             .wait()
     } else {
         session
             .put(rec.key.as_str(), rec.msg.to_json())
             .encoding(Encoding::APPLICATION_JSON)
-            .attachment(tag)
+            .attachment(tag.to_vec())
             .congestion_control(CongestionControl::Block)
             .wait()
     };
@@ -70,6 +71,7 @@ pub fn run(
     let mut anchor: Option<(f64, Instant, f64)> = None;
     let mut n = 0u64;
     let mut err = None;
+    let tag = super::zenoh_io::source_tag(session);
     read_all(cfg, log, &mut |item, _| {
         let Item::Record { mut rec, .. } = item else { return };
         if err.is_some() || stop.load(Ordering::SeqCst) {
@@ -92,7 +94,7 @@ pub fn run(
         if opts.restamp {
             shift(&mut rec, offset);
         }
-        match put(session, &rec, opts.binary) {
+        match put(session, &rec, opts.binary, &tag) {
             Ok(()) => n += 1,
             Err(e) => err = Some(e),
         }

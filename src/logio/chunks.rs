@@ -273,9 +273,7 @@ impl<R: Read> RecordFramer<R> {
     /// The next frame of a format-2 log.
     fn next_synced(&mut self) -> std::io::Result<Option<Frame>> {
         loop {
-            if !self.eof && self.src.fill(&mut self.carry, BLOCK)? == 0 {
-                self.eof = true;
-            }
+            self.more()?;
             let mut pos = 0usize;
             let mut bad = None;
             loop {

@@ -14,7 +14,7 @@ use super::chunks::{Chunk, Frame, LineFramer, MAX_LINE};
 use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome};
 use crate::config::Config;
 use crate::msg::{
-    self, check_time, decode_json, strict, validate, Limits, Msg, MsgKind, ObjectSet, ObstacleSet, Pose,
+    self, check_recv, decode_json, strict, validate, Limits, Msg, MsgKind, ObjectSet, ObstacleSet, Pose,
     Reject, Role,
 };
 
@@ -124,9 +124,7 @@ pub fn decode_line(
     match crate::wire::json::record(line, |k| role_for(cfg, &[], k)) {
         Some((role, rec)) => {
             validate(&rec.msg, limits).map_err(|e| (Some(role), e))?;
-            if let Some(r) = rec.recv {
-                check_time("recv", r, limits).map_err(|e| (Some(role), e))?;
-            }
+            check_recv(rec.recv, limits).map_err(|e| (Some(role), e))?;
             Ok((role, rec))
         }
         None => decode_line_serde(cfg, limits, line),
@@ -163,9 +161,7 @@ pub fn decode_line_serde(
         }
     };
     // The message first, then its arrival time, in the order the direct reader checks.
-    if let Some(r) = parsed.recv {
-        check_time("recv", r, limits).map_err(|e| (Some(role), e))?;
-    }
+    check_recv(parsed.recv, limits).map_err(|e| (Some(role), e))?;
     Ok((role, LogRecord { key: key.into_owned(), recv: parsed.recv, msg }))
 }
 

@@ -25,7 +25,7 @@ pub use super::chunks::SYNC;
 use super::chunks::{Chunk, Frame, RecordFramer};
 use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome, Tail};
 use crate::config::Config;
-use crate::msg::{check_time, validate, Limits, Reject};
+use crate::msg::{check_recv, validate, Limits, Reject};
 
 /// File magic.
 pub const MAGIC: &[u8; 8] = b"PLUMBLOG";
@@ -216,7 +216,7 @@ fn decode_record(
     if let Err(reason) = validate(&rec.msg, limits) {
         return bad(reason);
     }
-    if let Some(Err(e)) = rec.recv.map(|v| check_time("recv", v, limits)) {
+    if let Err(e) = check_recv(rec.recv, limits) {
         return bad(e);
     }
     Item::Record { role, rec }
