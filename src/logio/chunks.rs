@@ -292,11 +292,7 @@ impl<R: Read> RecordFramer<R> {
                 bad = Some("record cut short");
             }
             if pos > 0 {
-                let rest = self.carry.split_off(pos);
-                let bytes = std::mem::replace(&mut self.carry, rest);
-                let first = self.off;
-                self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off, synced: true })));
+                return Ok(Some(self.take_chunk(pos)));
             }
             if let Some(why) = bad {
                 return self.resync(why).map(Some);
@@ -306,6 +302,15 @@ impl<R: Read> RecordFramer<R> {
                 return Ok(None);
             }
         }
+    }
+
+    /// The first `pos` carried bytes (whole records) as a chunk.
+    fn take_chunk(&mut self, pos: usize) -> Frame {
+        let rest = self.carry.split_off(pos);
+        let bytes = std::mem::replace(&mut self.carry, rest);
+        let first = self.off;
+        self.off += bytes.len() as u64;
+        Frame::Chunk(Chunk { bytes, first, end: self.off, synced: self.synced })
     }
 
     /// Drops `n` carried bytes, moving the file offset past them.
@@ -412,11 +417,7 @@ impl<R: Read> RecordFramer<R> {
                 pos += 8 + len as usize;
             }
             if pos > 0 {
-                let rest = self.carry.split_off(pos);
-                let bytes = std::mem::replace(&mut self.carry, rest);
-                let first = self.off;
-                self.off += bytes.len() as u64;
-                return Ok(Some(Frame::Chunk(Chunk { bytes, first, end: self.off, synced: false })));
+                return Ok(Some(self.take_chunk(pos)));
             }
             if let Some(len) = bad_len {
                 self.done = true;
