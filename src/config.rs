@@ -117,7 +117,7 @@ pub struct RawClearance {
     /// densification step of planned paths (m)
     pub path_step_m: Option<f64>,
     /// the margin the planner must keep (m)
-    pub inflation_m: Option<f64>,
+    pub planner_margin_m: Option<f64>,
     /// site-map file (ObstacleSet JSON)
     pub map_file: Option<String>,
 }
@@ -182,8 +182,8 @@ pub struct RawDashboard {
     pub rate_hz: Option<f64>,
     /// chart history
     pub history: Option<toml::Value>,
-    /// chart row spacing
-    pub step: Option<toml::Value>,
+    /// time between chart rows
+    pub chart_interval: Option<toml::Value>,
     /// age beyond which a value or role shows as stale
     pub stale_after: Option<toml::Value>,
 }
@@ -240,8 +240,8 @@ pub struct RawTracking {
     pub order: Option<f64>,
     /// GOSPA alpha
     pub alpha: Option<f64>,
-    /// evaluation radius (m), 0 = unlimited
-    pub region_m: Option<f64>,
+    /// evaluation radius around the reference ego (m), 0 = unlimited
+    pub region_radius_m: Option<f64>,
     /// which ego pose transforms ego-frame object sets
     pub ego_frame_source: Option<String>,
     /// forget a reference or estimate id unseen this long
@@ -257,7 +257,7 @@ pub struct RawTime {
     /// how old the last reference before a step may be on fallback
     pub tolerance: Option<toml::Value>,
     /// how much history the reference buffers keep behind the oldest open step
-    pub retain: Option<toml::Value>,
+    pub reference_history: Option<toml::Value>,
 }
 
 /// `[vehicle]`
@@ -383,6 +383,9 @@ pub struct Config {
     pub dashboard: crate::dashboard::DashboardParams,
     /// gated statistics (empty: the defaults of `gate::default_tolerances`)
     pub gate: Vec<crate::gate::Tolerance>,
+    /// warnings of the load (old key names used), for the command to print
+    #[serde(skip)]
+    pub warnings: Vec<String>,
 }
 
 /// Zenoh session settings.
@@ -461,6 +464,7 @@ impl Config {
     /// Merges the sources and resolves. `file` is (name, text).
     pub fn load(file: Option<(&str, &str)>, sets: &[String]) -> Result<Config, ConfigError> {
         let mut table = toml::Table::new();
+        let mut warnings = Vec::new();
         let mut last_source = "built-in defaults".to_string();
         if let Some((name, text)) = file {
             table = text.parse::<toml::Table>().map_err(|e| {
@@ -470,17 +474,32 @@ impl Config {
                     .map(|(l, c)| format!(" at line {l}, column {c}"));
                 err(name, "", format!("not valid TOML{}: {}", at.unwrap_or_default(), e.message().trim()))
             })?;
+            warnings.extend(migrate(&mut table, name)?);
             check_raw(&table, name).map_err(|e| annotate(e, &table))?;
             last_source = name.to_string();
         }
         for s in sets {
             let label = format!("--set {s}");
-            apply_set(&mut table, s).map_err(|e| err(&label, &e.0, e.1))?;
+            // An old key name set here means the new one, and overrides what came before.
+            let set = match s.split_once('=') {
+                Some((k, v)) if current_key(k.trim()) != k.trim() => {
+                    let new = current_key(k.trim());
+                    warnings.push(format!(
+                        "{label}: `{}` is now `{new}`; the old name goes in the next release",
+                        k.trim()
+                    ));
+                    format!("{new}={v}")
+                }
+                _ => s.clone(),
+            };
+            apply_set(&mut table, &set).map_err(|e| err(&label, &e.0, e.1))?;
             check_raw(&table, &label).map_err(|e| annotate(e, &table))?;
             last_source = label;
         }
         let raw = check_raw(&table, &last_source).map_err(|e| annotate(e, &table))?;
-        Config::build(&raw, &last_source).map_err(|e| annotate(e, &table))
+        let mut cfg = Config::build(&raw, &last_source).map_err(|e| annotate(e, &table))?;
+        cfg.warnings = warnings;
+        Ok(cfg)
     }
 
     /// Stage two: resolves a checked raw config.
@@ -520,7 +539,7 @@ impl Config {
             t.cutoff_m.unwrap_or(2.0),
             t.order.unwrap_or(1.0),
             t.alpha.unwrap_or(2.0),
-            t.region_m.unwrap_or(0.0),
+            t.region_radius_m.unwrap_or(0.0),
             ego_source,
             forget_after,
         )
@@ -531,7 +550,7 @@ impl Config {
         let mut align = AlignParams::try_new(
             duration(source, "time.max_wait", &tm.max_wait, 0.5)?,
             duration(source, "time.tolerance", &tm.tolerance, 0.1)?,
-            duration(source, "time.retain", &tm.retain, 2.0)?,
+            duration(source, "time.reference_history", &tm.reference_history, 2.0)?,
             count(source, "limits.pending_steps", raw.limits.pending_steps, 4096)?,
             count(source, "limits.buffer_messages", raw.limits.buffer_messages, 4096)?,
         )
@@ -563,7 +582,7 @@ impl Config {
             footprint,
             object_radius: positive(source, "clearance.object_radius_m", c.object_radius_m, 0.5)?,
             path_step: positive(source, "clearance.path_step_m", c.path_step_m, 0.5)?,
-            inflation: nonneg(source, "clearance.inflation_m", c.inflation_m, 0.5)?,
+            inflation: nonneg(source, "clearance.planner_margin_m", c.planner_margin_m, 0.5)?,
             deviation_window: positive(source, "path.deviation_window_m", p.deviation_window_m, 10.0)?,
             grid_res: positive(source, "path.grid_m", p.grid_m, 0.2)?,
             grid_margin: nonneg(source, "path.grid_margin_m", p.grid_margin_m, 10.0)?,
@@ -668,17 +687,21 @@ impl Config {
         let dashboard = crate::dashboard::DashboardParams {
             rate_hz: positive(source, "dashboard.rate_hz", d.rate_hz, def.rate_hz)?,
             history: duration(source, "dashboard.history", &d.history, def.history)?,
-            step: duration(source, "dashboard.step", &d.step, def.step)?,
+            step: duration(source, "dashboard.chart_interval", &d.chart_interval, def.step)?,
             stale_after: duration(source, "dashboard.stale_after", &d.stale_after, def.stale_after)?,
         };
         if dashboard.rate_hz > 50.0 {
             return Err(err(source, "dashboard.rate_hz", "a rate in (0, 50] snapshots per second"));
         }
         if dashboard.step <= 0.0 || dashboard.history <= 0.0 || dashboard.stale_after <= 0.0 {
-            return Err(err(source, "dashboard.step", "durations > 0 for history, step and stale_after"));
+            return Err(err(
+                source,
+                "dashboard.chart_interval",
+                "durations > 0 for history, chart_interval and stale_after",
+            ));
         }
         if dashboard.history / dashboard.step > 10_000.0 {
-            return Err(err(source, "dashboard.history", "at most 10000 rows of dashboard.step"));
+            return Err(err(source, "dashboard.history", "at most 10000 rows of dashboard.chart_interval"));
         }
         let mut gate = Vec::new();
         for (i, g) in raw.gate.iter().enumerate() {
@@ -734,6 +757,7 @@ impl Config {
             live,
             dashboard,
             gate,
+            warnings: Vec::new(),
         })
     }
 
@@ -767,7 +791,7 @@ impl Config {
             ("tracking.cutoff_m", json!(t.cutoff)),
             ("tracking.order", json!(t.order)),
             ("tracking.alpha", json!(t.alpha)),
-            ("tracking.region_m", json!(t.region)),
+            ("tracking.region_radius_m", json!(t.region)),
             ("tracking.ego_frame_source", json!(source)),
             ("tracking.forget_after", json!(t.forget_after)),
             ("time.max_wait", json!(a.max_wait)),
@@ -777,7 +801,7 @@ impl Config {
             ("vehicle.origin_to_rear", json!(c.footprint.origin_to_rear)),
             ("clearance.object_radius_m", json!(c.object_radius)),
             ("clearance.path_step_m", json!(c.path_step)),
-            ("clearance.inflation_m", json!(c.inflation)),
+            ("clearance.planner_margin_m", json!(c.inflation)),
             ("path.deviation_window_m", json!(c.deviation_window)),
             ("path.grid_m", json!(c.grid_res)),
             ("path.grid_margin_m", json!(c.grid_margin)),
@@ -920,6 +944,48 @@ fn annotate(mut e: ConfigError, table: &toml::Table) -> ConfigError {
         e.expected = format!("{} (a list in brackets, e.g. lengths = [\"1s\", \"10s\"])", e.expected);
     }
     e
+}
+
+/// Keys renamed for what they mean: (section, old, new). The old names keep working for
+/// one release, with a warning naming the new one (`tracking.region_m` is also the name the
+/// message contract's first edition lists, so scripts that set it keep working).
+pub const RENAMED_KEYS: [(&str, &str, &str); 4] = [
+    ("tracking", "region_m", "region_radius_m"),
+    ("clearance", "inflation_m", "planner_margin_m"),
+    ("time", "retain", "reference_history"),
+    ("dashboard", "step", "chart_interval"),
+];
+
+/// The current name of a `section.key` (itself unless renamed).
+pub fn current_key(key: &str) -> String {
+    for (sec, old, new) in RENAMED_KEYS {
+        if key.strip_prefix(sec).and_then(|k| k.strip_prefix('.')) == Some(old) {
+            return format!("{sec}.{new}");
+        }
+    }
+    key.to_string()
+}
+
+/// Moves renamed keys to their new names, returning a warning for each old name used;
+/// both names at once is an error (which one was meant cannot be known).
+fn migrate(table: &mut toml::Table, source: &str) -> Result<Vec<String>, ConfigError> {
+    let mut warnings = Vec::new();
+    for (sec, old, new) in RENAMED_KEYS {
+        let Some(toml::Value::Table(t)) = table.get_mut(sec) else { continue };
+        let Some(v) = t.remove(old) else { continue };
+        if t.contains_key(new) {
+            return Err(err(
+                source,
+                &format!("{sec}.{old}"),
+                format!("only one of {sec}.{old} (the old name) and {sec}.{new}"),
+            ));
+        }
+        t.insert(new.to_string(), v);
+        warnings.push(format!(
+            "{source}: `{sec}.{old}` is now `{sec}.{new}`; the old name goes in the next release"
+        ));
+    }
+    Ok(warnings)
 }
 
 fn check_raw(table: &toml::Table, source: &str) -> Result<RawConfig, ConfigError> {
@@ -1124,5 +1190,38 @@ mod tests {
         // Serving settings stay out of the digest; compare them apart.
         assert_eq!(c.dashboard, d.dashboard);
         assert_eq!(serde_json::to_string(&c.http).unwrap(), serde_json::to_string(&d.http).unwrap());
+    }
+
+    #[test]
+    fn old_key_names_keep_working_with_a_warning() {
+        let old = "[tracking]\nregion_m = 40.0\n[clearance]\ninflation_m = 0.3\n[time]\nretain = \"3s\"\n[dashboard]\nstep = \"1s\"\n";
+        let c = Config::load(Some(("old.toml", old)), &[]).unwrap();
+        assert_eq!(
+            (c.tracking.region, c.clearance.inflation, c.align.retain, c.dashboard.step),
+            (40.0, 0.3, 3.0, 1.0)
+        );
+        assert_eq!(c.warnings.len(), 4, "{:?}", c.warnings);
+        assert!(
+            c.warnings[0].contains("`tracking.region_m` is now `tracking.region_radius_m`"),
+            "{:?}",
+            c.warnings
+        );
+        let new = "[tracking]\nregion_radius_m = 40.0\n[clearance]\nplanner_margin_m = 0.3\n[time]\nreference_history = \"3s\"\n[dashboard]\nchart_interval = \"1s\"\n";
+        let n = Config::load(Some(("new.toml", new)), &[]).unwrap();
+        assert_eq!(n.digest(), c.digest());
+        assert!(n.warnings.is_empty());
+        // --set with the old name too; both names at once is refused.
+        let s = Config::load(None, &["tracking.region_m=5".into()]).unwrap();
+        assert_eq!((s.tracking.region, s.warnings.len()), (5.0, 1));
+        let e = Config::load(None, &["tracking.region_m=5".into(), "tracking.region_m=6".into()]).unwrap();
+        assert_eq!(e.tracking.region, 6.0);
+        let f = Config::load(
+            Some(("f.toml", "[tracking]\nregion_radius_m = 1.0\n")),
+            &["tracking.region_m=7".into()],
+        );
+        assert_eq!(f.unwrap().tracking.region, 7.0);
+        let both = "[tracking]\nregion_m = 1.0\nregion_radius_m = 2.0\n";
+        let e = Config::load(Some(("both.toml", both)), &[]).unwrap_err();
+        assert_eq!((e.source_name.as_str(), e.key.as_str()), ("both.toml", "tracking.region_m"));
     }
 }

@@ -13,7 +13,7 @@
 //! - **Alerts**: the raised ones with the event time they were raised at (as in the alert
 //!   journal) and how long they have been active on the monitor's clock; the latest events.
 //! - **Topics**: per role, the message rate over the last 5 s of the monitor's clock,
-//!   latency p50/p99 of the sliding window nearest 10 s, staleness, drops, decode errors and
+//!   latency p50/p99 of the sliding window nearest 10 s, staleness, dropped, rejected and
 //!   stamp regressions, and a state (`no_data`, `stale`, `ok`; the site map, published once
 //!   or rarely, is never stale).
 //! - **Verdicts**: every rule's verdict so far.
@@ -382,7 +382,7 @@ impl Dashboard {
                     staleness_s,
                     messages: tr.messages,
                     dropped: tr.dropped,
-                    decode_errors: tr.decode_errors,
+                    rejected: tr.rejected,
                     stamp_regressions: tr.stamp_regressions,
                     publishers,
                 }
@@ -575,7 +575,7 @@ pub struct Topic {
     /// Dropped by a full queue.
     pub dropped: u64,
     /// Rejected while decoding or validating.
-    pub decode_errors: u64,
+    pub rejected: u64,
     /// Stamps older than the previous one.
     pub stamp_regressions: u64,
     /// Publishers heard on the role in the last 10 s (live; `None` before any).

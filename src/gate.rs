@@ -85,6 +85,11 @@ pub fn definition_changes(base: &Value, cand: &Value) -> Vec<String> {
     ) else {
         return Vec::new();
     };
+    // A report of the release before a key's rename names it the old way.
+    let current = |m: &serde_json::Map<String, Value>| -> std::collections::BTreeMap<String, Value> {
+        m.iter().map(|(k, v)| (crate::config::current_key(k), v.clone())).collect()
+    };
+    let (b, c) = (current(b), current(c));
     let mut keys: Vec<&String> = b.keys().chain(c.keys()).collect();
     keys.sort();
     keys.dedup();
@@ -255,5 +260,17 @@ mod tests {
         let cand = json!({"definitions": {"tracking.cutoff_m": 0.5, "tracking.order": 1.0}});
         assert_eq!(definition_changes(&base, &cand), vec!["tracking.cutoff_m: 2.0 vs 0.5".to_string()]);
         assert!(definition_changes(&base, &base).is_empty());
+    }
+
+    #[test]
+    fn a_renamed_definition_key_is_the_same_setting() {
+        let base = json!({"definitions": {"tracking.region_m": 40.0}});
+        let same = json!({"definitions": {"tracking.region_radius_m": 40.0}});
+        let other = json!({"definitions": {"tracking.region_radius_m": 0.0}});
+        assert!(definition_changes(&base, &same).is_empty());
+        assert_eq!(
+            definition_changes(&base, &other),
+            vec!["tracking.region_radius_m: 40.0 vs 0.0".to_string()]
+        );
     }
 }

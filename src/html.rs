@@ -262,7 +262,7 @@ fn verdict_table(r: &Report) -> String {
     if r.verdicts.is_empty() {
         return "<p class=\"none\">No rules configured.</p>".into();
     }
-    let mut t = String::from("<table><tr><th>rule</th><th>severity</th><th>verdict</th><th>worst</th><th>threshold</th><th>raised</th></tr>");
+    let mut t = String::from("<table><tr><th>rule</th><th>severity</th><th>verdict</th><th>worst</th><th>threshold</th><th>times raised</th></tr>");
     for v in &r.verdicts {
         let class = match v.verdict {
             "fail" => "fail",

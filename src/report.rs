@@ -115,7 +115,11 @@ impl BadRecord {
 pub struct RoleTransport {
     /// Messages accepted.
     pub messages: u64,
-    /// Rejected while decoding.
+    /// Rejected while decoding or validating (the same count as the records section's
+    /// `rejected`, per role).
+    pub rejected: u64,
+    /// The old name of `rejected`, written too for this release so scripts that read it
+    /// keep working.
     pub decode_errors: u64,
     /// Dropped by a full queue.
     pub dropped: u64,
@@ -293,14 +297,15 @@ impl Report {
         let mut transport = BTreeMap::new();
         for r in Role::ALL {
             let t = engine.transport(r);
-            if t.messages == 0 && t.decode_errors == 0 && t.dropped == 0 {
+            if t.messages == 0 && t.rejected == 0 && t.dropped == 0 {
                 continue;
             }
             transport.insert(
                 r.name(),
                 RoleTransport {
                     messages: t.messages,
-                    decode_errors: t.decode_errors,
+                    rejected: t.rejected,
+                    decode_errors: t.rejected,
                     dropped: t.dropped,
                     stamp_regressions: t.stamp_regressions,
                     latency_s: stats.get(Metric::Latency, Some(r)),

@@ -192,7 +192,7 @@ fn stamp_disorder_and_clock_jumps_are_counted_and_the_run_goes_on() {
     // that follows it agrees with the jump and confirms it.
     assert_eq!(rep.records.rejected, 1, "{:?}", rep.records.rejected_by_reason);
     assert_eq!(rep.records.rejected_by_reason.get("implausible_recv"), Some(&1));
-    assert_eq!(rep.transport["reference/ego"].decode_errors, 1);
+    assert_eq!(rep.transport["reference/ego"].rejected, 1);
     // Regressions: k = 51 (5.0 after 5.0 is not older: no), k = 50 (5.0 after 4.95: no),
     // k = 52 (5.25 after 5.0: no); k = 70 (6.5 after 6.95: yes). Only strictly older counts.
     let want = est_stamps.windows(2).filter(|w| w[1] < w[0]).count() as u64;

@@ -246,7 +246,7 @@ fn plan_jobs_run_beside_the_engine_give_the_inline_samples() {
     }
 }
 
-/// A plan that keeps exactly `clearance.inflation_m` from an obstacle has a margin of 0,
+/// A plan that keeps exactly `clearance.planner_margin_m` from an obstacle has a margin of 0,
 /// whatever its heading: the margin is snapped to 0 within a micrometre (below anything a
 /// site map or a planner resolves), so float rounding in the headings and corners cannot
 /// turn it into a breach of `below = 0`. Before: `-8.66e-8` raised the planner-margin rule

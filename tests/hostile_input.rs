@@ -216,7 +216,7 @@ fn a_stamp_far_ahead_never_enters_the_reference_timeline() {
     let bad = r#"{"key":"rig/reference/objects","recv":3.01,"msg":{"stamp":1e6,"objects":[{"id":1,"x":0.0,"y":0.0}]}}"#;
     let (clean, dirty, r) = with_and_without(&lines, at, &[bad.to_string()]);
     assert_eq!(r.report.records.rejected_by_reason.get("implausible_stamp"), Some(&1));
-    assert_eq!(r.report.transport["reference/objects"].decode_errors, 1);
+    assert_eq!(r.report.transport["reference/objects"].rejected, 1);
     assert!(clean == dirty, "the run scores as without the record");
 
     // Without arrival times the stamp is the message's time, judged against the stream's.
@@ -249,7 +249,7 @@ fn far_away_plans_are_rejected_before_they_are_densified() {
     let (clean, dirty, r) = with_and_without(&lines, at, &bad);
     let by = &r.report.records.rejected_by_reason;
     assert_eq!((by.get("out_of_range"), by.get("plan_too_long")), (Some(&1), Some(&1)), "{by:?}");
-    assert_eq!(r.report.transport["plan/path"].decode_errors, 2);
+    assert_eq!(r.report.transport["plan/path"].rejected, 2);
     assert!(clean == dirty);
     assert_eq!(r.report.records.non_finite_samples, 0);
 }

@@ -219,5 +219,5 @@ fn bad_records_are_counted_with_line_and_reason_and_valid_ones_score_the_same() 
     for r in ["malformed", "non_finite", "duplicate_id", "missing_field", "unbound_key", "bad_frame"] {
         assert!(reasons.contains_key(r), "{r} missing from {reasons:?}");
     }
-    assert!(b.report.transport["estimate/objects"].decode_errors >= 3);
+    assert!(b.report.transport["estimate/objects"].rejected >= 3);
 }

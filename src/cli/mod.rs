@@ -115,7 +115,12 @@ fn schema_cmd(cfg: &Config, a: &SchemaArgs) -> u8 {
 pub fn run(cli: Cli) -> ExitCode {
     init_tracing(cli.log_json);
     let cfg = match load_config(cli.config.as_ref(), &cli.sets) {
-        Ok(c) => c,
+        Ok(c) => {
+            for w in &c.warnings {
+                errln!("plumbline: warning: {w}");
+            }
+            c
+        }
         Err(e) => {
             errln!("plumbline: invalid config: {e}");
             return ExitCode::from(EXIT_INPUT);

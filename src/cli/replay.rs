@@ -281,7 +281,7 @@ pub fn summary(r: &Report) -> String {
                 f(t.latency_s.map(|x| x.p50)),
                 f(t.latency_s.map(|x| x.p99)),
                 f(t.interarrival_s.map(|x| x.p99)),
-                t.decode_errors,
+                t.rejected,
                 t.stamp_regressions
             );
         }

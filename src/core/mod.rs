@@ -77,7 +77,7 @@ impl TrackingParams {
             return Err(perr("alpha", "a number in (0, 2]"));
         }
         if !(region.is_finite() && region >= 0.0) {
-            return Err(perr("region_m", "a number of metres >= 0 (0 = unlimited)"));
+            return Err(perr("region_radius_m", "a number of metres >= 0 (0 = unlimited)"));
         }
         if forget_after.is_nan() || forget_after <= 0.0 {
             return Err(perr("forget_after", "a positive duration"));
@@ -187,7 +187,7 @@ impl AlignParams {
             return Err(perr("time.tolerance", "a duration >= 0"));
         }
         if !(retain.is_finite() && retain >= 0.0) {
-            return Err(perr("time.retain", "a duration >= 0"));
+            return Err(perr("time.reference_history", "a duration >= 0"));
         }
         if pending_steps == 0 {
             return Err(perr("limits.pending_steps", "at least 1"));

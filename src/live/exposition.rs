@@ -13,17 +13,28 @@ use crate::msg::Role;
 use crate::rules::AlertEvent;
 use crate::windows::Stat;
 
-pub use crate::metrics::catalog::prom_name;
+pub use crate::metrics::catalog::{prom_histogram_name, prom_name};
+
+/// Families renamed in this release, exported under the old name too until the next one
+/// (old name, new name).
+pub const RENAMED_FAMILIES: [(&str, &str); 3] = [
+    ("plumbline_arrival_latency_seconds", "plumbline_latency_histogram_seconds"),
+    ("plumbline_arrival_gap_seconds", "plumbline_interarrival_histogram_seconds"),
+    ("plumbline_decode_errors_total", "plumbline_rejected_total"),
+];
+
+/// The `window` label of the latest-sample gauges.
+pub const LATEST: &str = "latest";
 
 /// Every family of the monitor.
 pub struct Exposition {
     registry: Registry,
     values: Vec<GaugeVec>,
     labels: Vec<String>,
-    latency: HistogramVec,
-    interarrival: HistogramVec,
+    latency: [HistogramVec; 2],
+    interarrival: [HistogramVec; 2],
     messages: IntCounterVec,
-    decode_errors: IntCounterVec,
+    rejected: [IntCounterVec; 2],
     dropped: IntCounterVec,
     regressions: IntCounterVec,
     alerts: IntCounterVec,
@@ -59,16 +70,34 @@ impl Exposition {
             must(registry.register(Box::new(h.clone())));
             h
         };
-        let latency = hist("plumbline_arrival_latency_seconds", "arrival minus stamp per role (histogram)");
-        let interarrival =
-            hist("plumbline_arrival_gap_seconds", "time between arrivals per role (histogram)");
+        let old = |new: &str| RENAMED_FAMILIES.iter().find(|(_, n)| *n == new).map_or("", |(o, _)| *o);
+        let (lat, gap) = (prom_histogram_name(Metric::Latency), prom_histogram_name(Metric::Interarrival));
+        let latency = [
+            hist(&lat, "latency: receive time minus stamp, per role"),
+            hist(old(&lat), &format!("deprecated: the old name of {lat}")),
+        ];
+        let interarrival = [
+            hist(&gap, "interarrival: time between receipts, per role"),
+            hist(old(&gap), &format!("deprecated: the old name of {gap}")),
+        ];
         let counter = |name: &str, help: &str, labels: &[&str]| {
             let c = must(IntCounterVec::new(Opts::new(name, help), labels));
             must(registry.register(Box::new(c.clone())));
             c
         };
         let messages = counter("plumbline_messages_total", "messages accepted per role", &["role"]);
-        let decode_errors = counter("plumbline_decode_errors_total", "messages rejected per role", &["role"]);
+        let rejected = [
+            counter(
+                "plumbline_rejected_total",
+                "messages rejected (decoding or validation) per role",
+                &["role"],
+            ),
+            counter(
+                old("plumbline_rejected_total"),
+                "deprecated: the old name of plumbline_rejected_total",
+                &["role"],
+            ),
+        ];
         let dropped =
             counter("plumbline_dropped_total", "messages dropped by a full queue per role", &["role"]);
         let regressions = counter(
@@ -76,8 +105,16 @@ impl Exposition {
             "stamps older than the previous per role",
             &["role"],
         );
-        let alerts = counter("plumbline_alerts_total", "alert events", &["rule", "kind", "severity"]);
-        let steps = counter("plumbline_steps_total", "evaluation steps", &["kind", "outcome"]);
+        let alerts = counter(
+            "plumbline_alerts_total",
+            "alert events (event: raised or cleared)",
+            &["rule", "event", "severity"],
+        );
+        let steps = counter(
+            "plumbline_steps_total",
+            "evaluation steps (step: tracking or ego; outcome: evaluated, skipped, approximate)",
+            &["step", "outcome"],
+        );
         let active = must(GaugeVec::new(
             Opts::new("plumbline_alert_active", "1 while a rule is raised"),
             &["rule", "severity"],
@@ -104,7 +141,7 @@ impl Exposition {
             latency,
             interarrival,
             messages,
-            decode_errors,
+            rejected,
             dropped,
             regressions,
             alerts,
@@ -118,17 +155,21 @@ impl Exposition {
         }
     }
 
-    /// Takes one sample at once: the latest-value gauge (`window="now"`, `stat="value"`)
-    /// and, for latency and inter-arrival, the per-role histogram.
+    /// Takes one sample at once: the latest-sample gauge (`window="latest"`, `stat="last"`:
+    /// the span of the one latest sample, and its value) and, for latency and interarrival,
+    /// the per-role histogram.
     pub fn sample(&self, s: &crate::core::Sample) {
         let rl = s.role.map_or("", Role::name);
-        self.values[s.metric as usize].with_label_values(&[rl, "now", "value"]).set(s.value);
-        match (s.metric, s.role) {
-            (Metric::Latency, Some(r)) => self.latency.with_label_values(&[r.name()]).observe(s.value),
-            (Metric::Interarrival, Some(r)) => {
-                self.interarrival.with_label_values(&[r.name()]).observe(s.value)
+        self.values[s.metric as usize].with_label_values(&[rl, LATEST, "last"]).set(s.value);
+        let hists = match (s.metric, s.role) {
+            (Metric::Latency, Some(r)) => Some((&self.latency, r)),
+            (Metric::Interarrival, Some(r)) => Some((&self.interarrival, r)),
+            _ => None,
+        };
+        if let Some((pair, r)) = hists {
+            for h in pair {
+                h.with_label_values(&[r.name()]).observe(s.value);
             }
-            _ => {}
         }
     }
 
@@ -183,12 +224,19 @@ impl Exposition {
         }
         for r in Role::ALL {
             let t = monitor.engine.transport(r);
-            let now_vals = [t.messages, t.decode_errors, t.dropped, t.stamp_regressions];
-            let fams = [&self.messages, &self.decode_errors, &self.dropped, &self.regressions];
+            let now_vals = [t.messages, t.rejected, t.dropped, t.stamp_regressions];
+            let fams: [&[IntCounterVec]; 4] = [
+                std::slice::from_ref(&self.messages),
+                &self.rejected,
+                std::slice::from_ref(&self.dropped),
+                std::slice::from_ref(&self.regressions),
+            ];
             for k in 0..4 {
                 let d = now_vals[k].saturating_sub(self.seen[r.index()][k]);
                 if d > 0 {
-                    fams[k].with_label_values(&[r.name()]).inc_by(d);
+                    for f in fams[k] {
+                        f.with_label_values(&[r.name()]).inc_by(d);
+                    }
                 }
             }
             self.seen[r.index()] = now_vals;
@@ -248,5 +296,26 @@ mod tests {
         assert_eq!(prom_name(Metric::LateralAccel), "plumbline_lateral_accel_meters_per_second_squared");
         assert_eq!(prom_name(Metric::MissedCount), "plumbline_missed_objects");
         assert!(x.text().is_empty() || x.text().contains("plumbline_"));
+        assert_eq!(prom_histogram_name(Metric::Latency), "plumbline_latency_histogram_seconds");
+        assert_eq!(prom_histogram_name(Metric::Interarrival), "plumbline_interarrival_histogram_seconds");
+    }
+
+    #[test]
+    fn renamed_families_are_exported_under_both_names() {
+        let x = Exposition::new(&Config::defaults());
+        x.sample(&crate::core::Sample {
+            t: 1.0,
+            metric: Metric::Latency,
+            role: Some(Role::EstimateObjects),
+            value: 0.01,
+        });
+        let text = x.text();
+        for n in ["plumbline_latency_histogram_seconds", "plumbline_arrival_latency_seconds"] {
+            let line = format!("{n}_count{{role=\"estimate/objects\"}} 1");
+            assert!(text.lines().any(|l| l == line), "{n}: {text}");
+        }
+        let latest =
+            "plumbline_latency_seconds{role=\"estimate/objects\",stat=\"last\",window=\"latest\"} 0.01";
+        assert!(text.lines().any(|l| l == latest), "{text}");
     }
 }

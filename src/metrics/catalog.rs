@@ -110,7 +110,7 @@ pub fn entry(m: Metric) -> Entry {
         }
         PathClearance => ("m", "smallest clearance of the footprint swept along a plan", None, Lower),
         PathMargin => {
-            ("m", "path clearance minus clearance.inflation_m (snapped to 0 within 1 um)", None, Lower)
+            ("m", "path clearance minus clearance.planner_margin_m (snapped to 0 within 1 um)", None, Lower)
         }
         CrossTrack => (
             "m",
@@ -165,6 +165,16 @@ pub fn prom_name(m: Metric) -> String {
         n.to_string()
     };
     format!("plumbline_{base}")
+}
+
+/// The Prometheus histogram family of a per-role timing metric (latency, interarrival):
+/// its gauge family's name with `_histogram` before the unit, so both say the same metric.
+pub fn prom_histogram_name(m: Metric) -> String {
+    let g = prom_name(m);
+    match g.strip_suffix("_seconds") {
+        Some(stem) => format!("{stem}_histogram_seconds"),
+        None => format!("{g}_histogram"),
+    }
 }
 
 /// The glossary table (Markdown), as the README holds it.

@@ -1,6 +1,6 @@
 //! Transport health per role (SPEC §5): `latency_s` = recv - stamp, `interarrival_s` =
 //! recv - previous recv, `staleness_s` = now - last recv (live only), and counters
-//! `decode_errors`, `dropped`, `stamp_regressions`. Seconds on the monitor's clock.
+//! `rejected`, `dropped`, `stamp_regressions`. Seconds on the monitor's clock.
 
 use serde::Serialize;
 
@@ -10,7 +10,7 @@ pub struct Transport {
     /// Messages accepted.
     pub messages: u64,
     /// Messages rejected while decoding or validating.
-    pub decode_errors: u64,
+    pub rejected: u64,
     /// Messages dropped by a full queue.
     pub dropped: u64,
     /// Messages whose stamp is older than the role's previous one.

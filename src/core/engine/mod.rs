@@ -358,7 +358,7 @@ impl Engine {
                 self.counters.rejected += 1;
                 *self.counters.rejected_by_reason.entry(reason).or_insert(0) += 1;
                 if let Some(r) = role {
-                    self.transport[r.index()].decode_errors += 1;
+                    self.transport[r.index()].rejected += 1;
                 }
             }
             Input::Dropped { role } => self.transport[role.index()].dropped += 1,

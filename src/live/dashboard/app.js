@@ -223,7 +223,7 @@ function drawTopics(topics) {
     const ms = (v) => (v === null ? "–" : fmt(v * 1000));
     tr.append(cell(t.role), badge(t.state, "state state-" + t.state), cell(fmt(t.rate_hz), "n"),
       cell(ms(t.latency_p50_s), "n"), cell(ms(t.latency_p99_s), "n"), cell(fmt(t.staleness_s), "n"),
-      cell(String(t.dropped), "n"), cell(String(t.decode_errors), "n"), cell(String(t.stamp_regressions), "n"),
+      cell(String(t.dropped), "n"), cell(String(t.rejected), "n"), cell(String(t.stamp_regressions), "n"),
       cell(t.publishers === null ? "–" : String(t.publishers), "n"));
     tb.append(labelCells(tr, "#topics"));
   }
