@@ -3,7 +3,7 @@
 //! component) and mostly-sparse scenes (estimates near their own object only).
 
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
-use plumbline::core::assign::{match_bounded, match_with_cutoff, MatchScratch, ShortestPath};
+use plumbline::metrics::assign::{match_bounded, match_with_cutoff, MatchScratch, ShortestPath};
 use plumbline::metrics::{gospa, ospa};
 use rand::{Rng, SeedableRng};
 

@@ -16,11 +16,11 @@ fn bench(c: &mut Criterion) {
     g.sample_size(10);
     for minimal in [true, false] {
         let p = ScenarioParams { duration: 60.0, objects: 80, rate_hz: 20.0, minimal, ..Default::default() };
-        let records = generate(&cfg, &p);
+        let records = generate(&cfg.roles, &p);
         let states: u64 = records.iter().map(|r| r.msg.object_count() as u64).sum();
         for ext in ["jsonl", "plb"] {
             let path = dir.path().join(format!("bench-{minimal}.{ext}"));
-            let mut w = LogWriter::create(&cfg, &path).expect("create");
+            let mut w = LogWriter::create(&cfg.log(), &path).expect("create");
             for r in &records {
                 w.write(r).expect("write");
             }

@@ -5,10 +5,9 @@ use std::collections::BTreeMap;
 
 use serde::Serialize;
 
-use crate::config::Config;
 use crate::inference::{clopper_pearson, Rate};
 use crate::report::Report;
-use crate::rules::critical_failed;
+use crate::rules::{critical_failed, Rule};
 use crate::stats::{quantile_sorted, Summary};
 
 /// One rule across the campaign.
@@ -78,7 +77,7 @@ pub struct CampaignReport {
 /// `max_failure_rate`, exit 1 exactly when a critical rule's Clopper-Pearson upper bound
 /// (95% two-sided, incomplete runs counted as failures) exceeds it; exit 2 when no run
 /// holds anything to judge.
-pub fn exit_code(cfg: &Config, agg: &CampaignReport, max_failure_rate: Option<f64>) -> u8 {
+pub fn exit_code(rules: &[Rule], agg: &CampaignReport, max_failure_rate: Option<f64>) -> u8 {
     let judged = agg.runs as usize - agg.empty.len();
     if judged == 0 {
         return 2;
@@ -90,7 +89,7 @@ pub fn exit_code(cfg: &Config, agg: &CampaignReport, max_failure_rate: Option<f6
                 || !agg.empty.is_empty()
                 || !agg.damaged.is_empty()
         }
-        Some(limit) => cfg.rules.iter().zip(&agg.rules).any(|(r, a)| {
+        Some(limit) => rules.iter().zip(&agg.rules).any(|(r, a)| {
             r.severity == crate::rules::Severity::Critical
                 && a.failure_rate.as_ref().is_some_and(|x| x.upper > limit)
         }),
@@ -98,8 +97,13 @@ pub fn exit_code(cfg: &Config, agg: &CampaignReport, max_failure_rate: Option<f6
     u8::from(failed)
 }
 
-/// Aggregates run reports (pure).
-pub fn aggregate(cfg: &Config, all: &[Report], unreadable: Vec<String>) -> CampaignReport {
+/// Aggregates run reports (pure): `rules` the config's rules, `config_digest` its digest.
+pub fn aggregate(
+    rules_cfg: &[Rule],
+    config_digest: &str,
+    all: &[Report],
+    unreadable: Vec<String>,
+) -> CampaignReport {
     // Runs with nothing evaluated are listed apart and judged by none of their verdicts.
     let (runs, empty): (Vec<&Report>, Vec<&Report>) = all.iter().partition(|r| r.not_evaluable().is_none());
     let empty: Vec<String> = empty.into_iter().map(|r| r.input.clone()).collect();
@@ -108,7 +112,7 @@ pub fn aggregate(cfg: &Config, all: &[Report], unreadable: Vec<String>) -> Campa
     // Unreadable, empty and damaged runs count as failures of every rule.
     let incomplete = (unreadable.len() + empty.len()) as u64;
     let mut rules = Vec::new();
-    for (i, r) in cfg.rules.iter().enumerate() {
+    for (i, r) in rules_cfg.iter().enumerate() {
         let (mut fails, mut with_data, mut no_data) = (incomplete, incomplete, 0u64);
         let mut worst: Vec<(String, f64)> = Vec::new();
         let mut run_incomplete = incomplete;
@@ -176,7 +180,7 @@ pub fn aggregate(cfg: &Config, all: &[Report], unreadable: Vec<String>) -> Campa
         .collect();
     CampaignReport {
         version: env!("CARGO_PKG_VERSION"),
-        config_digest: cfg.digest(),
+        config_digest: config_digest.to_string(),
         runs: all.len() as u64,
         critical_failures: runs.iter().filter(|r| critical_failed(&r.verdicts)).count() as u64,
         unreadable,

@@ -20,7 +20,7 @@ use crate::geometry::Footprint;
 use crate::metrics::Metric;
 use crate::msg::{Limits, Role};
 use crate::rules::{Rule, RuleWindow, Severity};
-use crate::windows::Stat;
+use crate::stats::Stat;
 
 /// A configuration error, naming where it came from.
 #[derive(Debug, Error)]
@@ -363,7 +363,7 @@ pub struct Config {
     /// message size and plausibility limits
     pub limits: Limits,
     /// report percentile settings
-    pub report: ReportParams,
+    pub report: crate::stats::StatsParams,
     /// key prefix for the monitor's publications
     pub prefix: String,
     /// sliding window lengths (s), configured ones first, then any a rule adds
@@ -444,15 +444,6 @@ pub struct LiveParams {
     /// `/healthz` turns unhealthy when the engine has made no progress this long (s) while
     /// messages wait in its queue
     pub stall_after: f64,
-}
-
-/// How the report computes percentiles.
-#[derive(Debug, Clone, Copy, Serialize)]
-pub struct ReportParams {
-    /// values per metric kept for exact percentiles
-    pub exact_values: usize,
-    /// significant digits of the fallback histogram
-    pub histogram_digits: u8,
 }
 
 impl Config {
@@ -629,7 +620,7 @@ impl Config {
         if !(1..=5).contains(&digits) {
             return Err(err(source, "report.histogram_digits", "a whole number from 1 to 5"));
         }
-        let report = ReportParams {
+        let report = crate::stats::StatsParams {
             exact_values: count(source, "report.exact_values", raw.report.exact_values, 200_000)?,
             histogram_digits: digits as u8,
         };
@@ -759,6 +750,33 @@ impl Config {
             gate,
             warnings: Vec::new(),
         })
+    }
+
+    /// The monitor's parameters.
+    pub fn monitor(&self) -> crate::monitor::MonitorParams {
+        crate::monitor::MonitorParams {
+            tracking: self.tracking,
+            align: self.align,
+            clearance: self.clearance,
+            windows: self.windows.clone(),
+            window_buckets: self.window_buckets,
+            rules: self.rules.clone(),
+            stats: self.report,
+        }
+    }
+
+    /// What the log readers and writers need of this config.
+    pub fn log(&self) -> crate::logio::LogParams {
+        crate::logio::LogParams { roles: self.roles.clone(), limits: self.limits }
+    }
+
+    /// What a report says of this config.
+    pub fn report_settings(&self) -> crate::report::ReportSettings {
+        crate::report::ReportSettings {
+            config_digest: self.digest(),
+            definitions: self.definitions(),
+            stats: self.report,
+        }
     }
 
     /// Message validation limits.
@@ -946,25 +964,7 @@ fn annotate(mut e: ConfigError, table: &toml::Table) -> ConfigError {
     e
 }
 
-/// Keys renamed for what they mean: (section, old, new). The old names keep working for
-/// one release, with a warning naming the new one (`tracking.region_m` is also the name the
-/// message contract's first edition lists, so scripts that set it keep working).
-pub const RENAMED_KEYS: [(&str, &str, &str); 4] = [
-    ("tracking", "region_m", "region_radius_m"),
-    ("clearance", "inflation_m", "planner_margin_m"),
-    ("time", "retain", "reference_history"),
-    ("dashboard", "step", "chart_interval"),
-];
-
-/// The current name of a `section.key` (itself unless renamed).
-pub fn current_key(key: &str) -> String {
-    for (sec, old, new) in RENAMED_KEYS {
-        if key.strip_prefix(sec).and_then(|k| k.strip_prefix('.')) == Some(old) {
-            return format!("{sec}.{new}");
-        }
-    }
-    key.to_string()
-}
+pub use crate::report::{current_key, RENAMED_KEYS};
 
 /// Moves renamed keys to their new names, returning a warning for each old name used;
 /// both names at once is an error (which one was meant cannot be known).

@@ -25,13 +25,12 @@ use std::collections::VecDeque;
 
 use serde::Serialize;
 
-use crate::config::Config;
 use crate::core::Sample;
 use crate::metrics::Metric;
 use crate::monitor::Monitor;
 use crate::msg::Role;
 use crate::rules::{AlertEvent, Verdict};
-use crate::windows::Stat;
+use crate::stats::Stat;
 
 /// Alert events kept for the page.
 pub const RECENT_EVENTS: usize = 20;
@@ -180,14 +179,13 @@ pub struct Dashboard {
 const RATE_SPAN: f64 = 5.0;
 
 impl Dashboard {
-    /// An empty dashboard for a config: its GOSPA order (the parts' unit) and its windows
-    /// (the charts read the shortest); `params` usually `cfg.dashboard`.
-    pub fn new(params: DashboardParams, cfg: &Config) -> Dashboard {
+    /// An empty dashboard: `windows` the monitor's window lengths and `labels` their
+    /// names (the charts read the shortest), `order` the GOSPA order (the parts' unit).
+    pub fn new(params: DashboardParams, windows: &[f64], labels: &[String], order: f64) -> Dashboard {
         let capacity = ((params.history / params.step).ceil() as usize).clamp(1, 100_000);
-        let chart_window =
-            (0..cfg.windows.len()).min_by(|&a, &b| cfg.windows[a].total_cmp(&cfg.windows[b])).unwrap_or(0);
-        let label = cfg.window_labels.get(chart_window).map_or("1s", String::as_str);
-        let charts = charts(cfg.tracking.order, label);
+        let chart_window = (0..windows.len()).min_by(|&a, &b| windows[a].total_cmp(&windows[b])).unwrap_or(0);
+        let label = labels.get(chart_window).map_or("1s", String::as_str);
+        let charts = charts(order, label);
         let lines = charts.iter().map(|c| c.lines.len()).sum();
         Dashboard {
             params,

@@ -87,7 +87,7 @@ pub fn definition_changes(base: &Value, cand: &Value) -> Vec<String> {
     };
     // A report of the release before a key's rename names it the old way.
     let current = |m: &serde_json::Map<String, Value>| -> std::collections::BTreeMap<String, Value> {
-        m.iter().map(|(k, v)| (crate::config::current_key(k), v.clone())).collect()
+        m.iter().map(|(k, v)| (crate::report::current_key(k), v.clone())).collect()
     };
     let (b, c) = (current(b), current(c));
     let mut keys: Vec<&String> = b.keys().chain(c.keys()).collect();

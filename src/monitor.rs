@@ -1,14 +1,32 @@
 //! The monitor: the engine plus everything that consumes its samples — run statistics,
 //! sliding windows and rules. Pure; live and replay drive it through the same calls.
 
-use crate::config::Config;
-use crate::core::{Engine, Input, Sample};
-use crate::report::RunStats;
-use crate::rules::{AlertEvent, RuleSet, Verdict};
+use crate::core::{AlignParams, ClearanceParams, Engine, Input, Sample, TrackingParams};
+use crate::rules::{AlertEvent, Rule, RuleSet, Verdict};
+use crate::stats::{RunStats, StatsParams};
 use crate::windows::WindowSet;
 
 /// Alert events kept for the report; later ones are counted in `alerts_dropped`.
 pub const KEEP_ALERTS: usize = 10_000;
+
+/// What a monitor is built from (the config builds it: [`crate::config::Config::monitor`]).
+#[derive(Debug, Clone)]
+pub struct MonitorParams {
+    /// Tracking metrics.
+    pub tracking: TrackingParams,
+    /// Time alignment.
+    pub align: AlignParams,
+    /// Clearance and path metrics.
+    pub clearance: ClearanceParams,
+    /// Sliding window lengths (s).
+    pub windows: Vec<f64>,
+    /// Sub-buckets per window.
+    pub window_buckets: usize,
+    /// The rules.
+    pub rules: Vec<Rule>,
+    /// Run statistics' percentile settings.
+    pub stats: StatsParams,
+}
 
 /// Engine, statistics, windows and rules.
 #[derive(Debug)]
@@ -27,13 +45,13 @@ pub struct Monitor {
 }
 
 impl Monitor {
-    /// A monitor for a config.
-    pub fn new(cfg: &Config) -> Monitor {
+    /// A monitor built from its parameters.
+    pub fn new(p: &MonitorParams) -> Monitor {
         Monitor {
-            engine: Engine::new(cfg.tracking, cfg.align, cfg.clearance),
-            stats: RunStats::new(cfg),
-            windows: WindowSet::new(&cfg.windows, cfg.window_buckets),
-            rules: RuleSet::new(cfg.rules.clone()),
+            engine: Engine::new(p.tracking, p.align, p.clearance),
+            stats: RunStats::new(&p.stats),
+            windows: WindowSet::new(&p.windows, p.window_buckets),
+            rules: RuleSet::new(p.rules.clone()),
             alerts: Vec::new(),
             alerts_dropped: 0,
         }

@@ -28,7 +28,7 @@ const SINK_FLIGHT: usize = 4;
 /// 2 MiB of objects; beyond it the engine runs a plan's job itself, with the same samples.
 const PLAN_JOB_POINTS: usize = 20_000;
 /// Rejected records kept with their position for the report.
-pub const KEEP_BAD: usize = 100;
+pub use crate::logio::KEEP_BAD;
 
 /// What a replay produced.
 pub struct Replayed {
@@ -151,7 +151,8 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     let mut source = Source::open(path)?;
     let header_roles: Vec<(String, String)> = source.roles().to_vec();
     let limits = cfg.limits();
-    let mut monitor = Monitor::new(cfg);
+    let log = cfg.log();
+    let mut monitor = Monitor::new(&cfg.monitor());
     let mut first_events: Vec<AlertEvent> = Vec::new();
     if let Some(map) = load_map(cfg)? {
         monitor.push(map, &mut Vec::new(), &mut first_events);
@@ -177,13 +178,14 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
             from_workers.push(rx_out);
             let roles = &header_roles;
             let limits = &limits;
+            let log = &log;
             let decode = move || {
                 let mut decoded = Vec::new();
                 for frame in rx_in.iter() {
                     let (end, tail) = match frame {
                         Frame::Tail(t) => (t.offset, Some(t)),
-                        f if is_lines => (jsonl::decode_frame(cfg, limits, f, &mut decoded), None),
-                        f => plb::decode_frame(cfg, roles, limits, f, &mut decoded),
+                        f if is_lines => (jsonl::decode_frame(log, limits, f, &mut decoded), None),
+                        f => plb::decode_frame(log, roles, limits, f, &mut decoded),
                     };
                     // Prepared here, while the messages are in this core's cache; the
                     // objects are dropped on the thread that made them.
@@ -306,17 +308,18 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
         tail,
         damage,
     };
-    let report = Report::build(cfg, &monitor, inputs);
+    let report = Report::build(&cfg.report_settings(), &monitor, inputs);
     Ok(Replayed { report, monitor })
 }
 
 /// Reads the site map named by `clearance.map_file`, as an input for the monitor.
 pub fn load_map(cfg: &Config) -> Result<Option<Input>, ReplayError> {
     let Some(path) = &cfg.map_file else { return Ok(None) };
-    let text = std::fs::read_to_string(path).map_err(|source| LogError::Io { path: path.clone(), source })?;
-    let msg = crate::msg::decode_json(crate::msg::MsgKind::Obstacles, &text, &cfg.limits())
-        .map_err(|e| ReplayError::Map(format!("{path}: {e}")))?;
-    Ok(Some(Input::Message { role: crate::msg::Role::ReferenceObstacles, recv: None, msg }))
+    match crate::logio::read_map(path, &cfg.limits()) {
+        Ok(input) => Ok(Some(input)),
+        Err(LogError::BadMap { path, why }) => Err(ReplayError::Map(format!("{path}: {why}"))),
+        Err(e) => Err(e.into()),
+    }
 }
 
 /// Spawns a named scoped thread (names show in `top -H` and `perf`). Spawning fails only

@@ -5,84 +5,35 @@ use std::collections::BTreeMap;
 
 use serde::Serialize;
 
-use crate::config::Config;
 use crate::core::engine::{Collision, Counters, Sample, StepCounts};
-use crate::logio::{Position, Tail};
 use crate::metrics::nees::Consistency;
 use crate::metrics::Metric;
 use crate::monitor::Monitor;
 use crate::msg::Role;
+use crate::msg::{Position, Tail};
 use crate::rules::{AlertEvent, Verdict};
-use crate::stats::{Stats, Summary};
-use crate::windows::Stat;
+pub use crate::stats::RunStats;
+use crate::stats::Stats;
 
-const SLOTS: usize = Role::ALL.len() + 1;
+/// Config keys renamed for what they mean: (section, old, new). Kept here, beside the
+/// report's `definitions`, because the gate reads an older report's keys through it. The old names keep working for
+/// one release, with a warning naming the new one (`tracking.region_m` is also the name the
+/// message contract's first edition lists, so scripts that set it keep working).
+pub const RENAMED_KEYS: [(&str, &str, &str); 4] = [
+    ("tracking", "region_m", "region_radius_m"),
+    ("clearance", "inflation_m", "planner_margin_m"),
+    ("time", "retain", "reference_history"),
+    ("dashboard", "step", "chart_interval"),
+];
 
-/// Per-metric (and per-role) run statistics.
-#[derive(Debug, Clone)]
-pub struct RunStats {
-    slots: Vec<Option<Summary>>,
-    cap: usize,
-    digits: u8,
-    /// Samples whose value was not a finite number, dropped before anything saw them.
-    pub non_finite: u64,
-}
-
-impl RunStats {
-    /// Empty statistics with the config's percentile settings.
-    pub fn new(cfg: &Config) -> RunStats {
-        RunStats {
-            slots: vec![None; Metric::ALL.len() * SLOTS],
-            cap: cfg.report.exact_values,
-            digits: cfg.report.histogram_digits,
-            non_finite: 0,
+/// The current name of a `section.key` (itself unless renamed).
+pub fn current_key(key: &str) -> String {
+    for (sec, old, new) in RENAMED_KEYS {
+        if key.strip_prefix(sec).and_then(|k| k.strip_prefix('.')) == Some(old) {
+            return format!("{sec}.{new}");
         }
     }
-
-    fn slot(metric: Metric, role: Option<Role>) -> usize {
-        metric as usize * SLOTS + role.map_or(0, |r| r.index() + 1)
-    }
-
-    /// Adds samples.
-    pub fn add(&mut self, samples: &[Sample]) {
-        for s in samples {
-            let (cap, digits) = (self.cap, self.digits);
-            self.slots[Self::slot(s.metric, s.role)]
-                .get_or_insert_with(|| Summary::new(cap, digits))
-                .add(s.value);
-        }
-    }
-
-    /// Statistics of one metric, if it has values.
-    pub fn get(&self, metric: Metric, role: Option<Role>) -> Option<Stats> {
-        self.slots[Self::slot(metric, role)].as_ref().and_then(Summary::stats)
-    }
-
-    /// One statistic of the run (exact mean, min, max, count, last).
-    pub fn stat(&self, metric: Metric, role: Option<Role>, stat: Stat) -> Option<f64> {
-        let s = self.slots[Self::slot(metric, role)].as_ref()?;
-        let st = s.stats()?;
-        Some(match stat {
-            Stat::Count => st.count as f64,
-            Stat::Mean => st.mean,
-            Stat::Min => st.min,
-            Stat::Max => st.max,
-            Stat::P50 => st.p50,
-            Stat::P95 => st.p95,
-            Stat::P99 => st.p99,
-            Stat::Last => s.last()?,
-        })
-    }
-
-    /// Count, mean, min and max of a metric without computing percentiles (cheap).
-    pub fn basic(&self, metric: Metric, role: Option<Role>) -> Option<(u64, f64, f64, f64)> {
-        self.slots[Self::slot(metric, role)].as_ref().and_then(Summary::basic)
-    }
-
-    /// Whether every percentile so far is exact.
-    pub fn all_exact(&self) -> bool {
-        self.slots.iter().flatten().all(Summary::is_exact)
-    }
+    key.to_string()
 }
 
 /// One rejected record, for the report and the summary.
@@ -187,7 +138,7 @@ pub struct DamageSummary {
     /// the stretches that did not verify).
     pub records: u64,
     /// The first stretches, with where they start.
-    pub first: Vec<crate::logio::Damage>,
+    pub first: Vec<crate::msg::Damage>,
 }
 
 impl DamageSummary {
@@ -195,7 +146,7 @@ impl DamageSummary {
     pub const KEEP: usize = 100;
 
     /// Counts one stretch.
-    pub fn add(&mut self, d: crate::logio::Damage) {
+    pub fn add(&mut self, d: crate::msg::Damage) {
         self.stretches += 1;
         self.bytes += d.bytes;
         self.records += d.records;
@@ -274,9 +225,21 @@ pub struct RunInputs {
     pub damage: DamageSummary,
 }
 
+/// What the report says of the config it was made with (the config builds it:
+/// [`crate::config::Config::report_settings`]).
+#[derive(Debug, Clone)]
+pub struct ReportSettings {
+    /// Digest of the resolved config.
+    pub config_digest: String,
+    /// The settings that define the metrics, by config key.
+    pub definitions: BTreeMap<&'static str, serde_json::Value>,
+    /// The run statistics' percentile settings.
+    pub stats: crate::stats::StatsParams,
+}
+
 impl Report {
     /// Builds the report.
-    pub fn build(cfg: &Config, monitor: &Monitor, inputs: RunInputs) -> Report {
+    pub fn build(cfg: &ReportSettings, monitor: &Monitor, inputs: RunInputs) -> Report {
         let (engine, stats) = (&monitor.engine, &monitor.stats);
         let c: &Counters = engine.counters();
         let mut metrics = BTreeMap::new();
@@ -321,8 +284,8 @@ impl Report {
         Report {
             tool: "plumbline",
             version: env!("CARGO_PKG_VERSION"),
-            config_digest: cfg.digest(),
-            definitions: cfg.definitions(),
+            config_digest: cfg.config_digest.clone(),
+            definitions: cfg.definitions.clone(),
             input_digest: inputs.input_digest,
             input: inputs.input,
             duration_s,
@@ -352,8 +315,8 @@ impl Report {
             transport,
             percentiles: PercentileMethod {
                 method: if stats.all_exact() { "exact-linear" } else { "hdr" },
-                exact_values: cfg.report.exact_values,
-                histogram_digits: cfg.report.histogram_digits,
+                exact_values: cfg.stats.exact_values,
+                histogram_digits: cfg.stats.histogram_digits,
             },
             alerts: monitor.alerts().to_vec(),
             alerts_dropped: monitor.alerts_dropped,

@@ -21,7 +21,7 @@ use serde::Serialize;
 use crate::core::align::EXACT_S;
 use crate::metrics::Metric;
 use crate::msg::Role;
-use crate::report::RunStats;
+use crate::stats::RunStats;
 use crate::windows::{Stat, WindowSet};
 
 /// How bad a failure is.

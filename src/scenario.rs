@@ -22,8 +22,7 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 
-use crate::config::Config;
-use crate::logio::LogRecord;
+use crate::msg::LogRecord;
 use crate::msg::{Msg, Object, ObjectSet, Obstacle, ObstacleSet, Path, PathPose, Pose, Role, Shape};
 
 /// Scenario knobs.
@@ -136,8 +135,12 @@ impl Actor {
     }
 }
 
-fn rec(cfg: &Config, role: Role, recv: f64, msg: Msg) -> LogRecord {
-    LogRecord { key: cfg.key_of(role).to_string(), recv: Some(round6(recv)), msg }
+/// The key expression each role is published on.
+pub type Keys = [(Role, String)];
+
+fn rec(keys: &Keys, role: Role, recv: f64, msg: Msg) -> LogRecord {
+    let key = keys.iter().find(|(r, _)| *r == role).map_or("", |(_, k)| k.as_str());
+    LogRecord { key: key.to_string(), recv: Some(round6(recv)), msg }
 }
 
 /// Rounds to a microsecond so logs stay short and exact.
@@ -150,7 +153,7 @@ fn round3(x: f64) -> f64 {
 }
 
 /// Generates the records of one run, sorted by arrival time.
-pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
+pub fn generate(keys: &Keys, p: &ScenarioParams) -> Vec<LogRecord> {
     let mut rng = ChaCha8Rng::seed_from_u64(p.seed);
     let unit = Normal::new(0.0, 1.0).expect("unit normal");
     let mut actors = Vec::new();
@@ -290,7 +293,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             points: Some(vec![[-22.0, -4.0], [-19.0, -4.0], [-19.0, 4.0], [-22.0, 4.0]]),
         },
     ];
-    out.push(rec(cfg, Role::ReferenceObstacles, 0.0, Msg::Obstacles(ObstacleSet { stamp: 0.0, obstacles })));
+    out.push(rec(keys, Role::ReferenceObstacles, 0.0, Msg::Obstacles(ObstacleSet { stamp: 0.0, obstacles })));
 
     // Reference ego at 50 Hz; estimated ego at 20 Hz with drift reset every 20 s.
     let n_ego = (p.duration * 50.0) as usize;
@@ -299,7 +302,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
         let (x, y, yaw) = route(SHUTTLE_SPEED * t);
         let recv = t + 0.002 + rng.random_range(0.0..0.002);
         out.push(rec(
-            cfg,
+            keys,
             Role::ReferenceEgo,
             recv,
             Msg::Pose(Pose {
@@ -326,7 +329,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
         let yaw_e = crate::metrics::ego::wrap_angle(yaw + 0.01 * unit.sample(&mut rng) + 0.004);
         let recv = t + 0.012 + rng.random_range(0.0..0.008);
         out.push(rec(
-            cfg,
+            keys,
             Role::EstimateEgo,
             recv,
             Msg::Pose(Pose {
@@ -360,7 +363,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             goal: Some(pose(s0 + 30.0)),
             compute_s: Some(compute),
         });
-        out.push(rec(cfg, Role::PlanPath, recv, msg));
+        out.push(rec(keys, Role::PlanPath, recv, msg));
     }
 
     // Reference objects at rate_hz (10 Hz by default).
@@ -386,7 +389,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
             .collect();
         let recv = t + 0.003 + rng.random_range(0.0..0.003);
         out.push(rec(
-            cfg,
+            keys,
             Role::ReferenceObjects,
             recv,
             Msg::Objects(ObjectSet { stamp: round6(t), frame: None, objects }),
@@ -447,7 +450,7 @@ pub fn generate(cfg: &Config, p: &ScenarioParams) -> Vec<LogRecord> {
         clutter.retain(|c| c.2 > t);
         let recv = t + 0.03 + rng.random_range(0.0..0.05);
         out.push(rec(
-            cfg,
+            keys,
             Role::EstimateObjects,
             recv,
             Msg::Objects(ObjectSet { stamp: round6(t), frame: None, objects }),
@@ -472,11 +475,11 @@ mod tests {
 
     #[test]
     fn same_seed_same_records() {
-        let cfg = Config::defaults();
+        let keys: Vec<(Role, String)> = Role::ALL.iter().map(|&r| (r, format!("rig/{}", r.name()))).collect();
         let p = ScenarioParams { duration: 5.0, ..Default::default() };
-        assert_eq!(generate(&cfg, &p), generate(&cfg, &p));
+        assert_eq!(generate(&keys, &p), generate(&keys, &p));
         let q = ScenarioParams { seed: 2, ..p.clone() };
-        assert_ne!(generate(&cfg, &p), generate(&cfg, &q));
+        assert_ne!(generate(&keys, &p), generate(&keys, &q));
     }
 
     #[test]

@@ -11,8 +11,7 @@
 
 use serde_json::{json, Value};
 
-use crate::config::Config;
-use crate::msg::{MsgKind, MAX_ANGLE, MAX_COV};
+use crate::msg::{Limits, MsgKind, Role, MAX_ANGLE, MAX_COV};
 
 /// The draft every schema declares.
 pub const DRAFT: &str = "https://json-schema.org/draft/2020-12/schema";
@@ -33,8 +32,7 @@ fn array_of(item: Value, n: usize) -> Value {
 }
 
 /// The schema of one message kind under the config's limits.
-pub fn message(cfg: &Config, kind: MsgKind) -> Value {
-    let l = cfg.limits();
+pub fn message(l: &Limits, kind: MsgKind) -> Value {
     let (xy, size, speed, stamp) = (num(l.max_coordinate), l.max_size, num(l.max_speed), num(l.max_stamp));
     let positive = json!({"type": "number", "exclusiveMinimum": 0, "maximum": size});
     let id = json!({"type": "integer", "minimum": 0, "maximum": MAX_ID});
@@ -158,14 +156,12 @@ pub fn message(cfg: &Config, kind: MsgKind) -> Value {
 
 /// The schema of one JSON Lines record: `key` one of the config's bound keys, `recv` an
 /// optional arrival time, `msg` the message of the key's role.
-pub fn record(cfg: &Config) -> Value {
-    let l = cfg.limits();
-    let keys: Vec<&str> = cfg.roles.iter().map(|(_, k)| k.as_str()).collect();
-    let by_key: Vec<Value> = cfg
-        .roles
+pub fn record(l: &Limits, roles: &[(Role, String)]) -> Value {
+    let keys: Vec<&str> = roles.iter().map(|(_, k)| k.as_str()).collect();
+    let by_key: Vec<Value> = roles
         .iter()
         .map(|(role, key)| {
-            let mut m = message(cfg, role.kind());
+            let mut m = message(l, role.kind());
             if let Some(o) = m.as_object_mut() {
                 o.remove("$schema");
                 o.remove("$id");
@@ -189,13 +185,13 @@ pub fn record(cfg: &Config) -> Value {
 }
 
 /// Every schema by the name `plumbline schema NAME` takes.
-pub fn by_name(cfg: &Config, name: &str) -> Option<Value> {
+pub fn by_name(l: &Limits, roles: &[(Role, String)], name: &str) -> Option<Value> {
     Some(match name {
-        "object-set" => message(cfg, MsgKind::Objects),
-        "pose" => message(cfg, MsgKind::Pose),
-        "path" => message(cfg, MsgKind::Path),
-        "obstacle-set" => message(cfg, MsgKind::Obstacles),
-        "record" => record(cfg),
+        "object-set" => message(l, MsgKind::Objects),
+        "pose" => message(l, MsgKind::Pose),
+        "path" => message(l, MsgKind::Path),
+        "obstacle-set" => message(l, MsgKind::Obstacles),
+        "record" => record(l, roles),
         _ => return None,
     })
 }
@@ -209,16 +205,18 @@ mod tests {
 
     #[test]
     fn every_schema_declares_its_draft_and_the_config_bounds() {
-        let cfg = Config::load(None, &["limits.max_coordinate_m=500".into()]).unwrap();
+        let l = Limits { max_coordinate: 500.0, ..Limits::default() };
+        let roles: Vec<(Role, String)> =
+            Role::ALL.iter().map(|&r| (r, format!("rig/{}", r.name()))).collect();
         for n in NAMES {
-            let s = by_name(&cfg, n).unwrap();
+            let s = by_name(&l, &roles, n).unwrap();
             assert_eq!(s["$schema"], DRAFT, "{n}");
         }
-        let pose = by_name(&cfg, "pose").unwrap();
+        let pose = by_name(&l, &roles, "pose").unwrap();
         assert_eq!(pose["properties"]["x"]["maximum"], 500.0);
         assert_eq!(pose["required"], json!(["stamp", "x", "y", "yaw"]));
-        let rec = record(&cfg);
+        let rec = record(&l, &roles);
         assert_eq!(rec["allOf"].as_array().unwrap().len(), 6);
-        assert!(by_name(&cfg, "nothing").is_none());
+        assert!(by_name(&l, &roles, "nothing").is_none());
     }
 }

@@ -11,6 +11,140 @@
 use hdrhistogram::Histogram;
 use serde::Serialize;
 
+use crate::core::Sample;
+use crate::metrics::Metric;
+use crate::msg::Role;
+
+/// Which statistic a rule reads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Stat {
+    /// count
+    Count,
+    /// mean
+    Mean,
+    /// min
+    Min,
+    /// max
+    Max,
+    /// p50
+    P50,
+    /// p95
+    P95,
+    /// p99
+    P99,
+    /// last
+    Last,
+}
+
+impl Stat {
+    /// Every stat name.
+    pub const NAMES: [&'static str; 8] = ["count", "mean", "min", "max", "p50", "p95", "p99", "last"];
+
+    /// Parses a stat name.
+    pub fn from_name(s: &str) -> Option<Stat> {
+        Some(match s {
+            "count" => Stat::Count,
+            "mean" => Stat::Mean,
+            "min" => Stat::Min,
+            "max" => Stat::Max,
+            "p50" => Stat::P50,
+            "p95" => Stat::P95,
+            "p99" => Stat::P99,
+            "last" => Stat::Last,
+            _ => return None,
+        })
+    }
+
+    /// The stat's name.
+    pub fn name(self) -> &'static str {
+        Stat::NAMES[self as usize]
+    }
+
+    /// Whether the stat needs the histogram.
+    pub fn is_percentile(self) -> bool {
+        matches!(self, Stat::P50 | Stat::P95 | Stat::P99)
+    }
+}
+
+/// How run statistics compute percentiles (`[report]` in the config).
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct StatsParams {
+    /// values per metric kept for exact percentiles
+    pub exact_values: usize,
+    /// significant digits of the fallback histogram
+    pub histogram_digits: u8,
+}
+
+const SLOTS: usize = Role::ALL.len() + 1;
+
+/// Per-metric (and per-role) run statistics.
+#[derive(Debug, Clone)]
+pub struct RunStats {
+    slots: Vec<Option<Summary>>,
+    cap: usize,
+    digits: u8,
+    /// Samples whose value was not a finite number, dropped before anything saw them.
+    pub non_finite: u64,
+}
+
+impl RunStats {
+    /// Empty statistics with the given percentile settings.
+    pub fn new(p: &StatsParams) -> RunStats {
+        RunStats {
+            slots: vec![None; Metric::ALL.len() * SLOTS],
+            cap: p.exact_values,
+            digits: p.histogram_digits,
+            non_finite: 0,
+        }
+    }
+
+    fn slot(metric: Metric, role: Option<Role>) -> usize {
+        metric as usize * SLOTS + role.map_or(0, |r| r.index() + 1)
+    }
+
+    /// Adds samples.
+    pub fn add(&mut self, samples: &[Sample]) {
+        for s in samples {
+            let (cap, digits) = (self.cap, self.digits);
+            self.slots[Self::slot(s.metric, s.role)]
+                .get_or_insert_with(|| Summary::new(cap, digits))
+                .add(s.value);
+        }
+    }
+
+    /// Statistics of one metric, if it has values.
+    pub fn get(&self, metric: Metric, role: Option<Role>) -> Option<Stats> {
+        self.slots[Self::slot(metric, role)].as_ref().and_then(Summary::stats)
+    }
+
+    /// One statistic of the run (exact mean, min, max, count, last).
+    pub fn stat(&self, metric: Metric, role: Option<Role>, stat: Stat) -> Option<f64> {
+        let s = self.slots[Self::slot(metric, role)].as_ref()?;
+        let st = s.stats()?;
+        Some(match stat {
+            Stat::Count => st.count as f64,
+            Stat::Mean => st.mean,
+            Stat::Min => st.min,
+            Stat::Max => st.max,
+            Stat::P50 => st.p50,
+            Stat::P95 => st.p95,
+            Stat::P99 => st.p99,
+            Stat::Last => s.last()?,
+        })
+    }
+
+    /// Count, mean, min and max of a metric without computing percentiles (cheap).
+    pub fn basic(&self, metric: Metric, role: Option<Role>) -> Option<(u64, f64, f64, f64)> {
+        self.slots[Self::slot(metric, role)].as_ref().and_then(Summary::basic)
+    }
+
+    /// Whether every percentile so far is exact.
+    pub fn all_exact(&self) -> bool {
+        self.slots.iter().flatten().all(Summary::is_exact)
+    }
+}
+
 /// Scale of the histogram: values are stored in units of 1e-6.
 const SCALE: f64 = 1e6;
 

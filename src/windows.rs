@@ -43,57 +43,7 @@ pub struct WindowStats {
     pub last: f64,
 }
 
-/// Which statistic a rule reads.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Stat {
-    /// count
-    Count,
-    /// mean
-    Mean,
-    /// min
-    Min,
-    /// max
-    Max,
-    /// p50
-    P50,
-    /// p95
-    P95,
-    /// p99
-    P99,
-    /// last
-    Last,
-}
-
-impl Stat {
-    /// Every stat name.
-    pub const NAMES: [&'static str; 8] = ["count", "mean", "min", "max", "p50", "p95", "p99", "last"];
-
-    /// Parses a stat name.
-    pub fn from_name(s: &str) -> Option<Stat> {
-        Some(match s {
-            "count" => Stat::Count,
-            "mean" => Stat::Mean,
-            "min" => Stat::Min,
-            "max" => Stat::Max,
-            "p50" => Stat::P50,
-            "p95" => Stat::P95,
-            "p99" => Stat::P99,
-            "last" => Stat::Last,
-            _ => return None,
-        })
-    }
-
-    /// The stat's name.
-    pub fn name(self) -> &'static str {
-        Stat::NAMES[self as usize]
-    }
-
-    /// Whether the stat needs the histogram.
-    pub fn is_percentile(self) -> bool {
-        matches!(self, Stat::P50 | Stat::P95 | Stat::P99)
-    }
-}
+pub use crate::stats::Stat;
 
 impl WindowStats {
     /// One statistic.

@@ -225,9 +225,9 @@ fn plan_jobs_run_beside_the_engine_give_the_inline_samples() {
     let cfg = Config::defaults();
     let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl");
     let (_, replayed) = shipped_samples();
-    let mut m = Monitor::new(&cfg);
+    let mut m = Monitor::new(&cfg.monitor());
     let (mut inline, mut events) = (Vec::new(), Vec::new());
-    read_all(&cfg, &path, &mut |item, _| {
+    read_all(&cfg.log(), &path, &mut |item, _| {
         let input = match item {
             Item::Record { role, rec } => Input::Message { role, recv: rec.recv, msg: rec.msg },
             Item::Bad { role, reason, .. } => Input::Rejected { role, reason: reason.code() },

@@ -26,8 +26,8 @@ fn line<'a>(snap: &'a plumbline::dashboard::Snapshot, chart: &str, metric: &str)
 #[test]
 fn rows_read_the_shortest_window_and_gaps_stay_null() {
     let cfg = Config::defaults(); // windows 1 s, 10 s, 60 s
-    let mut m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), &cfg);
+    let mut m = Monitor::new(&cfg.monitor());
+    let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
     let (mut s, mut e) = (Vec::new(), Vec::new());
     d.tick(100.0, &m); // row 1: nothing yet
     let extra = [sample(100.2, Metric::Gospa, 1.0), sample(100.4, Metric::Gospa, 3.0)];
@@ -60,8 +60,8 @@ fn rows_read_the_shortest_window_and_gaps_stay_null() {
 #[test]
 fn the_ring_keeps_history_over_step_rows() {
     let cfg = Config::defaults();
-    let m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), &cfg);
+    let m = Monitor::new(&cfg.monitor());
+    let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
     for k in 0..50 {
         d.tick(k as f64 * 0.5, &m);
     }
@@ -77,8 +77,8 @@ fn the_ring_keeps_history_over_step_rows() {
 #[test]
 fn tiles_go_from_no_data_to_ok_to_stale() {
     let cfg = Config::defaults();
-    let m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), &cfg);
+    let m = Monitor::new(&cfg.monitor());
+    let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
     d.observe(10.0, &[], &[]);
     let tile = |d: &Dashboard| d.snapshot(&m).tiles.into_iter().find(|t| t.metric == "gospa").unwrap();
     assert_eq!(tile(&d).state, "no_data");
@@ -112,8 +112,8 @@ fn event(kind: &'static str, t: f64) -> AlertEvent {
 #[test]
 fn an_alert_is_active_from_raise_to_clear() {
     let cfg = Config::defaults();
-    let m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), &cfg);
+    let m = Monitor::new(&cfg.monitor());
+    let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
     d.observe(50.0, &[], &[event("raised", 49.9)]);
     d.observe(53.0, &[], &[]);
     let snap = d.snapshot(&m);
@@ -138,8 +138,8 @@ fn an_alert_is_active_from_raise_to_clear() {
 #[test]
 fn topic_rate_and_state_follow_the_monitor_clock() {
     let cfg = Config::defaults();
-    let mut m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), &cfg);
+    let mut m = Monitor::new(&cfg.monitor());
+    let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
     let (mut s, mut e) = (Vec::new(), Vec::new());
     // 10 Hz estimated poses for 3 s, ticking every 0.5 s.
     for k in 0..=30 {
@@ -173,8 +173,8 @@ fn topic_rate_and_state_follow_the_monitor_clock() {
 #[test]
 fn the_header_and_the_alerts_say_when_the_input_is_stale() {
     let cfg = Config::defaults();
-    let mut m = Monitor::new(&cfg);
-    let mut d = Dashboard::new(params(), &cfg);
+    let mut m = Monitor::new(&cfg.monitor());
+    let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
     let (mut s, mut e) = (Vec::new(), Vec::new());
     assert_eq!(d.snapshot(&m).input, "no_data");
     for k in 0..10 {

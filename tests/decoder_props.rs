@@ -5,7 +5,8 @@
 
 use plumbline::config::Config;
 use plumbline::logio::{read_bytes, Form, Item, LogRecord, LogWriter};
-use plumbline::msg::{decode_json, decode_postcard, validate, Limits, MsgKind};
+use plumbline::msg::{decode_json, validate, Limits, MsgKind};
+use plumbline::wire::decode_postcard;
 use proptest::prelude::*;
 
 const KINDS: [MsgKind; 4] = [MsgKind::Objects, MsgKind::Pose, MsgKind::Path, MsgKind::Obstacles];
@@ -21,9 +22,9 @@ fn tally(form: Form, bytes: &[u8]) -> (usize, usize) {
     let limits = Limits::default();
     let (mut ok, mut bad) = (0, 0);
     // What is accepted is scored, and every value that comes out is finite.
-    let mut monitor = plumbline::monitor::Monitor::new(&cfg);
+    let mut monitor = plumbline::monitor::Monitor::new(&cfg.monitor());
     let (mut samples, mut events) = (Vec::new(), Vec::new());
-    let _ = read_bytes(&cfg, form, bytes, &mut |item, _| match item {
+    let _ = read_bytes(&cfg.log(), form, bytes, &mut |item, _| match item {
         Item::Record { role, rec } => {
             assert!(validate(&rec.msg, &limits).is_ok(), "a record that fails validation got through");
             let input = plumbline::core::Input::Message { role, recv: rec.recv, msg: rec.msg };
@@ -111,10 +112,10 @@ fn binary_head() -> Vec<u8> {
             let cfg = Config::defaults();
             let dir = tempfile::tempdir().unwrap();
             let p = dir.path().join("head.plb");
-            let mut w = LogWriter::create(&cfg, &p).unwrap();
+            let mut w = LogWriter::create(&cfg.log(), &p).unwrap();
             let text = shipped_head(60).join("\n") + "\n";
             let mut recs: Vec<LogRecord> = Vec::new();
-            read_bytes(&cfg, Form::Jsonl, text.as_bytes(), &mut |item, _| {
+            read_bytes(&cfg.log(), Form::Jsonl, text.as_bytes(), &mut |item, _| {
                 if let Item::Record { rec, .. } = item {
                     recs.push(rec)
                 }

@@ -10,7 +10,8 @@ use std::path::Path;
 use plumbline::config::Config;
 use plumbline::core::Sample;
 use plumbline::logio::jsonl::decode_line;
-use plumbline::msg::{decode_json, decode_postcard, Limits, Msg, MsgKind, Obstacle, ObstacleSet, Shape};
+use plumbline::msg::{decode_json, Limits, Msg, MsgKind, Obstacle, ObstacleSet, Shape};
+use plumbline::wire::decode_postcard;
 use support::{repo, run};
 
 fn shipped_lines() -> Vec<String> {
@@ -79,13 +80,13 @@ fn arrays_where_the_contract_has_objects_are_wrong_type() {
     // In a log, with the role named, both decoders agree.
     let cfg = Config::defaults();
     let line = br#"{"key":"rig/estimate/ego","recv":1.0,"msg":[0.9, 1.0, 2.0, 0.1]}"#;
-    let (role, e) = decode_line(&cfg, &cfg.limits(), line).unwrap_err();
+    let (role, e) = decode_line(&cfg.log(), &cfg.limits(), line).unwrap_err();
     assert_eq!((role.map(|r| r.name()), e.code()), (Some("estimate/ego"), "wrong_type"));
     let line = br#"{"key":"rig/reference/objects","recv":1.0,"msg":{"stamp":1,"objects":[[1,2.0,3.0]]}}"#;
-    let (role, e) = decode_line(&cfg, &cfg.limits(), line).unwrap_err();
+    let (role, e) = decode_line(&cfg.log(), &cfg.limits(), line).unwrap_err();
     assert_eq!((role.map(|r| r.name()), e.code()), (Some("reference/objects"), "wrong_type"));
     // A whole record as an array is wrong_type too.
-    let (_, e) = decode_line(&cfg, &cfg.limits(), br#"["rig/estimate/ego", 1.0, {}]"#).unwrap_err();
+    let (_, e) = decode_line(&cfg.log(), &cfg.limits(), br#"["rig/estimate/ego", 1.0, {}]"#).unwrap_err();
     assert_eq!(e.code(), "wrong_type");
 }
 
@@ -120,7 +121,7 @@ fn a_bad_recv_is_counted_against_the_keys_role() {
         br#"{"recv":[1],"key":"rig/estimate/ego","msg":{"stamp":1,"x":0,"y":0,"yaw":0}}"#,
         br#"{"key":"rig/estimate/ego","recv":2e10,"msg":{"stamp":1,"x":0,"y":0,"yaw":0}}"#,
     ] {
-        let (role, e) = decode_line(&cfg, &cfg.limits(), line).unwrap_err();
+        let (role, e) = decode_line(&cfg.log(), &cfg.limits(), line).unwrap_err();
         assert_eq!(role.map(|r| r.name()), Some("estimate/ego"), "{}: {e}", String::from_utf8_lossy(line));
     }
 }

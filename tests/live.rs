@@ -191,7 +191,7 @@ fn kill_9_of_the_recorder_leaves_a_log_that_replays_to_the_last_flush() {
     let _ = w.child.wait();
     let cfg = Config::defaults();
     let mut n = 0;
-    let out = plumbline::logio::read_all(&cfg, &rec, &mut |item, _| {
+    let out = plumbline::logio::read_all(&cfg.log(), &rec, &mut |item, _| {
         if let plumbline::logio::Item::Record { .. } = item {
             n += 1;
         }
@@ -712,7 +712,7 @@ fn wildcard_puts_and_unknown_encodings_are_counted_not_used() {
     assert_eq!(r["transport"]["estimate/ego"]["decode_errors"], 4, "the old name, kept for this release");
     // The recording holds the one good message only.
     let mut n = 0;
-    plumbline::logio::read_all(&Config::defaults(), &rec, &mut |item, _| {
+    plumbline::logio::read_all(&Config::defaults().log(), &rec, &mut |item, _| {
         if let plumbline::logio::Item::Record { rec, .. } = item {
             assert_eq!(rec.key, "rig/reference/ego");
             n += 1;

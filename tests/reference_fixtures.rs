@@ -1,7 +1,7 @@
 //! Checks against fixtures made by tests/reference/gen_fixtures.py from general-purpose
 //! reference libraries (scipy, numpy). The fixtures are committed; Python is not needed here.
 
-use plumbline::core::assign::{Assigner, ShortestPath};
+use plumbline::metrics::assign::{Assigner, ShortestPath};
 use plumbline::metrics::{gospa_ospa, nees::interval95};
 use plumbline::stats::Summary;
 use serde_json::Value;

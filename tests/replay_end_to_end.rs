@@ -70,8 +70,8 @@ fn jsonl_and_binary_forms_give_the_same_report() {
 }
 
 fn convert(cfg: &Config, from: &Path, to: &Path) {
-    let mut w = LogWriter::create(cfg, to).unwrap();
-    read_all(cfg, from, &mut |item, _| {
+    let mut w = LogWriter::create(&cfg.log(), to).unwrap();
+    read_all(&cfg.log(), from, &mut |item, _| {
         if let Item::Record { rec, .. } = item {
             w.write(&rec).unwrap();
         }
@@ -82,7 +82,7 @@ fn convert(cfg: &Config, from: &Path, to: &Path) {
 
 fn records(cfg: &Config, p: &Path) -> Vec<plumbline::logio::LogRecord> {
     let mut v = Vec::new();
-    read_all(cfg, p, &mut |item, _| {
+    read_all(&cfg.log(), p, &mut |item, _| {
         if let Item::Record { rec, .. } = item {
             v.push(rec);
         }
@@ -134,7 +134,7 @@ fn random_bit_flips_lose_only_the_records_they_hit() {
     assert_eq!(u16::from_le_bytes([full[8], full[9]]), 2, "the shipped log is format 2");
     // Every record with its byte offset, from the undamaged file.
     let mut all = Vec::new();
-    read_all(&cfg, &shipped, &mut |item, _| {
+    read_all(&cfg.log(), &shipped, &mut |item, _| {
         if let Item::Record { rec, .. } = item {
             all.push(rec);
         }
@@ -152,7 +152,7 @@ fn random_bit_flips_lose_only_the_records_they_hit() {
         let damaged = dir.path().join(format!("flipped-{seed}.plb"));
         std::fs::write(&damaged, &bad).unwrap();
         let mut kept = Vec::new();
-        read_all(&cfg, &damaged, &mut |item, _| {
+        read_all(&cfg.log(), &damaged, &mut |item, _| {
             if let Item::Record { rec, .. } = item {
                 kept.push(rec);
             }

@@ -135,7 +135,7 @@ fn a_breach_shorter_than_sustain_never_raises_and_hysteresis_holds() {
     let times: Vec<(&str, f64)> = ev.iter().map(|e| (e.kind, e.t)).collect();
     assert_eq!(times.len(), 2, "{times:?}");
     assert!((times[0].1 - 0.5).abs() < 1e-9 && (times[1].1 - 2.0).abs() < 1e-9, "{times:?}");
-    let run_stats = plumbline::report::RunStats::new(&cfg);
+    let run_stats = plumbline::report::RunStats::new(&cfg.report);
     let v = rules.verdicts(&run_stats);
     assert_eq!(v[0].verdict, "fail");
     assert_eq!(v[0].worst, Some(9.0));
@@ -171,7 +171,7 @@ fn min_values_holds_judgement_until_the_window_has_warmed_up() {
         (0..200).map(|k| (k as f64 / 10.0, if k == 0 { 12.0 } else { 1.0 })).collect();
     let (ev, rules) = run(&rules_config(rule), Metric::Gospa, &stream);
     assert_eq!(ev.first().map(|e| e.kind), Some("raised"), "without a warm-up the first value alone raises");
-    let stats = plumbline::report::RunStats::new(&rules_config(rule));
+    let stats = plumbline::report::RunStats::new(&rules_config(rule).report);
     assert_eq!(rules.verdicts(&stats)[0].worst, Some(12.0));
     let warm = format!("{rule}min_values = 50\n");
     let (ev, rules) = run(&rules_config(&warm), Metric::Gospa, &stream);
@@ -194,7 +194,7 @@ fn magnitude_rules_judge_both_signs() {
     let both = format!("{rule}magnitude = true\n");
     let (ev, rules) = run(&rules_config(&both), Metric::EgoHeadingError, &stream);
     assert_eq!(ev.first().map(|e| (e.kind, e.value)), Some(("raised", 0.2)), "{ev:?}");
-    let stats = plumbline::report::RunStats::new(&rules_config(&both));
+    let stats = plumbline::report::RunStats::new(&rules_config(&both).report);
     assert_eq!(rules.verdicts(&stats)[0].worst, Some(0.2));
     // Only where the window's statistics give |value| exactly.
     let bad = rule.replace("\"max\"", "\"p95\"") + "magnitude = true\n";

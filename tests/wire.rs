@@ -178,16 +178,17 @@ fn varint_edges_match_postcard() {
 
 use plumbline::config::Config;
 use plumbline::logio::jsonl::{decode_line_serde, format_line};
+use plumbline::logio::LogParams;
 use plumbline::msg::{validate, Limits, Role};
 
-fn role_of(cfg: &Config) -> impl Fn(&str) -> Option<Role> + '_ {
+fn role_of(cfg: &LogParams) -> impl Fn(&str) -> Option<Role> + '_ {
     move |k| plumbline::logio::role_for(cfg, &[], k)
 }
 
 /// Both readers on one line, each followed by validation as `decode_line` does: when the
 /// direct one reads the line, serde_json reads it too, to the same record (bit for bit, so
 /// -0.0 and 0.0 differ) or the same rejection.
-fn agree(cfg: &Config, line: &[u8]) -> Option<bool> {
+fn agree(cfg: &LogParams, line: &[u8]) -> Option<bool> {
     let limits = Limits { max_objects: usize::MAX, ..Limits::default() };
     let fast = wire::json::record(line, role_of(cfg))?;
     let slow = decode_line_serde(cfg, &limits, line);
@@ -212,7 +213,7 @@ fn every_line_of_the_shipped_log_is_read_directly_and_equally() {
     let text = std::fs::read_to_string(p).unwrap();
     let (mut direct, mut declined) = (0, 0);
     for line in text.lines() {
-        match agree(&cfg, line.as_bytes()) {
+        match agree(&cfg.log(), line.as_bytes()) {
             Some(true) => direct += 1,
             Some(false) => panic!("the readers differ on {line}"),
             None => declined += 1,
@@ -359,8 +360,8 @@ proptest! {
     #[test]
     fn json_lines_read_as_serde_json_reads_them(line in line_json()) {
         let cfg = Config::defaults();
-        let slow_ok = decode_line_serde(&cfg, &Limits { max_objects: usize::MAX, ..Limits::default() }, line.as_bytes()).is_ok();
-        match agree(&cfg, line.as_bytes()) {
+        let slow_ok = decode_line_serde(&cfg.log(), &Limits { max_objects: usize::MAX, ..Limits::default() }, line.as_bytes()).is_ok();
+        match agree(&cfg.log(), line.as_bytes()) {
             Some(same) => prop_assert!(same, "the readers differ on {}", line),
             None => prop_assert!(!slow_ok, "a well-formed line left to serde: {}", line),
         }
@@ -384,7 +385,7 @@ proptest! {
                 _ => bytes.insert(at, b),
             }
         }
-        if let Some(same) = agree(&cfg, &bytes) {
+        if let Some(same) = agree(&cfg.log(), &bytes) {
             prop_assert!(same);
         }
     }
@@ -422,8 +423,8 @@ fn json_number_edges_read_as_serde_json_reads_them() {
     ] {
         let line =
             format!("{{\"key\":\"rig/reference/ego\",\"msg\":{{\"stamp\":{n},\"x\":0,\"y\":0,\"yaw\":0}}}}");
-        let slow_ok = decode_line_serde(&cfg, &Limits::default(), line.as_bytes()).is_ok();
-        match agree(&cfg, line.as_bytes()) {
+        let slow_ok = decode_line_serde(&cfg.log(), &Limits::default(), line.as_bytes()).is_ok();
+        match agree(&cfg.log(), line.as_bytes()) {
             Some(same) => assert!(same, "{n}"),
             None => assert!(!slow_ok, "{n} left to serde"),
         }

@@ -244,7 +244,7 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
             }
         }
     }
-    let agg = aggregate(cfg, &runs, unreadable);
+    let agg = aggregate(&cfg.rules, &cfg.digest(), &runs, unreadable);
     outln!(
         "campaign of {} runs ({} unreadable, {} with nothing evaluated, {} damaged: counted as failures), {} with a critical failure",
         agg.runs,
@@ -287,7 +287,7 @@ pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
             return super::fail("campaign", format!("{}: {e}", p.display()));
         }
     }
-    let code = crate::campaign::exit_code(cfg, &agg, a.max_failure_rate);
+    let code = crate::campaign::exit_code(&cfg.rules, &agg, a.max_failure_rate);
     match (code, a.max_failure_rate) {
         (2, _) => errln!("plumbline campaign: no run holds an evaluated step"),
         (1, Some(r)) => {

@@ -16,7 +16,7 @@ pub struct Args {
 
 /// Runs the command.
 pub fn run(cfg: &Config, a: &Args) -> u8 {
-    let mut w = match LogWriter::create(cfg, &a.output) {
+    let mut w = match LogWriter::create(&cfg.log(), &a.output) {
         Ok(w) => w,
         Err(e) => {
             errln!("plumbline convert: {}: {e}", a.output.display());
@@ -25,7 +25,7 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     };
     let (mut n, mut bad) = (0u64, 0u64);
     let mut err = None;
-    let read = read_all(cfg, &a.input, &mut |item, _| match item {
+    let read = read_all(&cfg.log(), &a.input, &mut |item, _| match item {
         Item::Record { rec, .. } => {
             if err.is_none() {
                 if let Err(e) = w.write(&rec) {

@@ -343,7 +343,7 @@ fn demo_stack(cfg: &Config, session: &zenoh::Session, stop: &AtomicBool, seed: u
     for k in 0.. {
         let p = ScenarioParams { seed: seed + k, duration: lap, ..Default::default() };
         let offset = start + k as f64 * lap;
-        for mut rec in generate(cfg, &p) {
+        for mut rec in generate(&cfg.roles, &p) {
             if stop.load(Ordering::SeqCst) {
                 return;
             }

@@ -96,14 +96,14 @@ pub struct SchemaArgs {
 /// Runs `schema`: the schemas with the config's role keys and limits.
 fn schema_cmd(cfg: &Config, a: &SchemaArgs) -> u8 {
     let v = match &a.name {
-        Some(n) => match crate::schema::by_name(cfg, n) {
+        Some(n) => match crate::schema::by_name(&cfg.limits(), &cfg.roles, n) {
             Some(v) => v,
             None => return fail("schema", format!("`{n}`: one of {}", crate::schema::NAMES.join(", "))),
         },
         None => serde_json::Value::Object(
             crate::schema::NAMES
                 .iter()
-                .filter_map(|n| Some((n.to_string(), crate::schema::by_name(cfg, n)?)))
+                .filter_map(|n| Some((n.to_string(), crate::schema::by_name(&cfg.limits(), &cfg.roles, n)?)))
                 .collect(),
         ),
     };

@@ -56,8 +56,8 @@ pub fn run(cfg: &Config, a: &Args) -> u8 {
     if let Some(n) = a.runs {
         return family(cfg, a, &p, n);
     }
-    let records = generate(cfg, &p);
-    let mut w = match crate::logio::LogWriter::create(cfg, &a.out) {
+    let records = generate(&cfg.roles, &p);
+    let mut w = match crate::logio::LogWriter::create(&cfg.log(), &a.out) {
         Ok(w) => w,
         Err(e) => {
             errln!("plumbline scenario: {}: {e}", a.out.display());
@@ -101,14 +101,14 @@ fn family(cfg: &Config, a: &Args, base: &ScenarioParams, n: usize) -> u8 {
             ..base.clone()
         };
         let path = a.out.join(format!("run-{i:04}.{}", a.format));
-        let mut w = match crate::logio::LogWriter::create(cfg, &path) {
+        let mut w = match crate::logio::LogWriter::create(&cfg.log(), &path) {
             Ok(w) => w,
             Err(e) => {
                 errln!("plumbline scenario: {}: {e}", path.display());
                 return super::EXIT_INPUT;
             }
         };
-        for r in generate(cfg, &p) {
+        for r in generate(&cfg.roles, &p) {
             if let Err(e) = w.write(&r) {
                 errln!("plumbline scenario: {}: {e}", path.display());
                 return super::EXIT_INPUT;

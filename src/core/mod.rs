@@ -5,7 +5,6 @@
 //! they give the same numbers for the same input.
 
 pub mod align;
-pub mod assign;
 pub mod engine;
 
 use serde::Serialize;
@@ -52,7 +51,7 @@ pub struct TrackingParams {
     /// forget ids unseen this long (s)
     pub forget_after: f64,
     /// Largest assignment component (rows x columns) solved exactly; a larger one, or a
-    /// step with more candidate pairs than [`crate::core::assign::MAX_EDGES_PER_CELL`]
+    /// step with more candidate pairs than [`crate::metrics::assign::MAX_EDGES_PER_CELL`]
     /// times this, is assigned greedily (a valid upper bound, counted as `approximate`).
     pub exact_cells: usize,
 }

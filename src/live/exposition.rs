@@ -11,7 +11,7 @@ use crate::metrics::Metric;
 use crate::monitor::Monitor;
 use crate::msg::Role;
 use crate::rules::AlertEvent;
-use crate::windows::Stat;
+use crate::stats::Stat;
 
 pub use crate::metrics::catalog::{prom_histogram_name, prom_name};
 

@@ -72,7 +72,7 @@ pub fn run(
     let mut n = 0u64;
     let mut err = None;
     let tag = super::zenoh_io::source_tag(session);
-    read_all(cfg, log, &mut |item, _| {
+    read_all(&cfg.log(), log, &mut |item, _| {
         let Item::Record { mut rec, .. } = item else { return };
         if err.is_some() || stop.load(Ordering::SeqCst) {
             return;

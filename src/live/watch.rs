@@ -251,7 +251,7 @@ pub fn run(
     let mut recorder = match &opts.record {
         None => None,
         Some(p) => Some(
-            plb::create(p, &plb::Header::for_config(cfg, wall_now()))
+            plb::create(p, &plb::Header::for_config(&cfg.log(), wall_now()))
                 .map_err(|e| format!("{}: {e}", p.display()))?,
         ),
     };
@@ -259,12 +259,13 @@ pub fn run(
         None => None,
         Some(p) => Some(Journal::open(p).map_err(|e| format!("{}: {e}", p.display()))?),
     };
-    let mut monitor = Monitor::new(cfg);
-    let mut dashboard = Dashboard::new(cfg.dashboard, cfg);
+    let mut monitor = Monitor::new(&cfg.monitor());
+    let mut dashboard = Dashboard::new(cfg.dashboard, &cfg.windows, &cfg.window_labels, cfg.tracking.order);
     let snapshot_every = 1.0 / cfg.dashboard.rate_hz;
     let mut last_snapshot: Option<Instant> = None;
     let (mut samples, mut events) = (Vec::new(), Vec::new());
-    if let Some(map) = crate::replay::load_map(cfg).map_err(|e| e.to_string())? {
+    if let Some(path) = &cfg.map_file {
+        let map = crate::logio::read_map(path, &cfg.limits()).map_err(|e| e.to_string())?;
         monitor.push(map, &mut samples, &mut events);
     }
     let mut first_bad = Vec::new();
@@ -336,7 +337,7 @@ pub fn run(
                         Err(reason) => {
                             n_bad += 1;
                             tracing::warn!(role = role.name(), reason = %reason, "rejected message");
-                            if first_bad.len() < crate::replay::KEEP_BAD {
+                            if first_bad.len() < crate::logio::KEEP_BAD {
                                 first_bad.push(BadRecord {
                                     at: format!("message {n_bad}"),
                                     role: Some(role.name()),
@@ -498,7 +499,7 @@ pub fn run(
         tail: None,
         damage: Default::default(),
     };
-    let report = Report::build(cfg, &monitor, inputs);
+    let report = Report::build(&cfg.report_settings(), &monitor, inputs);
     if let Some(p) = &opts.report {
         std::fs::write(p, report.to_json()).map_err(|e| format!("{}: {e}", p.display()))?;
     }

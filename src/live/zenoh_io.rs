@@ -6,7 +6,8 @@ use zenoh::Wait;
 
 use crate::config::Config;
 use crate::logio::LogRecord;
-use crate::msg::{decode_json, decode_postcard, Msg, Reject, Role};
+use crate::msg::{decode_json, Msg, Reject, Role};
+use crate::wire::decode_postcard;
 
 /// The schema that marks the project's postcard encoding.
 pub const POSTCARD_SCHEMA: &str = "plumbline-postcard";

@@ -10,7 +10,7 @@ use std::io::Read;
 
 use sha2::{Digest, Sha256};
 
-use super::Tail;
+use super::{Damage, Tail};
 
 /// Bytes read per block.
 pub const BLOCK: usize = 256 << 10;
@@ -34,21 +34,6 @@ pub struct Chunk {
 /// The marker that starts every record of a format-2 binary log: after damage, the
 /// reader finds the next record by it (and its length and checksum).
 pub const SYNC: [u8; 4] = [0xA7, b'p', b'l', b'r'];
-
-/// A damaged stretch of a binary log that the reader skipped to reach the next whole
-/// record.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
-pub struct Damage {
-    /// Byte offset where the damage starts.
-    pub offset: u64,
-    /// Bytes skipped.
-    pub bytes: u64,
-    /// Records lost in it (the damaged one, and record starts inside the stretch that did
-    /// not verify).
-    pub records: u64,
-    /// What was found at `offset`.
-    pub reason: String,
-}
 
 /// What a framer yields.
 #[derive(Debug)]

@@ -11,8 +11,8 @@ use serde::Deserialize;
 use serde_json::value::RawValue;
 
 use super::chunks::{Chunk, Frame, LineFramer, MAX_LINE};
+use super::LogParams;
 use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome};
-use crate::config::Config;
 use crate::msg::{
     self, check_recv, decode_json, strict, validate, Limits, Msg, MsgKind, ObjectSet, ObstacleSet, Pose,
     Reject, Role,
@@ -63,7 +63,7 @@ enum Body<'a> {
 /// One pass over a line: when `key` comes before `msg` (as plumbline writes it) the
 /// message is decoded straight into its type; otherwise it is kept raw and decoded after.
 struct LineSeed<'c> {
-    cfg: &'c Config,
+    cfg: &'c LogParams,
     /// Set while a bound message is being decoded, so an error can name its role.
     decoding: &'c Cell<Option<Role>>,
 }
@@ -115,7 +115,7 @@ impl<'de> Visitor<'de> for LineSeed<'_> {
 
 /// Decodes one line (without its newline).
 pub fn decode_line(
-    cfg: &Config,
+    cfg: &LogParams,
     limits: &Limits,
     line: &[u8],
 ) -> Result<(Role, LogRecord), (Option<Role>, Reject)> {
@@ -133,7 +133,7 @@ pub fn decode_line(
 
 /// [`decode_line`] by serde_json alone (the reference the direct reader is tested against).
 pub fn decode_line_serde(
-    cfg: &Config,
+    cfg: &LogParams,
     limits: &Limits,
     line: &[u8],
 ) -> Result<(Role, LogRecord), (Option<Role>, Reject)> {
@@ -167,7 +167,7 @@ pub fn decode_line_serde(
 
 /// The role of a rejected line whose key is readable: a second, lenient pass that reads
 /// only `key` and skips every other field whatever its type (the error path only).
-fn key_role(cfg: &Config, text: &str) -> Option<Role> {
+fn key_role(cfg: &LogParams, text: &str) -> Option<Role> {
     #[derive(Deserialize)]
     struct KeyOnly<'a> {
         #[serde(borrow)]
@@ -178,7 +178,7 @@ fn key_role(cfg: &Config, text: &str) -> Option<Role> {
 }
 
 /// Decodes a chunk of whole lines.
-pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<Item>) {
+pub fn decode_chunk(cfg: &LogParams, limits: &Limits, chunk: &Chunk, out: &mut Vec<Item>) {
     // Lines with their newline, as `split_inclusive` cuts them, found by memchr.
     let bytes = &chunk.bytes;
     let (mut start, mut line_no) = (0, chunk.first);
@@ -199,7 +199,7 @@ pub fn decode_chunk(cfg: &Config, limits: &Limits, chunk: &Chunk, out: &mut Vec<
 }
 
 /// Reads a JSON Lines log on the calling thread.
-pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
+pub fn read(cfg: &LogParams, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
     let f = File::open(path).map_err(io_err(path))?;
     read_from(cfg, f, each).map_err(io_err(path))
 }
@@ -207,7 +207,7 @@ pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Resul
 /// Reads JSON Lines from any reader: the file reader above, and in-memory bytes for the
 /// fuzz targets and property tests.
 pub fn read_from(
-    cfg: &Config,
+    cfg: &LogParams,
     r: impl Read,
     each: &mut dyn FnMut(Item, u64),
 ) -> std::io::Result<ReadOutcome> {
@@ -225,7 +225,7 @@ pub fn read_from(
 }
 
 /// Decodes one frame into items; returns the file offset past it.
-pub fn decode_frame(cfg: &Config, limits: &Limits, frame: Frame, out: &mut Vec<Item>) -> u64 {
+pub fn decode_frame(cfg: &LogParams, limits: &Limits, frame: Frame, out: &mut Vec<Item>) -> u64 {
     match frame {
         Frame::Chunk(c) => {
             decode_chunk(cfg, limits, &c, out);

@@ -6,43 +6,13 @@ pub mod journal;
 pub mod jsonl;
 pub mod plb;
 
-pub use chunks::Damage;
+pub use crate::msg::record::{Damage, LogRecord, Position, Tail};
 
 use std::path::Path;
 
 use thiserror::Error;
 
-use crate::config::Config;
-use crate::msg::{Msg, Reject, Role};
-
-/// One record as stored: key expression, arrival time, message.
-#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct LogRecord {
-    /// Key expression the message arrived on.
-    pub key: String,
-    /// Arrival time on the monitor's clock.
-    pub recv: Option<f64>,
-    /// The message.
-    pub msg: Msg,
-}
-
-/// Where a record sits in its file.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Position {
-    /// 1-based line of a JSON Lines file.
-    Line(u64),
-    /// Byte offset of a binary record.
-    Offset(u64),
-}
-
-impl std::fmt::Display for Position {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            Position::Line(n) => write!(f, "line {n}"),
-            Position::Offset(n) => write!(f, "byte {n}"),
-        }
-    }
-}
+use crate::msg::{Limits, Reject, Role};
 
 /// One item read from a log.
 #[derive(Debug, Clone)]
@@ -86,15 +56,48 @@ pub enum LogError {
         /// What was wrong.
         why: String,
     },
+    /// The site-map file is not a valid obstacle set.
+    #[error("site map {path}: {why}")]
+    BadMap {
+        /// The file.
+        path: String,
+        /// What was wrong.
+        why: Reject,
+    },
 }
 
-/// A torn or corrupt tail of a binary log.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
-pub struct Tail {
-    /// Byte offset where the damage starts.
-    pub offset: u64,
-    /// What was found there.
-    pub reason: String,
+/// Reads a site-map file (one ObstacleSet as JSON, `clearance.map_file`) as the input the
+/// monitor takes before the log: the same for replay and live.
+pub fn read_map(path: &str, limits: &Limits) -> Result<crate::core::Input, LogError> {
+    let text = std::fs::read_to_string(path).map_err(|source| LogError::Io { path: path.into(), source })?;
+    let msg = crate::msg::decode_json(crate::msg::MsgKind::Obstacles, &text, limits)
+        .map_err(|why| LogError::BadMap { path: path.into(), why })?;
+    Ok(crate::core::Input::Message { role: Role::ReferenceObstacles, recv: None, msg })
+}
+
+/// First rejected records listed in a report; the rest are counted only.
+pub const KEEP_BAD: usize = 100;
+
+/// What the log readers and writers need of the config: the role bindings (a record's key
+/// to its role) and the message limits (the config builds it: `Config::log`).
+#[derive(Debug, Clone)]
+pub struct LogParams {
+    /// Key expression per role.
+    pub roles: Vec<(Role, String)>,
+    /// Message validation limits.
+    pub limits: Limits,
+}
+
+impl LogParams {
+    /// The role bound to an exact key, if any.
+    pub fn role_of(&self, key: &str) -> Option<Role> {
+        self.roles.iter().find(|(_, k)| k == key).map(|(r, _)| *r)
+    }
+
+    /// Message validation limits.
+    pub fn limits(&self) -> Limits {
+        self.limits
+    }
 }
 
 /// Which form a path holds, by extension.
@@ -117,7 +120,7 @@ impl Form {
 }
 
 /// Resolves a key to a role: the config's bindings first, then the log's own header.
-pub fn role_for(cfg: &Config, header_roles: &[(String, String)], key: &str) -> Option<Role> {
+pub fn role_for(cfg: &LogParams, header_roles: &[(String, String)], key: &str) -> Option<Role> {
     cfg.role_of(key)
         .or_else(|| header_roles.iter().find(|(_, k)| k == key).and_then(|(r, _)| Role::from_name(r)))
 }
@@ -133,7 +136,11 @@ pub struct ReadOutcome {
 
 /// Opens either form and calls `each` for every item, in file order, with the bytes read
 /// so far.
-pub fn read_all(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
+pub fn read_all(
+    cfg: &LogParams,
+    path: &Path,
+    each: &mut dyn FnMut(Item, u64),
+) -> Result<ReadOutcome, LogError> {
     match Form::of(path) {
         Form::Jsonl => jsonl::read(cfg, path, each),
         Form::Plb => plb::read(cfg, path, each),
@@ -142,7 +149,7 @@ pub fn read_all(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> R
 
 /// Reads a log held in memory, in the given form (fuzz targets, property tests).
 pub fn read_bytes(
-    cfg: &Config,
+    cfg: &LogParams,
     form: Form,
     bytes: &[u8],
     each: &mut dyn FnMut(Item, u64),
@@ -168,7 +175,7 @@ pub enum LogWriter {
 
 impl LogWriter {
     /// Creates the file; a binary log's header carries the config's role bindings.
-    pub fn create(cfg: &Config, path: &Path) -> std::io::Result<LogWriter> {
+    pub fn create(cfg: &LogParams, path: &Path) -> std::io::Result<LogWriter> {
         let now = std::time::SystemTime::now()
             .duration_since(std::time::UNIX_EPOCH)
             .map(|d| d.as_secs_f64())

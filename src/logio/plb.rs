@@ -23,8 +23,8 @@ use serde::{Deserialize, Serialize};
 
 pub use super::chunks::SYNC;
 use super::chunks::{Chunk, Frame, RecordFramer};
+use super::LogParams;
 use super::{io_err, role_for, Item, LogError, LogRecord, Position, ReadOutcome, Tail};
-use crate::config::Config;
 use crate::msg::{check_recv, validate, Limits, Reject};
 
 /// File magic.
@@ -47,7 +47,7 @@ pub struct Header {
 
 impl Header {
     /// A header for the given config, stamped `created_unix_s`.
-    pub fn for_config(cfg: &Config, created_unix_s: f64) -> Header {
+    pub fn for_config(cfg: &LogParams, created_unix_s: f64) -> Header {
         Header {
             created_unix_s,
             tool: format!("plumbline {}", env!("CARGO_PKG_VERSION")),
@@ -168,7 +168,7 @@ fn framer<R: Read>(r: R, off: u64, version: u16) -> RecordFramer<R> {
 /// Decodes a chunk of whole records. Returns the tail when a record fails its checksum;
 /// the records after it are not decoded.
 pub fn decode_chunk(
-    cfg: &Config,
+    cfg: &LogParams,
     header_roles: &[(String, String)],
     limits: &Limits,
     chunk: &Chunk,
@@ -194,7 +194,7 @@ pub fn decode_chunk(
 }
 
 fn decode_record(
-    cfg: &Config,
+    cfg: &LogParams,
     header_roles: &[(String, String)],
     limits: &Limits,
     payload: &[u8],
@@ -234,7 +234,7 @@ pub fn open(path: &Path, hash: bool) -> Result<(Header, RecordFramer<File>), Log
 
 /// Decodes one frame into items; returns the file offset past it and the tail, if any.
 pub fn decode_frame(
-    cfg: &Config,
+    cfg: &LogParams,
     header_roles: &[(String, String)],
     limits: &Limits,
     frame: Frame,
@@ -254,7 +254,7 @@ pub fn decode_frame(
 }
 
 /// Reads a binary log on the calling thread.
-pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
+pub fn read(cfg: &LogParams, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Result<ReadOutcome, LogError> {
     let f = File::open(path).map_err(io_err(path))?;
     read_from(cfg, f, path, each)
 }
@@ -262,7 +262,7 @@ pub fn read(cfg: &Config, path: &Path, each: &mut dyn FnMut(Item, u64)) -> Resul
 /// Reads a binary log from any reader (`name` labels errors): the file reader above, and
 /// in-memory bytes for the fuzz targets and property tests.
 pub fn read_from(
-    cfg: &Config,
+    cfg: &LogParams,
     mut r: impl Read,
     name: &Path,
     each: &mut dyn FnMut(Item, u64),

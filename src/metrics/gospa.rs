@@ -16,7 +16,7 @@
 //! Window rule: per evaluation step; windows aggregate the per-step values.
 
 use super::{pow_p, root_p};
-use crate::core::assign::Matching;
+use crate::metrics::assign::Matching;
 
 /// GOSPA at one step.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -64,7 +64,7 @@ pub fn from_matching(m: usize, n: usize, matching: &Matching, c: f64, p: f64, al
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::core::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+    use crate::metrics::assign::{match_with_cutoff, MatchScratch, ShortestPath};
 
     fn gospa(xs: &[[f64; 2]], ys: &[[f64; 2]], c: f64, p: f64, alpha: f64) -> Gospa {
         let m =

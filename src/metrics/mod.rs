@@ -1,6 +1,7 @@
 //! One module per metric family. Each module's note gives the formula, units and source;
 //! a hand-worked test sits beside it. Everything here is pure computation.
 
+pub mod assign;
 pub mod catalog;
 pub mod ego;
 pub mod gospa;
@@ -249,7 +250,7 @@ pub fn root_p(x: f64, p: f64) -> f64 {
 /// GOSPA and OSPA of two point sets in one call (a fresh solver; for tests and tools —
 /// the engine keeps its solver and scratch between steps).
 pub fn gospa_ospa(xs: &[[f64; 2]], ys: &[[f64; 2]], c: f64, p: f64, alpha: f64) -> (gospa::Gospa, f64) {
-    use crate::core::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+    use crate::metrics::assign::{match_with_cutoff, MatchScratch, ShortestPath};
     let m = match_with_cutoff(xs, ys, c, p, true, &mut ShortestPath::default(), &mut MatchScratch::default());
     (
         gospa::from_matching(xs.len(), ys.len(), &m, c, p, alpha),

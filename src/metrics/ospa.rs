@@ -8,7 +8,7 @@
 //! Units: metres. Window rule: per evaluation step.
 
 use super::{pow_p, root_p};
-use crate::core::assign::Matching;
+use crate::metrics::assign::Matching;
 
 /// OSPA from a cutoff matching of `m` references and `n` estimates.
 pub fn from_matching(m: usize, n: usize, matching: &Matching, c: f64, p: f64) -> f64 {
@@ -25,7 +25,7 @@ pub fn from_matching(m: usize, n: usize, matching: &Matching, c: f64, p: f64) ->
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::core::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+    use crate::metrics::assign::{match_with_cutoff, MatchScratch, ShortestPath};
 
     fn ospa(xs: &[[f64; 2]], ys: &[[f64; 2]], c: f64, p: f64) -> f64 {
         let m =

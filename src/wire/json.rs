@@ -18,7 +18,7 @@
 
 use compact_str::CompactString;
 
-use crate::logio::LogRecord;
+use crate::msg::LogRecord;
 use crate::msg::{Frame, Msg, MsgKind, Object, ObjectSet, Pose, Role};
 
 /// Longest number token read here.

@@ -17,8 +17,9 @@ pub mod json;
 
 use compact_str::CompactString;
 
-use crate::logio::LogRecord;
-use crate::msg::{Frame, Msg, Object, ObjectSet, Pose};
+use serde::Deserialize;
+
+use crate::msg::{validate, Frame, Limits, LogRecord, Msg, MsgKind, Object, ObjectSet, Pose, Reject};
 
 /// Smallest encoding of an object: a one-byte id, x, y and seven absent-option tags.
 const MIN_OBJECT_BYTES: usize = 1 + 16 + 7;
@@ -163,6 +164,22 @@ pub fn pose(bytes: &[u8]) -> Option<Pose> {
     Reader { b: bytes, at: 0 }.pose()
 }
 
+/// Decodes a postcard message of the given kind and validates it.
+pub fn decode_postcard(kind: MsgKind, bytes: &[u8], limits: &Limits) -> Result<Msg, Reject> {
+    fn parse<'a, T: Deserialize<'a>>(bytes: &'a [u8]) -> Result<T, Reject> {
+        postcard::from_bytes(bytes).map_err(|e| Reject::Malformed(e.to_string()))
+    }
+    // Object sets and poses by the direct reader when it can (above).
+    let msg = match kind {
+        MsgKind::Objects => Msg::Objects(object_set(bytes).map_or_else(|| parse(bytes), Ok)?),
+        MsgKind::Pose => Msg::Pose(pose(bytes).map_or_else(|| parse(bytes), Ok)?),
+        MsgKind::Path => Msg::Path(parse(bytes)?),
+        MsgKind::Obstacles => Msg::Obstacles(parse(bytes)?),
+    };
+    validate(&msg, limits)?;
+    Ok(msg)
+}
+
 /// Reads a `.plb` record carrying an object set or a pose; `None` for the other kinds and
 /// for anything malformed (the serde path then decides).
 pub fn log_record(bytes: &[u8]) -> Option<LogRecord> {
@@ -176,4 +193,20 @@ pub fn log_record(bytes: &[u8]) -> Option<LogRecord> {
         _ => return None,
     };
     Some(LogRecord { key, recv, msg })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn postcard_round_trip_and_nonfinite_rejected() {
+        let l = Limits::default();
+        let m = Msg::Pose(Pose { stamp: 1.5, x: 1.0, y: 2.0, yaw: 0.5, v: Some(3.0), cov: None });
+        let b = m.to_postcard();
+        assert_eq!(decode_postcard(MsgKind::Pose, &b, &l).unwrap(), m);
+        let bad = Msg::Pose(Pose { stamp: 1.5, x: f64::NAN, y: 2.0, yaw: 0.5, v: None, cov: None });
+        let e = decode_postcard(MsgKind::Pose, &bad.to_postcard(), &l).unwrap_err();
+        assert_eq!(e.code(), "non_finite");
+    }
 }

@@ -641,7 +641,7 @@ mod tests {
         let cfg = Config::defaults();
         let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("replay-logs/campus-loop.jsonl");
         let mut inputs = Vec::new();
-        read_all(&cfg, &path, &mut |item, _| {
+        read_all(&cfg.log(), &path, &mut |item, _| {
             if let Item::Record { role, rec } = item {
                 inputs.push(Input::Message { role, recv: rec.recv, msg: rec.msg });
             }
@@ -684,7 +684,7 @@ mod tests {
         // Plans by stamp: a plan's path quality comes out when its reference is known, and
         // is checked then, against the same reference.
         let mut plans = std::collections::BTreeMap::new();
-        read_all(&cfg, &path, &mut |item, _| {
+        read_all(&cfg.log(), &path, &mut |item, _| {
             let Item::Record { role, rec } = item else { return };
             if let (Role::PlanPath, Msg::Path(p)) = (&role, &rec.msg) {
                 if !p.poses.is_empty() {

@@ -12,8 +12,8 @@ use std::sync::Arc;
 use serde::Serialize;
 
 use super::align::{self, How, Miss, Point, Resolved, Timeline};
-use super::assign::{match_bounded, MatchScratch, ShortestPath};
 use super::{AlignParams, ClearanceParams, EgoSource, TrackingParams};
+use crate::metrics::assign::{match_bounded, MatchScratch, ShortestPath};
 
 mod clearance;
 use crate::metrics::nees::{nees, NeesPool};

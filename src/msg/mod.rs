@@ -8,6 +8,10 @@
 //! This module does no I/O. Decoding returns a [`Reject`] with a stable reason code when a
 //! message is rejected whole.
 
+pub mod record;
+
+pub use record::{Damage, LogRecord, Position, Tail};
+
 use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
@@ -553,22 +557,6 @@ pub fn decode_json(kind: MsgKind, text: &str, limits: &Limits) -> Result<Msg, Re
     Ok(msg)
 }
 
-/// Decodes a postcard message of the given kind and validates it.
-pub fn decode_postcard(kind: MsgKind, bytes: &[u8], limits: &Limits) -> Result<Msg, Reject> {
-    fn parse<'a, T: Deserialize<'a>>(bytes: &'a [u8]) -> Result<T, Reject> {
-        postcard::from_bytes(bytes).map_err(|e| Reject::Malformed(e.to_string()))
-    }
-    // Object sets and poses by the direct reader when it can (see `crate::wire`).
-    let msg = match kind {
-        MsgKind::Objects => Msg::Objects(crate::wire::object_set(bytes).map_or_else(|| parse(bytes), Ok)?),
-        MsgKind::Pose => Msg::Pose(crate::wire::pose(bytes).map_or_else(|| parse(bytes), Ok)?),
-        MsgKind::Path => Msg::Path(parse(bytes)?),
-        MsgKind::Obstacles => Msg::Obstacles(parse(bytes)?),
-    };
-    validate(&msg, limits)?;
-    Ok(msg)
-}
-
 fn finite(name: &str, v: f64) -> Result<(), Reject> {
     if v.is_finite() {
         Ok(())
@@ -834,17 +822,6 @@ mod tests {
         assert_eq!(decode_json(MsgKind::Obstacles, bad, &l).unwrap_err().code(), "bad_obstacle");
         let bad = r#"{"stamp": 0, "obstacles": [{"id": 1, "shape": "blob"}]}"#;
         assert_eq!(decode_json(MsgKind::Obstacles, bad, &l).unwrap_err().code(), "bad_obstacle");
-    }
-
-    #[test]
-    fn postcard_round_trip_and_nonfinite_rejected() {
-        let l = Limits::default();
-        let m = Msg::Pose(Pose { stamp: 1.5, x: 1.0, y: 2.0, yaw: 0.5, v: Some(3.0), cov: None });
-        let b = m.to_postcard();
-        assert_eq!(decode_postcard(MsgKind::Pose, &b, &l).unwrap(), m);
-        let bad = Msg::Pose(Pose { stamp: 1.5, x: f64::NAN, y: 2.0, yaw: 0.5, v: None, cov: None });
-        let e = decode_postcard(MsgKind::Pose, &bad.to_postcard(), &l).unwrap_err();
-        assert_eq!(e.code(), "non_finite");
     }
 
     #[test]

@@ -16,7 +16,7 @@
 //!
 //! Pure computation, no I/O.
 
-use crate::metrics::pow_p;
+use super::pow_p;
 
 /// Solves rectangular linear sum assignment problems.
 pub trait Assigner {
