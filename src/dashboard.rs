@@ -126,19 +126,6 @@ fn charts(order: f64, w: &str) -> Vec<ChartDef> {
     ]
 }
 
-/// The metrics shown as tiles, with their display label and unit.
-/// The tiles' metrics; their labels and units come from the metric catalog.
-const TILES: [Metric; 8] = [
-    Metric::Gospa,
-    Metric::Ospa,
-    Metric::MissedCount,
-    Metric::FalseCount,
-    Metric::Clearance,
-    Metric::EgoPositionError,
-    Metric::EgoHeadingError,
-    Metric::CrossTrack,
-];
-
 #[derive(Debug, Clone, Copy)]
 struct Latest {
     t: f64,
@@ -163,6 +150,8 @@ pub struct Dashboard {
     rows: VecDeque<(f64, Vec<Option<f64>>)>,
     capacity: usize,
     next_row: Option<f64>,
+    /// The tiles' metrics (the catalog's `tile` rows) and their latest values.
+    tiles: Vec<Metric>,
     latest: Vec<Option<Latest>>,
     /// Per chart line (in chart order): when its key last had a value, on the monitor's clock.
     line_seen: Vec<Option<f64>>,
@@ -194,7 +183,8 @@ impl Dashboard {
             rows: VecDeque::with_capacity(capacity),
             capacity,
             next_row: None,
-            latest: vec![None; TILES.len()],
+            tiles: crate::metrics::catalog::tiles().collect(),
+            latest: vec![None; crate::metrics::catalog::tiles().count()],
             line_seen: vec![None; lines],
             active: Vec::new(),
             metric_seen: vec![None; Metric::ALL.len()],
@@ -223,7 +213,7 @@ impl Dashboard {
             if s.role.is_some() {
                 continue;
             }
-            if let Some(k) = TILES.iter().position(|m| *m == s.metric) {
+            if let Some(k) = self.tiles.iter().position(|m| *m == s.metric) {
                 self.latest[k] = Some(Latest { t: s.t, value: s.value, seen_at: now });
             }
         }
@@ -283,7 +273,8 @@ impl Dashboard {
     pub fn snapshot(&self, monitor: &Monitor) -> Snapshot {
         let now = self.now;
         let stale_after = self.params.stale_after;
-        let tiles = TILES
+        let tiles = self
+            .tiles
             .iter()
             .zip(&self.latest)
             .map(|(&m, l)| {

@@ -24,22 +24,10 @@ pub struct Series {
     by: BTreeMap<(Metric, Option<crate::msg::Role>), Points>,
 }
 
-const PLOTTED: [Metric; 9] = [
-    Metric::Gospa,
-    Metric::GospaLocalization,
-    Metric::GospaMissed,
-    Metric::GospaFalse,
-    Metric::Clearance,
-    Metric::PathClearance,
-    Metric::EgoPositionError,
-    Metric::EgoLateralError,
-    Metric::EgoLongitudinalError,
-];
-
 impl Series {
     /// Keeps the samples of the plotted metrics, thinning each to at most `2 * MAX_POINTS`.
     pub fn add(&mut self, samples: &[Sample]) {
-        for s in samples.iter().filter(|s| PLOTTED.contains(&s.metric)) {
+        for s in samples.iter().filter(|s| crate::metrics::catalog::row(s.metric).plot) {
             let v = self.by.entry((s.metric, s.role)).or_default();
             v.push((s.t, s.value));
             if v.len() >= 2 * MAX_POINTS {

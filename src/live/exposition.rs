@@ -58,7 +58,8 @@ impl Exposition {
         let registry = Registry::new();
         let mut values = Vec::new();
         for m in Metric::ALL {
-            let opts = Opts::new(prom_name(m), format!("{} by window and statistic", m.name()));
+            let opts =
+                Opts::new(prom_name(m), format!("{}: {}", m.name(), crate::metrics::catalog::row(m).meaning));
             let g = must(GaugeVec::new(opts, &["role", "window", "stat"]));
             must(registry.register(Box::new(g.clone())));
             values.push(g);

@@ -144,51 +144,10 @@ impl Metric {
         Metric::Publishers,
     ];
 
-    /// The SPEC §5 name.
+    /// The contract's name (the catalog's).
+    #[inline]
     pub fn name(self) -> &'static str {
-        match self {
-            Metric::Gospa => "gospa",
-            Metric::GospaLocalization => "gospa_localization",
-            Metric::GospaMissed => "gospa_missed",
-            Metric::GospaFalse => "gospa_false",
-            Metric::AssignedCount => "assigned_count",
-            Metric::MissedCount => "missed_count",
-            Metric::FalseCount => "false_count",
-            Metric::Ospa => "ospa",
-            Metric::TrackSwitches => "track_switches",
-            Metric::Fragmentations => "fragmentations",
-            Metric::EstablishmentDelay => "establishment_delay_s",
-            Metric::DeletionDelay => "deletion_delay_s",
-            Metric::Nees => "nees",
-            Metric::EgoPositionError => "ego_position_error_m",
-            Metric::EgoHeadingError => "ego_heading_error_rad",
-            Metric::EgoLongitudinalError => "ego_longitudinal_error_m",
-            Metric::EgoLateralError => "ego_lateral_error_m",
-            Metric::Clearance => "clearance_m",
-            Metric::Collision => "collision",
-            Metric::BelievedClearance => "believed_clearance_m",
-            Metric::ClearanceLoss => "clearance_loss_m",
-            Metric::ClearanceLossLocalization => "clearance_loss_localization_m",
-            Metric::ClearanceLossPerception => "clearance_loss_perception_m",
-            Metric::ClearanceLossPathFollowing => "clearance_loss_path_following_m",
-            Metric::PathClearance => "path_clearance_m",
-            Metric::PathMargin => "path_margin_m",
-            Metric::CrossTrack => "cross_track_m",
-            Metric::PathHeadingError => "path_heading_error_rad",
-            Metric::PathLength => "path_length_m",
-            Metric::PathLengthExcess => "path_length_excess",
-            Metric::PathCurvatureMax => "path_curvature_max",
-            Metric::PathDeviation => "path_deviation_m",
-            Metric::PathMissing => "path_missing",
-            Metric::PlanInterval => "plan_interval_s",
-            Metric::PlanCompute => "plan_compute_s",
-            Metric::LateralAccel => "lateral_accel_mps2",
-            Metric::LateralJerk => "lateral_jerk_mps3",
-            Metric::Latency => "latency_s",
-            Metric::Interarrival => "interarrival_s",
-            Metric::Staleness => "staleness_s",
-            Metric::Publishers => "publishers",
-        }
+        catalog::row(self).name
     }
 
     /// Parses a SPEC name.
@@ -199,21 +158,12 @@ impl Metric {
     /// Whether the metric is kept per role (transport and the monitor's own view of its
     /// inputs) rather than per step.
     pub fn is_per_role(self) -> bool {
-        matches!(self, Metric::Latency | Metric::Interarrival | Metric::Staleness | Metric::Publishers)
+        catalog::row(self).kind == catalog::Kind::PerRole
     }
 
     /// Whether the metric is a per-step count whose run total matters.
     pub fn is_count(self) -> bool {
-        matches!(
-            self,
-            Metric::TrackSwitches
-                | Metric::Fragmentations
-                | Metric::AssignedCount
-                | Metric::MissedCount
-                | Metric::FalseCount
-                | Metric::Collision
-                | Metric::PathMissing
-        )
+        catalog::row(self).kind == catalog::Kind::Count
     }
 }
 
