@@ -7,7 +7,7 @@ use serde::Serialize;
 
 use crate::inference::{clopper_pearson, Rate};
 use crate::report::Report;
-use crate::rules::{critical_failed, Rule};
+use crate::rules::{critical_failed, Outcome, Rule};
 use crate::stats::{quantile_sorted, Summary};
 
 /// One rule across the campaign.
@@ -125,12 +125,12 @@ pub fn aggregate(
             } else {
                 match v.verdict {
                     // A critical rule without data that does not allow it fails the run.
-                    "no_data" if v.fails_run => {
+                    Outcome::NoData if v.fails_run => {
                         fails += 1;
                         with_data += 1
                     }
-                    "no_data" => no_data += 1,
-                    "fail" => {
+                    Outcome::NoData => no_data += 1,
+                    Outcome::Fail => {
                         fails += 1;
                         with_data += 1
                     }

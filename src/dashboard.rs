@@ -29,7 +29,7 @@ use crate::core::Sample;
 use crate::metrics::Metric;
 use crate::monitor::Monitor;
 use crate::msg::Role;
-use crate::rules::{AlertEvent, Verdict};
+use crate::rules::{AlertEvent, AlertKind, Severity, Verdict};
 use crate::stats::Stat;
 
 /// Alert events kept for the page.
@@ -220,7 +220,7 @@ impl Dashboard {
         for e in events {
             let same = |a: &Active| a.event.rule == e.rule && a.event.role == e.role;
             self.active.retain(|a| !same(a));
-            if e.kind == "raised" {
+            if e.kind == AlertKind::Raised {
                 self.active.push(Active { event: e.clone(), seen_at: now });
             }
             if self.recent.len() == RECENT_EVENTS {
@@ -529,7 +529,7 @@ pub struct ActiveAlert {
     /// Role, for per-role rules.
     pub role: Option<&'static str>,
     /// Severity.
-    pub severity: &'static str,
+    pub severity: Severity,
     /// Metric.
     pub metric: &'static str,
     /// Event time it was raised at (as in the alert journal).

@@ -50,6 +50,38 @@ pub fn default_direction(metric: &str) -> Option<Worse> {
     }
 }
 
+/// How a gated statistic moved.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Status {
+    /// Worse by more than the tolerance.
+    Regressed,
+    /// Better by more than the tolerance.
+    Improved,
+    /// Within the tolerance either way.
+    Within,
+    /// Absent from one report.
+    Missing,
+}
+
+impl Status {
+    /// `regressed`, `improved`, `within` or `missing`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Status::Regressed => "regressed",
+            Status::Improved => "improved",
+            Status::Within => "within",
+            Status::Missing => "missing",
+        }
+    }
+}
+
+impl std::fmt::Display for Status {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.pad(self.name())
+    }
+}
+
 /// One row of the comparison.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Row {
@@ -64,7 +96,7 @@ pub struct Row {
     /// Allowed change.
     pub allowed: f64,
     /// `regressed`, `improved`, `within` or `missing`.
-    pub status: &'static str,
+    pub status: Status,
 }
 
 fn stat_of(report: &Value, metric: &str, stat: &str) -> Option<f64> {
@@ -142,14 +174,14 @@ pub fn compare(base: &Value, cand: &Value, tolerances: &[Tolerance]) -> Vec<Row>
                         Worse::Lower => b - c,
                     };
                     if worse_by > allowed {
-                        "regressed"
+                        Status::Regressed
                     } else if -worse_by > allowed {
-                        "improved"
+                        Status::Improved
                     } else {
-                        "within"
+                        Status::Within
                     }
                 }
-                _ => "missing",
+                _ => Status::Missing,
             };
             Row { metric: t.metric.clone(), stat: t.stat.clone(), baseline: b, candidate: c, allowed, status }
         })
@@ -201,7 +233,7 @@ pub fn junit(rows: &[Row], candidate: &Value) -> String {
             esc(&r.metric),
             esc(&r.stat)
         );
-        if r.status == "regressed" {
+        if r.status == Status::Regressed {
             failures += 1;
             let show = |x: Option<f64>| x.map_or_else(|| "none".to_string(), fmt_num);
             let msg = format!(
@@ -231,7 +263,7 @@ mod tests {
             json!({"metrics": {"gospa": {"mean": 1.0}, "clearance_m": {"mean": 2.0}, "ospa": {"mean": 0.5}}});
         let cand = json!({"metrics": {"gospa": {"mean": 1.2}, "clearance_m": {"mean": 2.5}, "ospa": {"mean": 0.51}}});
         let rows = compare(&base, &cand, &default_tolerances(&base, &cand));
-        let st: Vec<(&str, &str)> = rows.iter().map(|r| (r.metric.as_str(), r.status)).collect();
+        let st: Vec<(&str, &str)> = rows.iter().map(|r| (r.metric.as_str(), r.status.name())).collect();
         assert_eq!(st, vec![("clearance_m", "improved"), ("gospa", "regressed"), ("ospa", "within")]);
         let x = junit(
             &rows,
@@ -250,7 +282,7 @@ mod tests {
         for (sum, status) in [(2.0, "within"), (3.0, "regressed"), (0.0, "within")] {
             let cand = json!({"metrics": {"track_switches": {"mean": sum / 600.0, "sum": sum}}});
             let rows = compare(&base, &cand, &default_tolerances(&base, &cand));
-            assert_eq!((rows[0].stat.as_str(), rows[0].status), ("sum", status), "{sum}");
+            assert_eq!((rows[0].stat.as_str(), rows[0].status.name()), ("sum", status), "{sum}");
         }
     }
 

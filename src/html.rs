@@ -9,6 +9,7 @@ use plotters::prelude::*;
 use crate::core::Sample;
 use crate::metrics::Metric;
 use crate::report::Report;
+use crate::rules::Outcome;
 
 /// Points kept per plotted metric (evenly thinned beyond).
 pub const MAX_POINTS: usize = 3000;
@@ -253,9 +254,9 @@ fn verdict_table(r: &Report) -> String {
     let mut t = String::from("<table><tr><th>rule</th><th>severity</th><th>verdict</th><th>worst</th><th>threshold</th><th>times raised</th></tr>");
     for v in &r.verdicts {
         let class = match v.verdict {
-            "fail" => "fail",
-            "pass" => "pass",
-            _ => "none",
+            Outcome::Fail => "fail",
+            Outcome::Pass => "pass",
+            Outcome::NoData => "none",
         };
         t += &format!(
             "<tr><td>{}</td><td>{}</td><td class=\"{class}\">{}</td><td>{}</td><td>{} {}</td><td>{}</td></tr>",
@@ -282,8 +283,8 @@ pub fn gate_section(rows: &[crate::gate::Row]) -> String {
     let mut t = String::from("<h2>Gate against the baseline</h2><table><tr><th>metric</th><th>stat</th><th>baseline</th><th>candidate</th><th>allowed change</th><th>status</th></tr>");
     for r in rows {
         let class = match r.status {
-            "regressed" => "fail",
-            "improved" => "pass",
+            crate::gate::Status::Regressed => "fail",
+            crate::gate::Status::Improved => "pass",
             _ => "",
         };
         t += &format!(
@@ -345,7 +346,7 @@ pub fn run_report_with(r: &Report, s: &Series, extra: &str) -> String {
     let mut open: BTreeMap<String, f64> = BTreeMap::new();
     for e in &r.alerts {
         let key = format!("{}{}", e.rule, e.role.map(|x| format!(" [{x}]")).unwrap_or_default());
-        if e.kind == "raised" {
+        if e.kind == crate::rules::AlertKind::Raised {
             open.insert(key, e.t);
         } else if let Some(t0) = open.remove(&key) {
             spans.entry(key).or_default().push((t0, e.t));

@@ -24,8 +24,95 @@ use crate::msg::Role;
 use crate::stats::RunStats;
 use crate::windows::{Stat, WindowSet};
 
+/// What happened to an alert: raised, or cleared.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum AlertKind {
+    /// The rule's statistic crossed its threshold.
+    Raised,
+    /// It stayed back on the good side for `clear_after`.
+    Cleared,
+}
+
+impl AlertKind {
+    /// `raised` or `cleared`.
+    pub fn name(self) -> &'static str {
+        match self {
+            AlertKind::Raised => "raised",
+            AlertKind::Cleared => "cleared",
+        }
+    }
+}
+
+impl std::fmt::Display for AlertKind {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.pad(self.name())
+    }
+}
+
+/// A rule's verdict over a run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Outcome {
+    /// The statistic stayed on the good side of the threshold.
+    Pass,
+    /// It crossed the threshold.
+    Fail,
+    /// The rule's metric had no value to judge.
+    NoData,
+}
+
+impl Outcome {
+    /// `pass`, `fail` or `no_data`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Outcome::Pass => "pass",
+            Outcome::Fail => "fail",
+            Outcome::NoData => "no_data",
+        }
+    }
+}
+
+impl std::fmt::Display for Outcome {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.pad(self.name())
+    }
+}
+
+/// Which side of its threshold a rule's statistic must not cross.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Direction {
+    /// A value above the threshold breaches.
+    Above,
+    /// A value below the threshold breaches.
+    Below,
+}
+
+impl Direction {
+    /// `above` or `below`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Direction::Above => "above",
+            Direction::Below => "below",
+        }
+    }
+}
+
+impl std::fmt::Display for Direction {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.pad(self.name())
+    }
+}
+
+impl std::fmt::Display for Severity {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.pad(self.name())
+    }
+}
+
 /// How bad a failure is.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, serde::Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Severity {
     /// For the record.
@@ -157,8 +244,8 @@ impl Rule {
 pub struct AlertEvent {
     /// Rule name.
     pub rule: String,
-    /// `raised` or `cleared`.
-    pub kind: &'static str,
+    /// Raised or cleared.
+    pub kind: AlertKind,
     /// Event time (s).
     pub t: f64,
     /// The statistic's value.
@@ -166,7 +253,7 @@ pub struct AlertEvent {
     /// The threshold.
     pub threshold: f64,
     /// Severity.
-    pub severity: &'static str,
+    pub severity: Severity,
     /// Metric.
     pub metric: &'static str,
     /// Statistic.
@@ -182,8 +269,8 @@ pub struct AlertEvent {
 pub struct Verdict {
     /// Rule name.
     pub rule: String,
-    /// `pass`, `fail` or `no_data`.
-    pub verdict: &'static str,
+    /// Pass, fail or no data.
+    pub verdict: Outcome,
     /// Whether this verdict fails the run: a critical rule that failed, or a critical rule
     /// with no data unless it allows that (`allow_no_data`).
     pub fails_run: bool,
@@ -191,10 +278,10 @@ pub struct Verdict {
     pub worst: Option<f64>,
     /// Threshold.
     pub threshold: f64,
-    /// `above` or `below`.
-    pub direction: &'static str,
+    /// Which side breaches.
+    pub direction: Direction,
     /// Severity.
-    pub severity: &'static str,
+    pub severity: Severity,
     /// Metric.
     pub metric: &'static str,
     /// Statistic.
@@ -290,7 +377,7 @@ impl RuleSet {
                 t,
                 value: v,
                 threshold: r.threshold,
-                severity: r.severity.name(),
+                severity: r.severity,
                 metric: r.metric.name(),
                 stat: r.stat.name(),
                 window: r.window_label.clone(),
@@ -304,7 +391,7 @@ impl RuleSet {
                         st.raised = true;
                         st.raised_count += 1;
                         st.pending_since = None;
-                        out.push(event("raised"));
+                        out.push(event(AlertKind::Raised));
                     }
                 }
             } else {
@@ -314,7 +401,7 @@ impl RuleSet {
                     if t - since >= r.clear_after - EXACT_S {
                         st.raised = false;
                         st.clear_since = None;
-                        out.push(event("cleared"));
+                        out.push(event(AlertKind::Cleared));
                     }
                 }
             }
@@ -348,19 +435,20 @@ impl RuleSet {
                 };
                 let raised = self.states[i].iter().map(|s| s.raised_count).sum();
                 let verdict = match (worst, failed) {
-                    (_, true) => "fail",
-                    (None, false) => "no_data",
-                    (Some(_), false) => "pass",
+                    (_, true) => Outcome::Fail,
+                    (None, false) => Outcome::NoData,
+                    (Some(_), false) => Outcome::Pass,
                 };
                 let critical = r.severity == Severity::Critical;
                 Verdict {
                     rule: r.name.clone(),
                     verdict,
-                    fails_run: critical && (verdict == "fail" || (verdict == "no_data" && !r.allow_no_data)),
+                    fails_run: critical
+                        && (verdict == Outcome::Fail || (verdict == Outcome::NoData && !r.allow_no_data)),
                     worst,
                     threshold: r.threshold,
-                    direction: if r.above { "above" } else { "below" },
-                    severity: r.severity.name(),
+                    direction: if r.above { Direction::Above } else { Direction::Below },
+                    severity: r.severity,
                     metric: r.metric.name(),
                     stat: r.stat.name(),
                     window: r.window_label.clone(),

@@ -8,7 +8,7 @@ use plumbline::dashboard::{Dashboard, DashboardParams};
 use plumbline::metrics::Metric;
 use plumbline::monitor::Monitor;
 use plumbline::msg::{Msg, Pose, Role};
-use plumbline::rules::AlertEvent;
+use plumbline::rules::{AlertEvent, AlertKind, Severity};
 
 fn params() -> DashboardParams {
     DashboardParams { rate_hz: 5.0, history: 2.0, step: 0.5, stale_after: 1.0 }
@@ -94,14 +94,14 @@ fn tiles_go_from_no_data_to_ok_to_stale() {
     assert!((t.age_s.unwrap() - 1.1).abs() < 1e-9);
 }
 
-fn event(kind: &'static str, t: f64) -> AlertEvent {
+fn event(kind: AlertKind, t: f64) -> AlertEvent {
     AlertEvent {
         rule: "collision".into(),
         kind,
         t,
         value: 1.0,
         threshold: 0.5,
-        severity: "critical",
+        severity: Severity::Critical,
         metric: "collision",
         stat: "max",
         window: "1s".into(),
@@ -114,21 +114,21 @@ fn an_alert_is_active_from_raise_to_clear() {
     let cfg = Config::defaults();
     let m = Monitor::new(&cfg.monitor());
     let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
-    d.observe(50.0, &[], &[event("raised", 49.9)]);
+    d.observe(50.0, &[], &[event(AlertKind::Raised, 49.9)]);
     d.observe(53.0, &[], &[]);
     let snap = d.snapshot(&m);
     assert_eq!(snap.alerts_active.len(), 1);
     let a = &snap.alerts_active[0];
     assert_eq!((a.rule.as_str(), a.raised_t, a.active_s), ("collision", 49.9, 3.0));
-    d.observe(54.0, &[], &[event("cleared", 53.9)]);
+    d.observe(54.0, &[], &[event(AlertKind::Cleared, 53.9)]);
     let snap = d.snapshot(&m);
     assert!(snap.alerts_active.is_empty());
     // Newest first.
     let kinds: Vec<_> = snap.alerts_recent.iter().map(|e| (e.kind, e.t)).collect();
-    assert_eq!(kinds, vec![("cleared", 53.9), ("raised", 49.9)]);
+    assert_eq!(kinds, vec![(AlertKind::Cleared, 53.9), (AlertKind::Raised, 49.9)]);
     // Bounded.
     for k in 0..100 {
-        d.observe(60.0 + k as f64, &[], &[event("raised", 60.0 + k as f64)]);
+        d.observe(60.0 + k as f64, &[], &[event(AlertKind::Raised, 60.0 + k as f64)]);
     }
     let snap = d.snapshot(&m);
     assert_eq!(snap.alerts_recent.len(), plumbline::dashboard::RECENT_EVENTS);
@@ -184,7 +184,7 @@ fn the_header_and_the_alerts_say_when_the_input_is_stale() {
     }
     let contact = [sample(300.9, Metric::Collision, 1.0)];
     m.inject(&mut s, &contact, &mut e);
-    d.observe(300.9, &s, &[event("raised", 300.9)]);
+    d.observe(300.9, &s, &[event(AlertKind::Raised, 300.9)]);
     let snap = d.snapshot(&m);
     assert_eq!(snap.input, "live");
     assert!(!snap.alerts_active[0].stale);

@@ -2,7 +2,7 @@
 
 use plumbline::config::Config;
 use plumbline::metrics::Metric;
-use plumbline::rules::{AlertEvent, RuleSet};
+use plumbline::rules::{AlertEvent, AlertKind, Outcome, RuleSet};
 use plumbline::windows::{Stat, Window, WindowSet};
 use proptest::prelude::*;
 
@@ -109,11 +109,11 @@ fn sustain_and_clear_after_fire_at_the_exact_times() {
         })
         .collect();
     let (ev, _) = run(&cfg, Metric::Gospa, &stream);
-    let times: Vec<(&str, f64)> = ev.iter().map(|e| (e.kind, e.t)).collect();
+    let times: Vec<(AlertKind, f64)> = ev.iter().map(|e| (e.kind, e.t)).collect();
     assert_eq!(times.len(), 2, "{times:?}");
-    assert_eq!(times[0].0, "raised");
+    assert_eq!(times[0].0, AlertKind::Raised);
     assert!((times[0].1 - 1.5).abs() < 1e-9, "{times:?}");
-    assert_eq!(times[1].0, "cleared");
+    assert_eq!(times[1].0, AlertKind::Cleared);
     assert!((times[1].1 - 2.4).abs() < 1e-9, "{times:?}");
 }
 
@@ -132,12 +132,12 @@ fn a_breach_shorter_than_sustain_never_raises_and_hysteresis_holds() {
     let stream: Vec<(f64, f64)> =
         (0..30).map(|k| (k as f64 / 10.0, if k <= 9 && k != 7 { 9.0 } else { 1.0 })).collect();
     let (ev, rules) = run(&cfg, Metric::Gospa, &stream);
-    let times: Vec<(&str, f64)> = ev.iter().map(|e| (e.kind, e.t)).collect();
+    let times: Vec<(AlertKind, f64)> = ev.iter().map(|e| (e.kind, e.t)).collect();
     assert_eq!(times.len(), 2, "{times:?}");
     assert!((times[0].1 - 0.5).abs() < 1e-9 && (times[1].1 - 2.0).abs() < 1e-9, "{times:?}");
     let run_stats = plumbline::report::RunStats::new(&cfg.report);
     let v = rules.verdicts(&run_stats);
-    assert_eq!(v[0].verdict, "fail");
+    assert_eq!(v[0].verdict, Outcome::Fail);
     assert_eq!(v[0].worst, Some(9.0));
     assert_eq!(v[0].raised, 1);
 }
@@ -170,7 +170,11 @@ fn min_values_holds_judgement_until_the_window_has_warmed_up() {
     let stream: Vec<(f64, f64)> =
         (0..200).map(|k| (k as f64 / 10.0, if k == 0 { 12.0 } else { 1.0 })).collect();
     let (ev, rules) = run(&rules_config(rule), Metric::Gospa, &stream);
-    assert_eq!(ev.first().map(|e| e.kind), Some("raised"), "without a warm-up the first value alone raises");
+    assert_eq!(
+        ev.first().map(|e| e.kind),
+        Some(AlertKind::Raised),
+        "without a warm-up the first value alone raises"
+    );
     let stats = plumbline::report::RunStats::new(&rules_config(rule).report);
     assert_eq!(rules.verdicts(&stats)[0].worst, Some(12.0));
     let warm = format!("{rule}min_values = 50\n");
@@ -193,7 +197,7 @@ fn magnitude_rules_judge_both_signs() {
     assert!(ev.is_empty(), "max of the signed values never exceeds 0.05");
     let both = format!("{rule}magnitude = true\n");
     let (ev, rules) = run(&rules_config(&both), Metric::EgoHeadingError, &stream);
-    assert_eq!(ev.first().map(|e| (e.kind, e.value)), Some(("raised", 0.2)), "{ev:?}");
+    assert_eq!(ev.first().map(|e| (e.kind, e.value)), Some((AlertKind::Raised, 0.2)), "{ev:?}");
     let stats = plumbline::report::RunStats::new(&rules_config(&both).report);
     assert_eq!(rules.verdicts(&stats)[0].worst, Some(0.2));
     // Only where the window's statistics give |value| exactly.

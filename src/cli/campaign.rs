@@ -108,7 +108,7 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
             return super::fail("gate", format!("{}: {e}", p.display()));
         }
     }
-    let regressed = rows.iter().filter(|r| r.status == "regressed").count();
+    let regressed = rows.iter().filter(|r| r.status == crate::gate::Status::Regressed).count();
     let critical = cand.get("verdicts").and_then(Value::as_array).is_some_and(|v| {
         v.iter().any(|v| {
             v["fails_run"].as_bool().unwrap_or(false)

@@ -12,7 +12,7 @@ use crate::metrics::Metric;
 use crate::msg::Role;
 use crate::replay::{replay, ReplayOptions};
 use crate::report::Report;
-use crate::rules::{critical_failed, AlertEvent};
+use crate::rules::{critical_failed, AlertEvent, Direction, Outcome};
 
 use crate::logio::journal::Journal;
 
@@ -324,8 +324,9 @@ pub fn summary(r: &Report) -> String {
         for v in &r.verdicts {
             let worst = v.worst.map(num).unwrap_or_else(|| "-".into());
             let stat = format!("{} over {}", v.stat, v.window);
-            let sign = if v.direction == "above" { ">" } else { "<" };
-            let verdict = if v.verdict == "no_data" && v.fails_run { "no_data!" } else { v.verdict };
+            let sign = if v.direction == Direction::Above { ">" } else { "<" };
+            let verdict =
+                if v.verdict == Outcome::NoData && v.fails_run { "no_data!" } else { v.verdict.name() };
             let _ = writeln!(
                 s,
                 "{:<28} {:<9} {:<8} {:<18} {:>11} {:>13} {:>12}",
@@ -338,13 +339,13 @@ pub fn summary(r: &Report) -> String {
                 v.raised
             );
         }
-        let failed = r.verdicts.iter().filter(|v| v.verdict == "fail").count();
+        let failed = r.verdicts.iter().filter(|v| v.verdict == Outcome::Fail).count();
         let critical = r.verdicts.iter().filter(|v| v.fails_run).count();
         let _ = writeln!(
             s,
             "{failed} rule(s) failed, {critical} failing the run; worst: the worst judged value of the statistic (a sliding rule fails only when its breach held for its sustain time)"
         );
-        if r.verdicts.iter().any(|v| v.verdict == "no_data" && v.fails_run) {
+        if r.verdicts.iter().any(|v| v.verdict == Outcome::NoData && v.fails_run) {
             let _ = writeln!(s, "no_data!: a critical rule without data fails the run (set allow_no_data = true on it if that is acceptable)");
         }
     }

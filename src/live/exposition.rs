@@ -181,7 +181,7 @@ impl Exposition {
 
     /// Counts alert events.
     pub fn alert(&self, e: &AlertEvent) {
-        self.alerts.with_label_values(&[&e.rule, e.kind, e.severity]).inc();
+        self.alerts.with_label_values(&[&e.rule, e.kind.name(), e.severity.name()]).inc();
     }
 
     /// Sets the queue length gauge.

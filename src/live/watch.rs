@@ -544,7 +544,7 @@ fn handle(
     let mut journal = journal;
     for e in events {
         let text = serde_json::to_string(e).unwrap_or_default();
-        tracing::warn!(rule = %e.rule, kind = e.kind, t = e.t, value = e.value, threshold = e.threshold, "alert");
+        tracing::warn!(rule = %e.rule, kind = e.kind.name(), t = e.t, value = e.value, threshold = e.threshold, "alert");
         if let Err(err) = alerts.put(text.clone()).encoding(zenoh::bytes::Encoding::APPLICATION_JSON).wait() {
             tracing::error!(error = %err, "publishing an alert failed");
         }
