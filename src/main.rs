@@ -1,5 +1,7 @@
 //! The `plumbline` binary: parse the command line, run, turn the result into an exit code.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // the binary's entry point
+
 use clap::Parser;
 
 // Records are decoded on worker threads and dropped on the engine thread; mimalloc's

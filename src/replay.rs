@@ -6,6 +6,8 @@
 //! and rules (a [`crate::monitor::Sink`]) and on to the series and the caller's hook. Every channel between
 //! them is bounded, so memory does not grow with the log.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // the replay driver reads files and runs its decode and sink threads
+
 use std::fs::File;
 use std::io::Write;
 use std::path::Path;

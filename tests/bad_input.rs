@@ -3,6 +3,8 @@
 //! the bad ones. Stamp disorder and clock jumps are not bad records (SPEC §4: a regression
 //! is counted and still used): they are counted and the run goes on with bounded memory.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 mod support;
 
 use std::io::Write;

@@ -3,6 +3,8 @@
 //! with a reason. (The fuzz targets in `fuzz/` run the same entry points for millions of
 //! inputs; these run a few thousand in the normal suite.)
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 use plumbline::config::Config;
 use plumbline::logio::{read_bytes, Form, Item, LogRecord, LogWriter};
 use plumbline::msg::{decode_json, validate, Limits, MsgKind};

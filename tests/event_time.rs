@@ -3,6 +3,8 @@
 //! changes no metric value, and one that arrives too late gives counted skips, never values
 //! computed from a stale reference.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 mod support;
 
 use std::collections::BTreeMap;

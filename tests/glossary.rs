@@ -2,6 +2,8 @@
 //! Prometheus family, dashboard label and which way is worse, from the one place the code
 //! defines them. `PLUMBLINE_UPDATE_GLOSSARY=1 cargo test --test glossary` rewrites it.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 use plumbline::metrics::catalog::glossary_markdown;
 
 const START: &str = "<!-- glossary:start (generated from src/metrics/catalog.rs) -->\n";

@@ -3,6 +3,8 @@
 //! rejected whole under a reason of its own and counted per role, and the rest of the run
 //! scores exactly as it does without it (the valid records around it are untouched).
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 mod support;
 
 use std::path::Path;

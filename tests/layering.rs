@@ -6,6 +6,8 @@
 //! habit) are left out: a test may build its fixtures from a higher layer. Comments are
 //! left out too (a doc link is not a dependency).
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 use std::path::Path;
 
 /// Bottom first. Modules in one layer may not name each other.

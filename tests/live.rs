@@ -1,6 +1,8 @@
 //! The live monitor from the outside: real child processes talking zenoh on loopback.
 //! Live equals replay, SIGTERM writes the final report, kill -9 of the recorder leaves a log
 //! that replays up to the last flush, and the exposition passes promtool when installed.
+
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
 #![cfg(feature = "live")]
 
 use std::io::{Read, Write};

@@ -1,6 +1,8 @@
 //! Checks against fixtures made by tests/reference/gen_fixtures.py from general-purpose
 //! reference libraries (scipy, numpy). The fixtures are committed; Python is not needed here.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 use plumbline::metrics::assign::{Assigner, ShortestPath};
 use plumbline::metrics::{gospa_ospa, nees::interval95};
 use plumbline::stats::Summary;

@@ -1,6 +1,8 @@
 //! End to end through the replay edge: the shipped log against an independent evaluator,
 //! both log forms, torn tails and bad records.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 mod support;
 
 use std::collections::BTreeMap;

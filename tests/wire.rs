@@ -3,6 +3,8 @@
 //! message both decode to the same value, and on damaged bytes the direct reader accepts
 //! nothing that postcard rejects and reads nothing differently.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // a test drives the edges: it writes fixtures, reads outputs and times things
+
 use compact_str::CompactString;
 use plumbline::logio::LogRecord;
 use plumbline::msg::{Frame, Msg, Object, ObjectSet, Path, PathPose, Pose};

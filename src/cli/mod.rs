@@ -1,6 +1,8 @@
 //! The command line: flags, glue and user-facing messages. Each command lives in its own
 //! file; metric logic stays in the library.
 
+#![allow(clippy::disallowed_methods, clippy::disallowed_types)] // the commands read and write the files the user names
+
 /// `print!` to stdout that survives a closed stdout (see [`write_out`]).
 macro_rules! out {
     ($($arg:tt)*) => { $crate::cli::write_out(format_args!($($arg)*)) };
