@@ -6,22 +6,33 @@
 //! reference by the rule of SPEC §4, with the wait measured on arrival times (`recv`, or the
 //! stamp when a record has none), so replay and live produce the same samples.
 
-use std::collections::{BTreeMap, VecDeque};
+use std::collections::BTreeMap;
 use std::sync::Arc;
 
 use serde::Serialize;
 
+// The engine proper (inputs, draining, pruning) is this file; each metric family's step
+// is a file of its own.
+mod budget;
+mod clearance;
+mod comfort;
+mod ego_step;
+mod path_following;
+mod pending;
+mod plans;
+mod readiness;
+mod tracking;
+
 use super::align::{self, How, Miss, Point, Resolved, Timeline};
 use super::{AlignParams, ClearanceParams, EgoSource, TrackingParams};
-use crate::metrics::assign::{match_bounded, MatchScratch, ShortestPath};
-
-mod clearance;
-use crate::metrics::nees::{nees, NeesPool};
+use crate::metrics::assign::{MatchScratch, ShortestPath};
+use crate::metrics::nees::NeesPool;
 use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
 use crate::metrics::transport::Transport;
-use crate::metrics::{ego, gospa, ospa, Metric};
+use crate::metrics::Metric;
 use crate::msg::{Msg, ObjectSet, ObstacleSet, Path, Pose, Role};
-pub use clearance::{splice_plan_jobs, Collision, PlanJob};
+pub use clearance::Collision;
+pub use plans::{splice_plan_jobs, PlanJob};
 
 /// One input to the engine.
 #[derive(Debug, Clone)]
@@ -238,12 +249,7 @@ impl Prepared {
     }
 }
 
-#[derive(Debug)]
-pub(super) struct Pending<T> {
-    t: f64,
-    deadline: f64,
-    item: T,
-}
+use pending::{Pending, Queue};
 
 /// The engine. See the module note.
 #[derive(Debug)]
@@ -253,8 +259,8 @@ pub struct Engine {
     ref_objects: Timeline<Arc<PointSet>>,
     ref_ego: Timeline<Pose>,
     est_ego: Timeline<Pose>,
-    tracks: VecDeque<Pending<Arc<PointSet>>>,
-    egos: VecDeque<Pending<Pose>>,
+    tracks: Queue<Arc<PointSet>>,
+    egos: Queue<Pose>,
     now: f64,
     /// A message time far ahead of the arrival clock, waiting for a second to confirm it.
     held_jump: Option<f64>,
@@ -286,8 +292,8 @@ impl Engine {
             ref_objects: Timeline::new(ap.buffer_messages),
             ref_ego: Timeline::new(ap.buffer_messages),
             est_ego: Timeline::new(ap.buffer_messages),
-            tracks: VecDeque::new(),
-            egos: VecDeque::new(),
+            tracks: Queue::new(),
+            egos: Queue::new(),
             now: f64::NEG_INFINITY,
             held_jump: None,
             last_track_t: None,
@@ -337,13 +343,13 @@ impl Engine {
     /// densified plan); a job beyond that, and every job with `None` (the default), runs at
     /// once. The samples are the same either way.
     pub fn defer_plan_jobs(&mut self, budget: Option<usize>) {
-        self.clear.deferred = budget.map(clearance::Deferred::new);
+        self.clear.deferred = budget.map(plans::Deferred::new);
     }
 
     /// The plan jobs kept since the last call, positions counted in the output buffer the
     /// engine has been appending to since then.
     pub fn take_plan_jobs(&mut self) -> Vec<(usize, PlanJob)> {
-        self.clear.deferred.as_mut().map(clearance::Deferred::take).unwrap_or_default()
+        self.clear.deferred.as_mut().map(plans::Deferred::take).unwrap_or_default()
     }
 
     /// Steps waiting for their reference.
@@ -450,44 +456,41 @@ impl Engine {
             (Role::ReferenceObjects, Prepared::Objects(set)) => self.ref_objects.insert(stamp, set),
             (Role::EstimateObjects, Prepared::Objects(set)) => {
                 self.clear.est_sets.insert(stamp, Arc::clone(&set));
-                if self.tracks.len() >= self.ap.pending_steps {
+                let early =
+                    self.tracks.push(Pending { t: stamp, deadline, item: set }, self.ap.pending_steps);
+                if let Some(p) = early {
                     self.counters.pending_overflow += 1;
-                    if let Some(p) = self.tracks.pop_front() {
-                        self.eval_tracking(p.t, &p.item, out);
-                    }
+                    self.eval_tracking(p.t, &p.item, out);
                 }
-                self.tracks.push_back(Pending { t: stamp, deadline, item: set });
             }
             (Role::ReferenceEgo, Prepared::Pose(p)) => {
                 self.ref_ego.insert(stamp, p.clone());
-                if self.clear.clears.len() >= self.ap.pending_steps {
+                let early =
+                    self.clear.clears.push(Pending { t: stamp, deadline, item: p }, self.ap.pending_steps);
+                if let Some(q) = early {
                     self.counters.pending_overflow += 1;
-                    if let Some(q) = self.clear.clears.pop_front() {
-                        self.eval_clearance(q.t, &q.item, false, out);
-                    }
+                    self.eval_clearance(q.t, &q.item, false, out);
                 }
-                self.clear.clears.push_back(Pending { t: stamp, deadline, item: p });
             }
             (Role::PlanPath, Prepared::Path(p)) => {
                 let step = self.on_plan(&p, out);
-                if self.clear.plan_steps.len() >= self.ap.pending_steps {
+                let early = self
+                    .clear
+                    .plan_steps
+                    .push(Pending { t: stamp, deadline, item: step }, self.ap.pending_steps);
+                if let Some(q) = early {
                     self.counters.pending_overflow += 1;
-                    if let Some(q) = self.clear.plan_steps.pop_front() {
-                        self.eval_plan(q.t, q.item, out);
-                    }
+                    self.eval_plan(q.t, q.item, out);
                 }
-                self.clear.plan_steps.push_back(Pending { t: stamp, deadline, item: step });
             }
             (Role::ReferenceObstacles, Prepared::Obstacles(o)) => self.on_obstacles(&o),
             (Role::EstimateEgo, Prepared::Pose(p)) => {
                 self.est_ego.insert(stamp, p.clone());
-                if self.egos.len() >= self.ap.pending_steps {
+                let early = self.egos.push(Pending { t: stamp, deadline, item: p }, self.ap.pending_steps);
+                if let Some(q) = early {
                     self.counters.pending_overflow += 1;
-                    if let Some(q) = self.egos.pop_front() {
-                        self.eval_ego(q.t, &q.item, false, out);
-                    }
+                    self.eval_ego(q.t, &q.item, false, out);
                 }
-                self.egos.push_back(Pending { t: stamp, deadline, item: p });
             }
             // A message of the wrong kind for its role cannot be decoded, so cannot reach here.
             _ => {}
@@ -506,16 +509,16 @@ impl Engine {
     /// The run is stopping and has no time left: every waiting step is counted as skipped
     /// (`cut_short`) instead of evaluated, so [`Engine::finish`] has nothing to wait for.
     pub fn cut_short(&mut self) {
-        for _ in self.tracks.drain(..) {
+        for _ in 0..self.tracks.clear() {
             self.counters.tracking.skip("cut_short");
         }
-        for _ in self.egos.drain(..) {
+        for _ in 0..self.egos.clear() {
             self.counters.ego.skip("cut_short");
         }
-        for _ in self.clear.clears.drain(..) {
+        for _ in 0..self.clear.clears.clear() {
             self.counters.clearance.skip("cut_short");
         }
-        for _ in self.clear.plan_steps.drain(..) {
+        for _ in 0..self.clear.plan_steps.clear() {
             self.counters.plans.skip("cut_short");
         }
     }
@@ -552,35 +555,28 @@ impl Engine {
     }
 
     fn drain(&mut self, all: bool, out: &mut Vec<Sample>) {
+        // Each family's queue in stamp order: a step goes when it is due (see
+        // `Queue::take_due`); readiness is asked only of a step not due otherwise.
+        let now = self.now;
+        let due = |p: &Pending<_>| all || p.deadline < now;
         while let Some(p) = self.tracks.front() {
-            if !(all || p.deadline < self.now || self.tracking_ready(p)) {
-                break;
-            }
-            let p = self.tracks.pop_front().expect("front exists");
+            let ready = due(p) || self.tracking_ready(p);
+            let Some(p) = self.tracks.take_due(now, all, ready) else { break };
             self.eval_tracking(p.t, &p.item, out);
         }
         while let Some(p) = self.egos.front() {
             let ready = self.ego_ready(p.t);
-            if !(all || p.deadline < self.now || ready) {
-                break;
-            }
-            let p = self.egos.pop_front().expect("front exists");
+            let Some(p) = self.egos.take_due(now, all, ready) else { break };
             self.eval_ego(p.t, &p.item, ready, out);
         }
         while let Some(p) = self.clear.clears.front() {
             let ready = self.clearance_ready(p.t);
-            if !(all || p.deadline < self.now || ready) {
-                break;
-            }
-            let p = self.clear.clears.pop_front().expect("front exists");
+            let Some(p) = self.clear.clears.take_due(now, all, ready) else { break };
             self.eval_clearance(p.t, &p.item, ready, out);
         }
         while let Some(p) = self.clear.plan_steps.front() {
             let ready = self.plan_ready(p.t, &p.item);
-            if !(all || p.deadline < self.now || ready) {
-                break;
-            }
-            let p = self.clear.plan_steps.pop_front().expect("front exists");
+            let Some(p) = self.clear.plan_steps.take_due(now, all, ready) else { break };
             self.eval_plan(p.t, p.item, out);
         }
         self.prune();
@@ -672,117 +668,6 @@ impl Engine {
             q
         }));
         Ok(scratch)
-    }
-
-    fn eval_tracking(&mut self, t: f64, est: &PointSet, out: &mut Vec<Sample>) {
-        self.last_track_t = Some(t);
-        let how = match self.reference_at(t) {
-            Ok(h) => h,
-            Err(reason) => return self.counters.tracking.skip(reason),
-        };
-        // The step's time is the set's stamp, so its frame pose is the one `ref_points` uses.
-        let (mut ys, mut scratch) = (std::mem::take(&mut self.ys), std::mem::take(&mut self.wa));
-        ys.clear();
-        let frame = self.ref_points(est, &mut scratch).map(|p| ys.extend_from_slice(p));
-        (self.ys, self.wa) = (ys, scratch);
-        if let Err(reason) = frame {
-            return self.counters.tracking.skip(reason);
-        }
-        if self.tp.region > 0.0 {
-            let ego = match align::resolve(&self.ref_ego, t, self.ap.tolerance) {
-                Ok(r) => align::pose_at(r, t).0,
-                Err(m) => return self.counters.tracking.skip(miss_reason(m, "ego")),
-            };
-            let (r, r_est) = (self.tp.region, self.tp.region + self.tp.cutoff);
-            let near = |o: &Point, lim: f64| (o.x - ego.x).hypot(o.y - ego.y) <= lim;
-            self.xs.retain(|o| near(o, r));
-            self.ys.retain(|o| near(o, r_est));
-        }
-        self.counters.tracking.hit(how);
-        self.score(t, out);
-    }
-
-    fn score(&mut self, t: f64, out: &mut Vec<Sample>) {
-        let (c, p, alpha) = (self.tp.cutoff, self.tp.order, self.tp.alpha);
-        self.xp.clear();
-        self.xp.extend(self.xs.iter().map(|o| [o.x, o.y]));
-        self.yp.clear();
-        self.yp.extend(self.ys.iter().map(|o| [o.x, o.y]));
-        let m = match_bounded(
-            &self.xp,
-            &self.yp,
-            c,
-            p,
-            true,
-            self.tp.exact_cells,
-            &mut self.solver,
-            &mut self.scratch,
-        );
-        if m.approximate {
-            self.counters.tracking.approximate += 1;
-        }
-        let (nx, ny) = (self.xp.len(), self.yp.len());
-        let g = gospa::from_matching(nx, ny, &m, c, p, alpha);
-        let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
-        push(Metric::Gospa, g.total);
-        if alpha == 2.0 {
-            push(Metric::GospaLocalization, g.localization);
-            push(Metric::GospaMissed, g.missed);
-            push(Metric::GospaFalse, g.false_);
-            push(Metric::AssignedCount, g.assigned as f64);
-            push(Metric::MissedCount, g.missed_count as f64);
-            push(Metric::FalseCount, g.false_count as f64);
-        }
-        push(Metric::Ospa, ospa::from_matching(nx, ny, &m, c, p));
-
-        let (mut sum, mut n) = (0.0, 0u32);
-        for &(i, j, _) in &m.pairs {
-            if let Some(cov) = &self.ys[j].cov {
-                if let Some(v) = nees(self.yp[j], self.xp[i], cov) {
-                    self.nees_pool.add(v);
-                    sum += v;
-                    n += 1;
-                }
-            }
-        }
-        if n > 0 {
-            push(Metric::Nees, sum / n as f64);
-        }
-
-        let (refs, ests) = &mut self.ids;
-        refs.clear();
-        refs.extend(self.xs.iter().map(|o| o.id));
-        ests.clear();
-        ests.extend(self.ys.iter().map(|o| o.id));
-        let pairs = m.pairs.iter().map(|&(i, j, _)| (i, j));
-        self.tracklife.step(t, refs, ests, pairs, &mut self.tl_step);
-        push(Metric::TrackSwitches, self.tl_step.switches as f64);
-        push(Metric::Fragmentations, self.tl_step.fragmentations as f64);
-        for &d in &self.tl_step.establishment {
-            push(Metric::EstablishmentDelay, d);
-        }
-        for &d in &self.tl_step.deletion {
-            push(Metric::DeletionDelay, d);
-        }
-    }
-
-    fn eval_ego(&mut self, t: f64, est: &Pose, ready: bool, out: &mut Vec<Sample>) {
-        self.last_ego_t = Some(t);
-        let (reference, how) = match align::resolve(&self.ref_ego, t, self.ap.tolerance) {
-            Ok(r) => align::pose_at(r, t),
-            Err(m) => return self.counters.ego.skip(miss_reason(m, "ego")),
-        };
-        self.counters.ego.hit(how);
-        let e = ego::ego_error([est.x, est.y, est.yaw], [reference.x, reference.y, reference.yaw]);
-        for (metric, value) in [
-            (Metric::EgoPositionError, e.position),
-            (Metric::EgoHeadingError, e.heading),
-            (Metric::EgoLongitudinalError, e.longitudinal),
-            (Metric::EgoLateralError, e.lateral),
-        ] {
-            out.push(Sample { t, metric, role: None, value });
-        }
-        self.eval_budget(t, est, &reference, ready, out);
     }
 
     /// Collisions so far (the first [`clearance::KEEP_COLLISIONS`]) and how many more.
