@@ -18,6 +18,9 @@ pub struct Timeline<T> {
     cap: usize,
     /// Items dropped because the buffer was full.
     pub evicted: u64,
+    /// Changes so far (inserts and prunes that dropped something): a value resolved from
+    /// the buffer stays valid while this is unchanged.
+    version: u64,
 }
 
 /// Where a stamp falls in a timeline.
@@ -60,11 +63,12 @@ pub enum How {
 impl<T> Timeline<T> {
     /// An empty buffer holding at most `cap` items.
     pub fn new(cap: usize) -> Timeline<T> {
-        Timeline { items: VecDeque::new(), cap: cap.max(2), evicted: 0 }
+        Timeline { items: VecDeque::new(), cap: cap.max(2), evicted: 0, version: 0 }
     }
 
     /// Inserts in stamp order (appends in the common case).
     pub fn insert(&mut self, stamp: f64, item: T) {
+        self.version += 1;
         if self.items.len() >= self.cap {
             self.items.pop_front();
             self.evicted += 1;
@@ -129,7 +133,13 @@ impl<T> Timeline<T> {
     pub fn prune(&mut self, t_min: f64) {
         while self.items.len() >= 2 && self.items[1].0 <= t_min {
             self.items.pop_front();
+            self.version += 1;
         }
+    }
+
+    /// Changes so far (see the field).
+    pub fn version(&self) -> u64 {
+        self.version
     }
 }
 

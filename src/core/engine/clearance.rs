@@ -108,19 +108,19 @@ impl Engine {
     /// Reference objects at `t` by the alignment rule: `Ok(None)` when the role has never
     /// been heard (a setup without them), `Err(reason)` when it has but gives nothing
     /// for `t`.
-    pub(super) fn reference_objects_for(&self, t: f64) -> Result<(Vec<Point>, How), &'static str> {
+    pub(super) fn reference_objects_for(&mut self, t: f64) -> Result<(Arc<[Point]>, How), &'static str> {
         if !self.heard(Role::ReferenceObjects) {
-            return Ok((Vec::new(), How::Exact));
+            return Ok((Arc::from(Vec::new()), How::Exact));
         }
-        let mut pts = Vec::new();
-        let how = self.reference_into(t, &mut Vec::new(), &mut Vec::new(), &mut pts)?;
-        Ok((pts, how))
+        self.reference_shared(t)
     }
 
-    /// Reference objects at `t` (none when the alignment finds nothing).
+    /// Reference objects at `t` (none when the alignment finds nothing), resolved afresh.
     #[cfg(test)]
     fn reference_points_at(&self, t: f64) -> Vec<Point> {
-        self.reference_objects_for(t).map(|(p, _)| p).unwrap_or_default()
+        let mut pts = Vec::new();
+        let _ = self.reference_into(t, &mut Vec::new(), &mut Vec::new(), &mut pts);
+        pts
     }
 
     /// Estimated objects (the latest set at or before `t`).

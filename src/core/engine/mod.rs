@@ -251,6 +251,12 @@ impl Prepared {
 
 use pending::{Pending, Queue};
 
+/// A resolution's stamp (bits) and the versions of the timelines it read.
+type RefKey = (u64, u64, u64, u64);
+
+/// Resolutions kept: the families of one drain read a few stamps each.
+const REF_CACHE: usize = 8;
+
 /// The engine. See the module note.
 #[derive(Debug)]
 pub struct Engine {
@@ -277,6 +283,10 @@ pub struct Engine {
     ys: Vec<Point>,
     wa: Vec<Point>,
     wb: Vec<Point>,
+    /// Reference objects resolved at recent stamps (see [`Engine::reference_shared`]).
+    ref_cache: std::collections::VecDeque<(RefKey, Arc<[Point]>, How)>,
+    /// Whether a reference object set in the ego frame has been heard.
+    ref_in_ego_frame: bool,
     xp: Vec<[f64; 2]>,
     yp: Vec<[f64; 2]>,
     ids: (Vec<u64>, Vec<u64>),
@@ -309,6 +319,8 @@ impl Engine {
             ys: Vec::new(),
             wa: Vec::new(),
             wb: Vec::new(),
+            ref_cache: std::collections::VecDeque::new(),
+            ref_in_ego_frame: false,
             xp: Vec::new(),
             yp: Vec::new(),
             ids: Default::default(),
@@ -453,7 +465,10 @@ impl Engine {
         }
         let deadline = arrival + self.ap.max_wait;
         match (role, msg) {
-            (Role::ReferenceObjects, Prepared::Objects(set)) => self.ref_objects.insert(stamp, set),
+            (Role::ReferenceObjects, Prepared::Objects(set)) => {
+                self.ref_in_ego_frame |= set.ego_frame;
+                self.ref_objects.insert(stamp, set)
+            }
             (Role::EstimateObjects, Prepared::Objects(set)) => {
                 self.clear.est_sets.insert(stamp, Arc::clone(&set));
                 let early =
@@ -616,13 +631,36 @@ impl Engine {
             .map_err(|m| miss_reason(m, "frame"))
     }
 
+    /// The reference objects at `t` into `self.xs` (the tracking step's working set).
     fn reference_at(&mut self, t: f64) -> Result<How, &'static str> {
-        let (mut xs, mut wa, mut wb) =
-            (std::mem::take(&mut self.xs), std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
-        xs.clear();
-        let res = self.reference_into(t, &mut wa, &mut wb, &mut xs);
-        (self.xs, self.wa, self.wb) = (xs, wa, wb);
-        res
+        let (pts, how) = self.reference_shared(t)?;
+        self.xs.clear();
+        self.xs.extend_from_slice(&pts);
+        Ok(how)
+    }
+
+    /// The one way every family reads the reference objects at a stamp: resolved once and
+    /// shared by the families that read the same stamp (tracking, clearance, the budget,
+    /// plans), for as long as nothing it was resolved from has changed.
+    pub(super) fn reference_shared(&mut self, t: f64) -> Result<(Arc<[Point]>, How), &'static str> {
+        // The frame poses matter only once a reference set in the ego frame has been heard.
+        let frames =
+            if self.ref_in_ego_frame { (self.ref_ego.version(), self.est_ego.version()) } else { (0, 0) };
+        let key = (t.to_bits(), self.ref_objects.version(), frames.0, frames.1);
+        if let Some((_, pts, how)) = self.ref_cache.iter().find(|(k, _, _)| *k == key) {
+            return Ok((Arc::clone(pts), *how));
+        }
+        let (mut wa, mut wb) = (std::mem::take(&mut self.wa), std::mem::take(&mut self.wb));
+        let mut pts = Vec::new();
+        let res = self.reference_into(t, &mut wa, &mut wb, &mut pts);
+        (self.wa, self.wb) = (wa, wb);
+        let how = res?;
+        let pts: Arc<[Point]> = pts.into();
+        if self.ref_cache.len() >= REF_CACHE {
+            self.ref_cache.pop_front();
+        }
+        self.ref_cache.push_back((key, Arc::clone(&pts), how));
+        Ok((pts, how))
     }
 
     /// The reference objects at `t` by the alignment rule (exact, interpolated per id, or

@@ -29,7 +29,7 @@ pub struct PlanJob {
     t: f64,
     cp: ClearanceParams,
     map: Option<Arc<ObstacleIndex>>,
-    bodies: Vec<Point>,
+    bodies: Arc<[Point]>,
     work: PlanWork,
 }
 
