@@ -14,7 +14,9 @@ macro_rules! outln {
 }
 
 mod campaign;
+mod compare;
 mod convert;
+mod gate;
 #[cfg(feature = "live")]
 mod live;
 mod replay;
@@ -62,11 +64,11 @@ pub enum Command {
     /// Generate a demo-scenario log (the Aldermoor campus shuttle), or a seeded family of them.
     Scenario(scenario::Args),
     /// Compare a run with a baseline report under tolerances; JUnit XML for CI.
-    Gate(campaign::GateArgs),
+    Gate(gate::GateArgs),
     /// Replay many logs in parallel and aggregate pass rates with confidence bounds.
     Campaign(campaign::CampaignArgs),
     /// Field runs against their simulated twins, on per-run statistics.
-    Compare(campaign::CompareArgs),
+    Compare(compare::CompareArgs),
     /// Print the JSON Schema (draft 2020-12) of a message or of a JSON Lines record.
     Schema(SchemaArgs),
     /// Watch a live stack over zenoh: metrics on HTTP, alerts, optional recording.
@@ -132,9 +134,9 @@ pub fn run(cli: Cli) -> ExitCode {
         Command::Replay(a) => replay::run(&cfg, a),
         Command::Convert(a) => convert::run(&cfg, a),
         Command::Scenario(a) => scenario::run(&cfg, a),
-        Command::Gate(a) => campaign::gate_cmd(&cfg, a),
+        Command::Gate(a) => gate::gate_cmd(&cfg, a),
         Command::Campaign(a) => campaign::campaign_cmd(&cfg, a),
-        Command::Compare(a) => campaign::compare_cmd(&cfg, a),
+        Command::Compare(a) => compare::compare_cmd(&cfg, a),
         Command::Schema(a) => schema_cmd(&cfg, a),
         #[cfg(feature = "live")]
         Command::Watch(a) => live::watch_cmd(&cfg, a),
