@@ -1,6 +1,6 @@
-//! The run report (SPEC §6): built from a finished monitor, with the config's identity
-//! ([`ReportSettings`]). Pure: the caller writes it where it wants. (The run statistics it
-//! reads are `crate::stats::RunStats`.)
+//! The run report (SPEC §6), built from a finished monitor with the config's identity
+//! ([`ReportSettings`]), and the long-form series rows. Pure: the caller writes them where
+//! it wants. (The run statistics it reads are `crate::stats::RunStats`.)
 
 use std::collections::BTreeMap;
 

@@ -4,14 +4,14 @@
 
 use std::collections::BTreeMap;
 use std::path::Path;
-use std::process::{Command, Output};
+use std::process::Output;
+
+mod support;
+
+use support::bin;
 
 fn plumbline(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_plumbline"))
-        .args(args)
-        .current_dir(env!("CARGO_MANIFEST_DIR"))
-        .output()
-        .expect("binary runs")
+    bin().args(args).output().expect("binary runs")
 }
 
 fn text(b: &[u8]) -> String {
@@ -48,7 +48,7 @@ fn replay_of_the_shipped_log_prints_a_summary_and_writes_report_and_series() {
     for k in ["count", "mean", "min", "max", "p50", "p95", "p99"] {
         assert!(g[k].is_number(), "gospa lacks {k}");
     }
-    assert_eq!(g["count"], 600);
+    assert_eq!(g["count"], support::SHIPPED_TRACKING_STEPS);
     // The series has one row per sample; its gospa rows agree with the report's count
     // and mean (the mean recomputed from the written numbers).
     let csv = std::fs::read_to_string(&series).unwrap();
@@ -61,8 +61,8 @@ fn replay_of_the_shipped_log_prints_a_summary_and_writes_report_and_series() {
             (m == "gospa").then(|| v.parse().unwrap())
         })
         .collect();
-    assert_eq!(gospa.len(), 600);
-    let mean = gospa.iter().sum::<f64>() / 600.0;
+    assert_eq!(gospa.len() as u64, support::SHIPPED_TRACKING_STEPS);
+    let mean = gospa.iter().sum::<f64>() / support::SHIPPED_TRACKING_STEPS as f64;
     assert!((mean - g["mean"].as_f64().unwrap()).abs() < 1e-9);
 }
 
@@ -275,13 +275,7 @@ fn html_reports_are_self_contained_with_plots() {
 /// The binary started from the project's folder with stdout and stderr piped.
 fn spawn_piped(args: &[&str]) -> std::process::Child {
     use std::process::Stdio;
-    Command::new(env!("CARGO_BIN_EXE_plumbline"))
-        .args(args)
-        .current_dir(env!("CARGO_MANIFEST_DIR"))
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("binary runs")
+    bin().args(args).stdout(Stdio::piped()).stderr(Stdio::piped()).spawn().expect("binary runs")
 }
 
 #[test]
@@ -299,7 +293,7 @@ fn a_reader_that_quits_early_does_not_panic_the_command() {
     assert!(!stderr.contains("panicked"), "{stderr}");
     assert_eq!(out.status.code(), Some(0), "{stderr}");
     let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&report).unwrap()).unwrap();
-    assert_eq!(r["steps"]["tracking"]["evaluated"], 600, "{r}");
+    assert_eq!(r["steps"]["tracking"]["evaluated"], support::SHIPPED_TRACKING_STEPS, "{r}");
 }
 
 #[test]
