@@ -1,14 +1,205 @@
 //! Campaign aggregation: many runs' reports into pass rates with confidence bounds, metric
 //! distributions across runs and the worst runs by each rule. Pure.
+//!
+//! A run enters the aggregate as a [`RunRow`]: what the aggregate reads of its report,
+//! losslessly. A campaign split into shards ([`shard_of`]: run `i` of the sorted list
+//! goes to shard `i mod N + 1`, so every shard agrees without talking to the others)
+//! writes its rows as a [`Partial`]; [`merge`] checks the partials fit together and gives
+//! back the rows in the campaign's order, and the aggregate of those is the one-machine
+//! aggregate, bit for bit (the same rows in the same order through the same sums).
 
 use std::collections::BTreeMap;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
 
 use crate::inference::{clopper_pearson, Rate};
 use crate::report::Report;
-use crate::rules::{critical_failed, Outcome, Rule};
-use crate::stats::{quantile_sorted, Summary};
+use crate::rules::{Outcome, Rule};
+use crate::stats::{quantile_sorted, Stats, Summary};
+
+/// One rule's verdict on one run, as the aggregate reads it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RowVerdict {
+    /// Rule name.
+    pub rule: String,
+    /// Pass, fail or no data.
+    pub verdict: Outcome,
+    /// Whether it fails the run.
+    pub fails_run: bool,
+    /// Worst value seen.
+    pub worst: Option<f64>,
+}
+
+/// What became of one run.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "state", rename_all = "snake_case")]
+pub enum RunState {
+    /// The log could not be read.
+    Unreadable {
+        /// Why.
+        error: String,
+    },
+    /// The log was replayed.
+    Replayed {
+        /// Digest of the log's bytes.
+        input_digest: String,
+        /// Whether it held an evaluated step.
+        evaluable: bool,
+        /// Whether its binary form was damaged (a skipped stretch or a damaged tail).
+        damaged: bool,
+        /// Per rule, in the config's order.
+        verdicts: Vec<RowVerdict>,
+        /// Per metric, the run's statistics.
+        metrics: BTreeMap<String, Stats>,
+    },
+}
+
+/// What a campaign keeps of one run: everything its aggregate reads.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RunRow {
+    /// The run's place in the campaign's sorted list of runs (from 0).
+    pub index: u64,
+    /// The run's log, as the campaign named it.
+    pub input: String,
+    /// What became of it.
+    pub run: RunState,
+}
+
+impl RunRow {
+    /// The row of a replayed run.
+    pub fn replayed(index: u64, rep: &Report) -> RunRow {
+        RunRow {
+            index,
+            input: rep.input.clone(),
+            run: RunState::Replayed {
+                input_digest: rep.input_digest.clone(),
+                evaluable: rep.not_evaluable().is_none(),
+                damaged: rep.records.tail.is_some() || rep.records.damaged.stretches > 0,
+                verdicts: rep
+                    .verdicts
+                    .iter()
+                    .map(|v| RowVerdict {
+                        rule: v.rule.clone(),
+                        verdict: v.verdict,
+                        fails_run: v.fails_run,
+                        worst: v.worst,
+                    })
+                    .collect(),
+                metrics: rep.metrics.iter().map(|(m, s)| (m.to_string(), *s)).collect(),
+            },
+        }
+    }
+
+    /// The row of a run whose log could not be read.
+    pub fn unreadable(index: u64, input: &str, error: &str) -> RunRow {
+        RunRow { index, input: input.into(), run: RunState::Unreadable { error: error.into() } }
+    }
+}
+
+/// The shard (1..=N) a run of the sorted list belongs to: round robin by its place.
+pub fn shard_of(index: u64, shards: u64) -> u64 {
+    index % shards.max(1) + 1
+}
+
+/// SHA-256 of the campaign's sorted run names: partials of one campaign agree on it.
+pub fn names_digest(names: &[String]) -> String {
+    let mut h = Sha256::new();
+    for n in names {
+        h.update(n.as_bytes());
+        h.update(b"\n");
+    }
+    format!("sha256:{:x}", h.finalize())
+}
+
+/// A shard's result: its runs' rows and what identifies the campaign they belong to.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Partial {
+    /// `plumbline`.
+    pub tool: String,
+    /// The version that made it.
+    pub version: String,
+    /// Digest of the resolved config.
+    pub config_digest: String,
+    /// This shard (1..=shards).
+    pub shard: u64,
+    /// How many shards the campaign has.
+    pub shards: u64,
+    /// Runs in the whole campaign.
+    pub campaign_runs: u64,
+    /// [`names_digest`] of the whole campaign's runs.
+    pub campaign_digest: String,
+    /// This shard's runs, in the campaign's order.
+    pub rows: Vec<RunRow>,
+}
+
+/// Checks that the partials (each with the file it came from) are the whole of one
+/// campaign made with `config_digest` by this version, each shard once and each run once,
+/// and returns the rows in the campaign's order. An error names the files.
+pub fn merge(parts: &[(String, Partial)], config_digest: &str) -> Result<Vec<RunRow>, String> {
+    let Some((first_file, first)) = parts.first() else {
+        return Err("no partial results to merge".into());
+    };
+    let version = env!("CARGO_PKG_VERSION");
+    for (f, p) in parts {
+        if p.tool != "plumbline" {
+            return Err(format!("{f}: not a plumbline partial result"));
+        }
+        if p.version != version {
+            return Err(format!("{f}: made by version {}, this is {version}", p.version));
+        }
+        if p.config_digest != config_digest {
+            return Err(format!(
+                "{f}: made with another config ({}; this config is {config_digest}): merge with the config the shards used",
+                p.config_digest
+            ));
+        }
+        if (p.shards, p.campaign_runs, &p.campaign_digest)
+            != (first.shards, first.campaign_runs, &first.campaign_digest)
+        {
+            return Err(format!(
+                "{f} and {first_file}: shards of different campaigns (runs or shard count differ)"
+            ));
+        }
+    }
+    let mut by_shard: BTreeMap<u64, &str> = BTreeMap::new();
+    for (f, p) in parts {
+        if !(1..=p.shards).contains(&p.shard) {
+            return Err(format!("{f}: shard {} of {}", p.shard, p.shards));
+        }
+        if let Some(other) = by_shard.insert(p.shard, f) {
+            return Err(format!("{other} and {f}: both are shard {}/{}", p.shard, p.shards));
+        }
+    }
+    let missing: Vec<String> = (1..=first.shards)
+        .filter(|k| !by_shard.contains_key(k))
+        .map(|k| format!("{k}/{}", first.shards))
+        .collect();
+    if !missing.is_empty() {
+        return Err(format!("missing shards: {}", missing.join(", ")));
+    }
+    let mut seen: BTreeMap<u64, &str> = BTreeMap::new();
+    let mut rows = Vec::new();
+    for (f, p) in parts {
+        for r in &p.rows {
+            if shard_of(r.index, p.shards) != p.shard || r.index >= p.campaign_runs {
+                return Err(format!(
+                    "{f}: run {} ({}) does not belong to shard {}/{}",
+                    r.index, r.input, p.shard, p.shards
+                ));
+            }
+            if let Some(other) = seen.insert(r.index, f) {
+                return Err(format!("{other} and {f}: run {} ({}) counted twice", r.index, r.input));
+            }
+            rows.push(r.clone());
+        }
+    }
+    if rows.len() as u64 != first.campaign_runs {
+        return Err(format!("the shards hold {} of the campaign's {} runs", rows.len(), first.campaign_runs));
+    }
+    rows.sort_by_key(|r| r.index);
+    Ok(rows)
+}
 
 /// One rule across the campaign.
 #[derive(Debug, Clone, Serialize)]
@@ -97,18 +288,30 @@ pub fn exit_code(rules: &[Rule], agg: &CampaignReport, max_failure_rate: Option<
     u8::from(failed)
 }
 
-/// Aggregates run reports (pure): `rules` the config's rules, `config_digest` its digest.
-pub fn aggregate(
-    rules_cfg: &[Rule],
-    config_digest: &str,
-    all: &[Report],
-    unreadable: Vec<String>,
-) -> CampaignReport {
+/// Aggregates runs (pure): `rules_cfg` the config's rules, `config_digest` its digest,
+/// `rows` in the campaign's order.
+pub fn aggregate(rules_cfg: &[Rule], config_digest: &str, rows: &[RunRow]) -> CampaignReport {
+    struct Judged<'a> {
+        input: &'a str,
+        damaged: bool,
+        verdicts: &'a [RowVerdict],
+        metrics: &'a BTreeMap<String, Stats>,
+    }
+    let mut unreadable = Vec::new();
+    let mut empty = Vec::new();
+    let mut runs: Vec<Judged> = Vec::new();
+    for r in rows {
+        match &r.run {
+            RunState::Unreadable { .. } => unreadable.push(r.input.clone()),
+            RunState::Replayed { evaluable: false, .. } => empty.push(r.input.clone()),
+            RunState::Replayed { damaged, verdicts, metrics, .. } => {
+                runs.push(Judged { input: &r.input, damaged: *damaged, verdicts, metrics })
+            }
+        }
+    }
+    let read = rows.len() - unreadable.len();
     // Runs with nothing evaluated are listed apart and judged by none of their verdicts.
-    let (runs, empty): (Vec<&Report>, Vec<&Report>) = all.iter().partition(|r| r.not_evaluable().is_none());
-    let empty: Vec<String> = empty.into_iter().map(|r| r.input.clone()).collect();
-    let is_damaged = |r: &Report| r.records.tail.is_some() || r.records.damaged.stretches > 0;
-    let damaged: Vec<String> = runs.iter().filter(|r| is_damaged(r)).map(|r| r.input.clone()).collect();
+    let damaged: Vec<String> = runs.iter().filter(|r| r.damaged).map(|r| r.input.to_string()).collect();
     // Unreadable, empty and damaged runs count as failures of every rule.
     let incomplete = (unreadable.len() + empty.len()) as u64;
     let mut rules = Vec::new();
@@ -118,7 +321,7 @@ pub fn aggregate(
         let mut run_incomplete = incomplete;
         for rep in &runs {
             let Some(v) = rep.verdicts.get(i) else { continue };
-            if is_damaged(rep) {
+            if rep.damaged {
                 fails += 1;
                 with_data += 1;
                 run_incomplete += 1;
@@ -138,7 +341,7 @@ pub fn aggregate(
                 }
             }
             if let Some(w) = v.worst {
-                worst.push((rep.input.clone(), w));
+                worst.push((rep.input.to_string(), w));
             }
         }
         worst.sort_by(|a, b| if r.above { b.1.total_cmp(&a.1) } else { a.1.total_cmp(&b.1) });
@@ -156,8 +359,8 @@ pub fn aggregate(
     }
     let mut per: BTreeMap<String, Vec<f64>> = BTreeMap::new();
     for rep in &runs {
-        for (m, st) in &rep.metrics {
-            per.entry(m.to_string()).or_default().push(st.mean);
+        for (m, st) in rep.metrics {
+            per.entry(m.clone()).or_default().push(st.mean);
         }
     }
     let metrics = per
@@ -181,8 +384,8 @@ pub fn aggregate(
     CampaignReport {
         version: env!("CARGO_PKG_VERSION"),
         config_digest: config_digest.to_string(),
-        runs: all.len() as u64,
-        critical_failures: runs.iter().filter(|r| critical_failed(&r.verdicts)).count() as u64,
+        runs: read as u64,
+        critical_failures: runs.iter().filter(|r| r.verdicts.iter().any(|v| v.fails_run)).count() as u64,
         unreadable,
         empty,
         damaged,

@@ -149,7 +149,7 @@ impl RunStats {
 const SCALE: f64 = 1e6;
 
 /// Summary statistics of one metric.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, serde::Deserialize)]
 pub struct Stats {
     /// Values.
     pub count: u64,
