@@ -108,9 +108,9 @@ impl Engine {
     /// Reference objects at `t` by the alignment rule: `Ok(None)` when the role has never
     /// been heard (a setup without them), `Err(reason)` when it has but gives nothing
     /// for `t`.
-    pub(super) fn reference_objects_for(&mut self, t: f64) -> Result<(Arc<[Point]>, How), &'static str> {
+    pub(super) fn reference_objects_for(&mut self, t: f64) -> Result<(Arc<Vec<Point>>, How), &'static str> {
         if !self.heard(Role::ReferenceObjects) {
-            return Ok((Arc::from(Vec::new()), How::Exact));
+            return Ok((Arc::new(Vec::new()), How::Exact));
         }
         self.reference_shared(t)
     }

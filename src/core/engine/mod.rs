@@ -284,7 +284,7 @@ pub struct Engine {
     wa: Vec<Point>,
     wb: Vec<Point>,
     /// Reference objects resolved at recent stamps (see [`Engine::reference_shared`]).
-    ref_cache: std::collections::VecDeque<(RefKey, Arc<[Point]>, How)>,
+    ref_cache: std::collections::VecDeque<(RefKey, Arc<Vec<Point>>, How)>,
     /// Whether a reference object set in the ego frame has been heard.
     ref_in_ego_frame: bool,
     xp: Vec<[f64; 2]>,
@@ -642,7 +642,7 @@ impl Engine {
     /// The one way every family reads the reference objects at a stamp: resolved once and
     /// shared by the families that read the same stamp (tracking, clearance, the budget,
     /// plans), for as long as nothing it was resolved from has changed.
-    pub(super) fn reference_shared(&mut self, t: f64) -> Result<(Arc<[Point]>, How), &'static str> {
+    pub(super) fn reference_shared(&mut self, t: f64) -> Result<(Arc<Vec<Point>>, How), &'static str> {
         // The frame poses matter only once a reference set in the ego frame has been heard.
         let frames =
             if self.ref_in_ego_frame { (self.ref_ego.version(), self.est_ego.version()) } else { (0, 0) };
@@ -655,7 +655,7 @@ impl Engine {
         let res = self.reference_into(t, &mut wa, &mut wb, &mut pts);
         (self.wa, self.wb) = (wa, wb);
         let how = res?;
-        let pts: Arc<[Point]> = pts.into();
+        let pts = Arc::new(pts);
         if self.ref_cache.len() >= REF_CACHE {
             self.ref_cache.pop_front();
         }

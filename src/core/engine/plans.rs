@@ -29,7 +29,7 @@ pub struct PlanJob {
     t: f64,
     cp: ClearanceParams,
     map: Option<Arc<ObstacleIndex>>,
-    bodies: Arc<[Point]>,
+    bodies: Arc<Vec<Point>>,
     work: PlanWork,
 }
 
