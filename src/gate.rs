@@ -76,12 +76,6 @@ impl Status {
     }
 }
 
-impl std::fmt::Display for Status {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.pad(self.name())
-    }
-}
-
 /// One row of the comparison.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Row {
@@ -251,6 +245,8 @@ pub fn junit(rows: &[Row], candidate: &Value) -> String {
         "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<testsuites>\n  <testsuite name=\"plumbline-gate\" tests=\"{tests}\" failures=\"{failures}\" errors=\"0\" time=\"0\">\n{cases}  </testsuite>\n</testsuites>\n"
     )
 }
+
+display_by_name!(Status);
 
 #[cfg(test)]
 mod tests {

@@ -4,11 +4,11 @@
 //! - [`msg`]: the messages of the interchange contract and their validation (no I/O);
 //! - [`wire`]: direct readers of both log forms for object sets and poses (no I/O);
 //! - [`config`]: two-stage configuration (no I/O; the caller passes file text);
-//! - [`core`]: time alignment, assignment and the evaluation engine (no I/O, no clock);
+//! - [`core`]: time alignment and the evaluation engine, by metric family (no I/O, no clock);
 //! - [`gate`]: baseline comparison and JUnit XML (pure);
 //! - [`geometry`]: footprint, obstacles, distances, spatial index (pure);
 //! - [`inference`]: Clopper-Pearson and Kolmogorov-Smirnov across runs (pure);
-//! - [`metrics`]: one module per metric family (pure);
+//! - [`metrics`]: one module per metric family, the metric catalog, assignment (pure);
 //! - [`stats`]: run statistics with bounded memory (pure);
 //! - [`windows`]: sliding event-time windows with O(1) updates (pure);
 //! - [`report`]: the JSON report and the series rows (pure formatting);
@@ -26,6 +26,18 @@
 
 /// `eprintln!` that survives a closed stderr: a message that cannot be written has nowhere
 /// else to go and is dropped, where `eprintln!` would panic.
+/// `Display` for an enum of fixed words by its `name()`, padded like a `str` (so `{:<8}`
+/// lines up the way the words did when they were strings).
+macro_rules! display_by_name {
+    ($($t:ty),+) => {
+        $(impl std::fmt::Display for $t {
+            fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.pad(self.name())
+            }
+        })+
+    };
+}
+
 macro_rules! errln {
     ($($arg:tt)*) => {{
         use std::io::Write as _;

@@ -44,12 +44,6 @@ impl AlertKind {
     }
 }
 
-impl std::fmt::Display for AlertKind {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.pad(self.name())
-    }
-}
-
 /// A rule's verdict over a run.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -73,12 +67,6 @@ impl Outcome {
     }
 }
 
-impl std::fmt::Display for Outcome {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.pad(self.name())
-    }
-}
-
 /// Which side of its threshold a rule's statistic must not cross.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -96,18 +84,6 @@ impl Direction {
             Direction::Above => "above",
             Direction::Below => "below",
         }
-    }
-}
-
-impl std::fmt::Display for Direction {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.pad(self.name())
-    }
-}
-
-impl std::fmt::Display for Severity {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.pad(self.name())
     }
 }
 
@@ -464,6 +440,8 @@ impl RuleSet {
 pub fn critical_failed(verdicts: &[Verdict]) -> bool {
     verdicts.iter().any(|v| v.fails_run)
 }
+
+display_by_name!(AlertKind, Outcome, Direction, Severity);
 
 #[cfg(test)]
 mod tests {
