@@ -265,7 +265,7 @@ fn exposition_names_and_values_and_promtool_lint() {
         "{text}"
     );
     for family in [
-        "plumbline_latency_histogram_seconds_bucket",
+        "plumbline_latency_distribution_seconds_bucket",
         "plumbline_collision_events",
         "plumbline_ingest_seconds",
     ] {

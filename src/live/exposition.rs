@@ -18,8 +18,8 @@ pub use crate::metrics::catalog::{prom_histogram_name, prom_name};
 /// Families renamed in this release, exported under the old name too until the next one
 /// (old name, new name).
 pub const RENAMED_FAMILIES: [(&str, &str); 3] = [
-    ("plumbline_arrival_latency_seconds", "plumbline_latency_histogram_seconds"),
-    ("plumbline_arrival_gap_seconds", "plumbline_interarrival_histogram_seconds"),
+    ("plumbline_arrival_latency_seconds", "plumbline_latency_distribution_seconds"),
+    ("plumbline_arrival_gap_seconds", "plumbline_interarrival_distribution_seconds"),
     ("plumbline_decode_errors_total", "plumbline_rejected_total"),
 ];
 
@@ -297,8 +297,8 @@ mod tests {
         assert_eq!(prom_name(Metric::LateralAccel), "plumbline_lateral_accel_meters_per_second_squared");
         assert_eq!(prom_name(Metric::MissedCount), "plumbline_missed_objects");
         assert!(x.text().is_empty() || x.text().contains("plumbline_"));
-        assert_eq!(prom_histogram_name(Metric::Latency), "plumbline_latency_histogram_seconds");
-        assert_eq!(prom_histogram_name(Metric::Interarrival), "plumbline_interarrival_histogram_seconds");
+        assert_eq!(prom_histogram_name(Metric::Latency), "plumbline_latency_distribution_seconds");
+        assert_eq!(prom_histogram_name(Metric::Interarrival), "plumbline_interarrival_distribution_seconds");
     }
 
     #[test]
@@ -311,7 +311,7 @@ mod tests {
             value: 0.01,
         });
         let text = x.text();
-        for n in ["plumbline_latency_histogram_seconds", "plumbline_arrival_latency_seconds"] {
+        for n in ["plumbline_latency_distribution_seconds", "plumbline_arrival_latency_seconds"] {
             let line = format!("{n}_count{{role=\"estimate/objects\"}} 1");
             assert!(text.lines().any(|l| l == line), "{n}: {text}");
         }

@@ -557,12 +557,13 @@ pub fn prom_name(m: Metric) -> String {
 }
 
 /// The Prometheus histogram family of a per-role timing metric (latency, interarrival):
-/// its gauge family's name with `_histogram` before the unit, so both say the same metric.
+/// its gauge family's name with `_distribution` before the unit, so both say the same
+/// metric (a family name must not carry its type, `histogram`, by the exposition's lint).
 pub fn prom_histogram_name(m: Metric) -> String {
     let g = prom_name(m);
     match g.strip_suffix("_seconds") {
-        Some(stem) => format!("{stem}_histogram_seconds"),
-        None => format!("{g}_histogram"),
+        Some(stem) => format!("{stem}_distribution_seconds"),
+        None => format!("{g}_distribution"),
     }
 }
 
