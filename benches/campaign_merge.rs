@@ -7,7 +7,7 @@
 use std::collections::BTreeMap;
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use plumbline::campaign::{aggregate, merge, names_digest, shard_of, Partial, RowVerdict, RunRow, RunState};
+use plumbline::campaign::{aggregate, merge, shard_of, Partial, RowVerdict, RunRow, RunState};
 use plumbline::config::Config;
 use plumbline::metrics::Metric;
 use plumbline::rules::Outcome;
@@ -70,16 +70,8 @@ fn bench(c: &mut Criterion) {
     let names: Vec<String> = (0..RUNS).map(|i| format!("runs/run-{i:05}.plb")).collect();
     let texts: Vec<(String, String)> = (1..=SHARDS)
         .map(|k| {
-            let p = Partial {
-                tool: "plumbline".into(),
-                version: env!("CARGO_PKG_VERSION").into(),
-                config_digest: digest.clone(),
-                shard: k,
-                shards: SHARDS,
-                campaign_runs: RUNS,
-                campaign_digest: names_digest(&names),
-                rows: (0..RUNS).filter(|&i| shard_of(i, SHARDS) == k).map(|i| row(i, &cfg)).collect(),
-            };
+            let rows = (0..RUNS).filter(|&i| shard_of(i, SHARDS) == k).map(|i| row(i, &cfg)).collect();
+            let p = Partial::new(&digest, k, SHARDS, &names, rows);
             (format!("part-{k}.json"), serde_json::to_string(&p).expect("json"))
         })
         .collect();

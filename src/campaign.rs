@@ -133,6 +133,23 @@ pub struct Partial {
     pub rows: Vec<RunRow>,
 }
 
+impl Partial {
+    /// Shard `shard` of `shards` of the campaign over `names` (sorted), made by this
+    /// version with the config of `config_digest`, holding `rows`.
+    pub fn new(config_digest: &str, shard: u64, shards: u64, names: &[String], rows: Vec<RunRow>) -> Partial {
+        Partial {
+            tool: "plumbline".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+            config_digest: config_digest.into(),
+            shard,
+            shards,
+            campaign_runs: names.len() as u64,
+            campaign_digest: names_digest(names),
+            rows,
+        }
+    }
+}
+
 /// Checks that the partials (each with the file it came from) are the whole of one
 /// campaign made with `config_digest` by this version, each shard once and each run once,
 /// and returns the rows in the campaign's order. An error names the files.

@@ -278,7 +278,7 @@ impl Dashboard {
             .iter()
             .zip(&self.latest)
             .map(|(&m, l)| {
-                let e = crate::metrics::catalog::entry(m);
+                let e = crate::metrics::catalog::row(m);
                 let (label, unit) = (e.label.unwrap_or(m.name()), e.unit);
                 let (value, t, age_s) = match l {
                     Some(l) => (Some(l.value), Some(l.t), Some((now - l.seen_at).max(0.0))),

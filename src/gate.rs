@@ -38,12 +38,12 @@ pub struct Tolerance {
 /// The direction of the metrics gated by default, from the metric catalog; signed or
 /// neutral metrics, and the monitor's own view of its inputs, are left out.
 pub fn default_direction(metric: &str) -> Option<Worse> {
-    use crate::metrics::catalog::{entry, Worse as W};
+    use crate::metrics::catalog::{row, Worse as W};
     let m = crate::metrics::Metric::from_name(metric)?;
     if m.is_per_role() {
         return None;
     }
-    match entry(m).worse {
+    match row(m).worse {
         W::Higher => Some(Worse::Higher),
         W::Lower => Some(Worse::Lower),
         W::Neither => None,

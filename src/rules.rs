@@ -167,6 +167,16 @@ pub struct Rule {
 }
 
 impl Rule {
+    /// The roles the rule reads: its own, else every role for a per-role metric, else the
+    /// metric's one unroled series.
+    fn roles(&self) -> Vec<Option<Role>> {
+        match (self.role, self.metric.is_per_role()) {
+            (Some(role), _) => vec![Some(role)],
+            (None, true) => Role::ALL.iter().map(|&x| Some(x)).collect(),
+            (None, false) => vec![None],
+        }
+    }
+
     /// The statistic the rule judges, from a source of window or run statistics:
     /// `None` until the source holds `min_values` values.
     fn judged(&self, get: impl Fn(Stat) -> Option<f64>) -> Option<f64> {
@@ -291,10 +301,6 @@ pub struct RuleSet {
     by_key: Vec<Vec<usize>>,
 }
 
-fn is_per_role(m: Metric) -> bool {
-    m.is_per_role()
-}
-
 impl RuleSet {
     /// Builds the index of rules by metric key.
     pub fn new(rules: Vec<Rule>) -> RuleSet {
@@ -303,11 +309,7 @@ impl RuleSet {
             if !matches!(r.window, RuleWindow::Sliding(_)) {
                 continue;
             }
-            let roles: Vec<Option<Role>> = match (r.role, is_per_role(r.metric)) {
-                (Some(role), _) => vec![Some(role)],
-                (None, true) => Role::ALL.iter().map(|&x| Some(x)).collect(),
-                (None, false) => vec![None],
-            };
+            let roles = r.roles();
             for role in roles {
                 by_key[crate::windows::key_index(r.metric, role)].push(i);
             }
@@ -397,11 +399,7 @@ impl RuleSet {
                         (worst, self.states[i].iter().any(|s| s.raised_count > 0))
                     }
                     RuleWindow::Run => {
-                        let roles: Vec<Option<Role>> = match (r.role, is_per_role(r.metric)) {
-                            (Some(role), _) => vec![Some(role)],
-                            (None, true) => Role::ALL.iter().map(|&x| Some(x)).collect(),
-                            (None, false) => vec![None],
-                        };
+                        let roles = r.roles();
                         let worst = roles
                             .into_iter()
                             .filter_map(|role| r.judged(|s| run.stat(r.metric, role, s)))

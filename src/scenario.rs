@@ -136,11 +136,10 @@ impl Actor {
 }
 
 /// The key expression each role is published on.
-pub type Keys = [(Role, String)];
+pub type Keys = crate::msg::Bindings;
 
 fn rec(keys: &Keys, role: Role, recv: f64, msg: Msg) -> LogRecord {
-    let key = keys.iter().find(|(r, _)| *r == role).map_or("", |(_, k)| k.as_str());
-    LogRecord { key: key.to_string(), recv: Some(round6(recv)), msg }
+    LogRecord { key: crate::msg::key_of(keys, role).to_string(), recv: Some(round6(recv)), msg }
 }
 
 /// Rounds to a microsecond so logs stay short and exact.

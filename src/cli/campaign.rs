@@ -4,7 +4,7 @@ use std::path::{Path, PathBuf};
 
 use rayon::prelude::*;
 
-use crate::campaign::{aggregate, merge, names_digest, shard_of, Partial, RunRow};
+use crate::campaign::{aggregate, merge, shard_of, Partial, RunRow};
 use crate::config::Config;
 use crate::report::Report;
 
@@ -189,23 +189,21 @@ fn replay_rows(
 /// Runs `campaign`: every run, one shard of them (`--shard`), or the merge of shards.
 pub fn campaign_cmd(cfg: &Config, a: &CampaignArgs) -> u8 {
     let rows = if !a.merge.is_empty() {
-        match merged_rows(cfg, &a.merge) {
-            Ok(r) => r,
-            Err(e) => return super::fail("campaign", e),
-        }
+        merged_rows(cfg, &a.merge)
     } else {
         let logs = match expand(a.logs.as_deref().unwrap_or_default()) {
             Ok(l) => l,
             Err(e) => return super::fail("campaign", e),
         };
-        let all: Vec<u64> = (0..logs.len() as u64).collect();
-        match &a.shard {
-            Some(spec) => return shard_cmd(cfg, a, spec, &logs),
-            None => match replay_rows(cfg, a, &logs, &all) {
-                Ok(r) => r,
-                Err(e) => return super::fail("campaign", e),
-            },
+        if let Some(spec) = &a.shard {
+            return shard_cmd(cfg, a, spec, &logs);
         }
+        let all: Vec<u64> = (0..logs.len() as u64).collect();
+        replay_rows(cfg, a, &logs, &all)
+    };
+    let rows = match rows {
+        Ok(r) => r,
+        Err(e) => return super::fail("campaign", e),
     };
     let agg = aggregate(&cfg.rules, &cfg.digest(), &rows);
     outln!(
@@ -287,16 +285,7 @@ fn shard_cmd(cfg: &Config, a: &CampaignArgs, spec: &str, logs: &[PathBuf]) -> u8
         Err(e) => return super::fail("campaign", e),
     };
     let names: Vec<String> = logs.iter().map(|l| l.display().to_string()).collect();
-    let partial = Partial {
-        tool: "plumbline".into(),
-        version: env!("CARGO_PKG_VERSION").into(),
-        config_digest: cfg.digest(),
-        shard: k,
-        shards: n,
-        campaign_runs: logs.len() as u64,
-        campaign_digest: names_digest(&names),
-        rows,
-    };
+    let partial = Partial::new(&cfg.digest(), k, n, &names, rows);
     let path = a.partial.as_deref().expect("clap requires --partial with --shard");
     let text = serde_json::to_string(&partial).unwrap_or_default();
     if let Err(e) = std::fs::write(path, text) {

@@ -178,7 +178,7 @@ pub(crate) fn renamed(pairs: &[(&str, &str)]) {
     for (old, new) in pairs {
         let used = args.iter().any(|a| a == old || a.starts_with(&format!("{old}=")));
         if used {
-            errln!("plumbline: warning: `{old}` is now `{new}`; the old name goes in the next release");
+            errln!("plumbline: warning: {}", crate::config::renamed_note(old, new));
         }
     }
 }

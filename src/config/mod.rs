@@ -164,6 +164,7 @@ impl Config {
     /// Merges the sources and resolves. `file` is (name, text).
     pub fn load(file: Option<(&str, &str)>, sets: &[String]) -> Result<Config, ConfigError> {
         let mut table = toml::Table::new();
+        let mut raw = RawConfig::default();
         let mut warnings = Vec::new();
         let mut last_source = "built-in defaults".to_string();
         if let Some((name, text)) = file {
@@ -175,28 +176,18 @@ impl Config {
                 err(name, "", format!("not valid TOML{}: {}", at.unwrap_or_default(), e.message().trim()))
             })?;
             warnings.extend(migrate(&mut table, name)?);
-            check_raw(&table, name).map_err(|e| annotate(e, &table))?;
+            raw = check_raw(&table, name).map_err(|e| annotate(e, &table))?;
             last_source = name.to_string();
         }
         for s in sets {
             let label = format!("--set {s}");
             // An old key name set here means the new one, and overrides what came before.
-            let set = match s.split_once('=') {
-                Some((k, v)) if current_key(k.trim()) != k.trim() => {
-                    let new = current_key(k.trim());
-                    warnings.push(format!(
-                        "{label}: `{}` is now `{new}`; the old name goes in the next release",
-                        k.trim()
-                    ));
-                    format!("{new}={v}")
-                }
-                _ => s.clone(),
-            };
-            apply_set(&mut table, &set).map_err(|e| err(&label, &e.0, e.1))?;
-            check_raw(&table, &label).map_err(|e| annotate(e, &table))?;
+            if let Some((old, new)) = apply_set(&mut table, s).map_err(|e| err(&label, &e.0, e.1))? {
+                warnings.push(format!("{label}: {}", renamed_note(&old, &new)));
+            }
+            raw = check_raw(&table, &label).map_err(|e| annotate(e, &table))?;
             last_source = label;
         }
-        let raw = check_raw(&table, &last_source).map_err(|e| annotate(e, &table))?;
         let mut cfg = Config::build(&raw, &last_source).map_err(|e| annotate(e, &table))?;
         cfg.warnings = warnings;
         Ok(cfg)
@@ -236,12 +227,12 @@ impl Config {
 
     /// The key expression bound to a role.
     pub fn key_of(&self, role: Role) -> &str {
-        self.roles.iter().find(|(r, _)| *r == role).map(|(_, k)| k.as_str()).unwrap_or("")
+        crate::msg::key_of(&self.roles, role)
     }
 
     /// The role bound to an exact key, if any.
     pub fn role_of(&self, key: &str) -> Option<Role> {
-        self.roles.iter().find(|(_, k)| k == key).map(|(r, _)| *r)
+        crate::msg::role_of(&self.roles, key)
     }
 
     /// The settings that define what a metric means, by their config keys: two reports
@@ -324,6 +315,11 @@ fn annotate(mut e: ConfigError, table: &toml::Table) -> ConfigError {
 
 pub use crate::report::{current_key, RENAMED_KEYS};
 
+/// The warning for an old name that still works (config keys, command and option names).
+pub fn renamed_note(old: &str, new: &str) -> String {
+    format!("`{old}` is now `{new}`; the old name goes in the next release")
+}
+
 /// Moves renamed keys to their new names, returning a warning for each old name used;
 /// both names at once is an error (which one was meant cannot be known).
 fn migrate(table: &mut toml::Table, source: &str) -> Result<Vec<String>, ConfigError> {
@@ -339,9 +335,8 @@ fn migrate(table: &mut toml::Table, source: &str) -> Result<Vec<String>, ConfigE
             ));
         }
         t.insert(new.to_string(), v);
-        warnings.push(format!(
-            "{source}: `{sec}.{old}` is now `{sec}.{new}`; the old name goes in the next release"
-        ));
+        warnings
+            .push(format!("{source}: {}", renamed_note(&format!("{sec}.{old}"), &format!("{sec}.{new}"))));
     }
     Ok(warnings)
 }
@@ -355,8 +350,9 @@ fn check_raw(table: &toml::Table, source: &str) -> Result<RawConfig, ConfigError
     })
 }
 
-/// Applies `section.key=value`; the value is read as a TOML value, else as a string.
-fn apply_set(table: &mut toml::Table, s: &str) -> Result<(), (String, String)> {
+/// Applies `section.key=value`; the value is read as a TOML value, else as a string. A
+/// renamed key is set under its new name, and the (old, new) pair comes back.
+fn apply_set(table: &mut toml::Table, s: &str) -> Result<Option<(String, String)>, (String, String)> {
     let (path, value) =
         s.split_once('=').ok_or_else(|| (s.to_string(), "the form section.key=value".to_string()))?;
     let path = path.trim();
@@ -369,6 +365,10 @@ fn apply_set(table: &mut toml::Table, s: &str) -> Result<(), (String, String)> {
     if parts.len() != 2 || parts.iter().any(|p| p.is_empty()) {
         return Err((path.to_string(), "the form section.key=value".to_string()));
     }
+    let given = format!("{}.{}", parts[0], parts[1]);
+    let current = current_key(&given);
+    let renamed = (current != given).then(|| (given, current.clone()));
+    let parts: Vec<&str> = if renamed.is_some() { current.splitn(2, '.').collect() } else { parts };
     let text = value.trim();
     let parsed = format!("v = {text}")
         .parse::<toml::Table>()
@@ -379,7 +379,7 @@ fn apply_set(table: &mut toml::Table, s: &str) -> Result<(), (String, String)> {
     match section {
         toml::Value::Table(t) => {
             t.insert(parts[1].to_string(), parsed);
-            Ok(())
+            Ok(renamed)
         }
         _ => Err((parts[0].to_string(), "a table".to_string())),
     }

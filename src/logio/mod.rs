@@ -93,7 +93,7 @@ pub struct LogParams {
 impl LogParams {
     /// The role bound to an exact key, if any.
     pub fn role_of(&self, key: &str) -> Option<Role> {
-        self.roles.iter().find(|(_, k)| k == key).map(|(r, _)| *r)
+        crate::msg::role_of(&self.roles, key)
     }
 
     /// Message validation limits.

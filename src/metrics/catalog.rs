@@ -50,9 +50,6 @@ pub struct Row {
     pub plot: bool,
 }
 
-/// Back-compatible name of a catalog row.
-pub type Entry = Row;
-
 /// The catalog, one row per metric in [`Metric::ALL`] order (a test holds the order).
 pub static ROWS: [Row; Metric::ALL.len()] = {
     use Kind::*;
@@ -519,11 +516,6 @@ pub fn row(m: Metric) -> &'static Row {
     &ROWS[m as usize]
 }
 
-/// The catalog entry of a metric (the same as [`row`]).
-pub fn entry(m: Metric) -> &'static Row {
-    row(m)
-}
-
 /// The dashboard's tiles, in catalog order.
 pub fn tiles() -> impl Iterator<Item = Metric> {
     ROWS.iter().filter(|r| r.tile).map(|r| r.metric)
@@ -571,7 +563,7 @@ pub fn prom_histogram_name(m: Metric) -> String {
 pub fn glossary_markdown() -> String {
     let mut s = String::from("| metric | unit | meaning | Prometheus family | dashboard | worse when |\n|---|---|---|---|---|---|\n");
     for m in Metric::ALL {
-        let e = entry(m);
+        let e = row(m);
         let worse = match e.worse {
             Worse::Higher => "higher",
             Worse::Lower => "lower",

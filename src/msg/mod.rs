@@ -32,6 +32,19 @@ pub enum Role {
     ReferenceObstacles,
 }
 
+/// Which key expression each role is bound to (the config's `[roles]`).
+pub type Bindings = [(Role, String)];
+
+/// The key expression bound to a role ("" when unbound).
+pub fn key_of(bindings: &Bindings, role: Role) -> &str {
+    bindings.iter().find(|(r, _)| *r == role).map_or("", |(_, k)| k.as_str())
+}
+
+/// The role bound to an exact key, if any.
+pub fn role_of(bindings: &Bindings, key: &str) -> Option<Role> {
+    bindings.iter().find(|(_, k)| k == key).map(|(r, _)| *r)
+}
+
 impl Role {
     /// Every role, in a fixed order.
     pub const ALL: [Role; 6] = [

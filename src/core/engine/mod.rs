@@ -571,11 +571,10 @@ impl Engine {
 
     fn drain(&mut self, all: bool, out: &mut Vec<Sample>) {
         // Each family's queue in stamp order: a step goes when it is due (see
-        // `Queue::take_due`); readiness is asked only of a step not due otherwise.
+        // `Queue::take_due`).
         let now = self.now;
-        let due = |p: &Pending<_>| all || p.deadline < now;
         while let Some(p) = self.tracks.front() {
-            let ready = due(p) || self.tracking_ready(p);
+            let ready = self.tracking_ready(p);
             let Some(p) = self.tracks.take_due(now, all, ready) else { break };
             self.eval_tracking(p.t, &p.item, out);
         }
