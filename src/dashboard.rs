@@ -320,12 +320,12 @@ impl Dashboard {
             .iter()
             .map(|a| ActiveAlert {
                 rule: a.event.rule.clone(),
-                role: a.event.role,
+                role: a.event.role.clone(),
                 severity: a.event.severity,
-                metric: a.event.metric,
+                metric: a.event.metric.clone(),
                 raised_t: a.event.t,
                 active_s: (now - a.seen_at).max(0.0),
-                stale: Metric::from_name(a.event.metric)
+                stale: Metric::from_name(&a.event.metric)
                     .and_then(|m| self.metric_seen[m as usize])
                     .is_none_or(|seen| now - seen > stale_after),
                 value: a.event.value,
@@ -527,11 +527,11 @@ pub struct ActiveAlert {
     /// Rule name.
     pub rule: String,
     /// Role, for per-role rules.
-    pub role: Option<&'static str>,
+    pub role: Option<crate::msg::Name>,
     /// Severity.
     pub severity: Severity,
     /// Metric.
-    pub metric: &'static str,
+    pub metric: crate::msg::Name,
     /// Event time it was raised at (as in the alert journal).
     pub raised_t: f64,
     /// Seconds active, on the monitor's clock.

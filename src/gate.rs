@@ -1,6 +1,6 @@
 //! The regression gate: compares a candidate run's report with a baseline's under
 //! per-metric tolerances, and writes JUnit XML for CI servers. Pure (the caller reads and
-//! writes files).
+//! writes files), on typed reports ([`Report::read`] reads one back).
 //!
 //! A metric statistic regresses when it moved in its worse direction by more than
 //! `max(abs, rel * |baseline|)`, and improves when it moved the other way by more than that.
@@ -9,6 +9,9 @@
 
 use serde::Serialize;
 use serde_json::Value;
+
+use crate::report::Report;
+use crate::rules::{Outcome, Severity};
 
 /// Which way is worse.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -93,8 +96,8 @@ pub struct Row {
     pub status: Status,
 }
 
-fn stat_of(report: &Value, metric: &str, stat: &str) -> Option<f64> {
-    report.get("metrics")?.get(metric)?.get(stat)?.as_f64()
+fn stat_of(report: &Report, metric: &str, stat: &str) -> Option<f64> {
+    report.metrics.get(metric)?.get(stat)
 }
 
 /// Rare-event counts, gated on their run total with an absolute tolerance of one event:
@@ -104,18 +107,15 @@ pub const EVENT_COUNTS: [&str; 3] = ["track_switches", "fragmentations", "path_m
 /// The settings whose values differ between two reports' `definitions`, as
 /// `key: baseline vs candidate`; a report without definitions (older versions) differs in
 /// nothing that can be told.
-pub fn definition_changes(base: &Value, cand: &Value) -> Vec<String> {
-    let (Some(b), Some(c)) = (
-        base.get("definitions").and_then(Value::as_object),
-        cand.get("definitions").and_then(Value::as_object),
-    ) else {
+pub fn definition_changes(base: &Report, cand: &Report) -> Vec<String> {
+    if base.definitions.is_empty() || cand.definitions.is_empty() {
         return Vec::new();
-    };
+    }
     // A report of the release before a key's rename names it the old way.
-    let current = |m: &serde_json::Map<String, Value>| -> std::collections::BTreeMap<String, Value> {
-        m.iter().map(|(k, v)| (crate::report::current_key(k), v.clone())).collect()
+    let current = |r: &Report| -> std::collections::BTreeMap<String, Value> {
+        r.definitions.iter().map(|(k, v)| (crate::report::current_key(k), v.clone())).collect()
     };
-    let (b, c) = (current(b), current(c));
+    let (b, c) = (current(base), current(cand));
     let mut keys: Vec<&String> = b.keys().chain(c.keys()).collect();
     keys.sort();
     keys.dedup();
@@ -131,12 +131,10 @@ pub fn definition_changes(base: &Value, cand: &Value) -> Vec<String> {
 /// The default tolerances for two reports: the mean of every directional metric in either
 /// (5% of the baseline), and the run total of the rare-event counts ([`EVENT_COUNTS`], one
 /// event).
-pub fn default_tolerances(base: &Value, cand: &Value) -> Vec<Tolerance> {
+pub fn default_tolerances(base: &Report, cand: &Report) -> Vec<Tolerance> {
     let mut names: Vec<String> = Vec::new();
     for r in [base, cand] {
-        if let Some(m) = r.get("metrics").and_then(Value::as_object) {
-            names.extend(m.keys().cloned());
-        }
+        names.extend(r.metrics.keys().map(|k| k.to_string()));
     }
     names.sort();
     names.dedup();
@@ -155,7 +153,7 @@ pub fn default_tolerances(base: &Value, cand: &Value) -> Vec<Tolerance> {
 }
 
 /// Compares the candidate with the baseline.
-pub fn compare(base: &Value, cand: &Value, tolerances: &[Tolerance]) -> Vec<Row> {
+pub fn compare(base: &Report, cand: &Report, tolerances: &[Tolerance]) -> Vec<Row> {
     tolerances
         .iter()
         .map(|t| {
@@ -196,26 +194,23 @@ fn esc(s: &str) -> String {
 }
 
 /// JUnit XML: one test case per rule verdict of the candidate and per gated metric.
-pub fn junit(rows: &[Row], candidate: &Value) -> String {
-    let verdicts = candidate.get("verdicts").and_then(Value::as_array).cloned().unwrap_or_default();
+pub fn junit(rows: &[Row], candidate: &Report) -> String {
+    let verdicts = &candidate.verdicts;
     let mut cases = String::new();
     let mut failures = 0;
-    for v in &verdicts {
-        let name = v.get("rule").and_then(Value::as_str).unwrap_or("");
-        let verdict = v.get("verdict").and_then(Value::as_str).unwrap_or("");
-        cases += &format!("    <testcase classname=\"plumbline.rules\" name=\"{}\" time=\"0\">", esc(name));
-        let fails_run = v.get("fails_run").and_then(Value::as_bool).unwrap_or(false);
-        if verdict == "fail" || (verdict == "no_data" && fails_run) {
+    for v in verdicts {
+        cases +=
+            &format!("    <testcase classname=\"plumbline.rules\" name=\"{}\" time=\"0\">", esc(&v.rule));
+        if v.verdict == Outcome::Fail || (v.verdict == Outcome::NoData && v.fails_run) {
             failures += 1;
-            let num = |k: &str| v.get(k).and_then(Value::as_f64).map_or_else(|| "none".to_string(), fmt_num);
             let msg = format!(
                 "{} rule failed: worst {} ({} {} over {}) against threshold {}",
-                v.get("severity").and_then(Value::as_str).unwrap_or(""),
-                num("worst"),
-                v.get("stat").and_then(Value::as_str).unwrap_or(""),
-                v.get("metric").and_then(Value::as_str).unwrap_or(""),
-                v.get("window").and_then(Value::as_str).unwrap_or(""),
-                num("threshold")
+                v.severity.name(),
+                v.worst.map_or_else(|| "none".to_string(), fmt_num),
+                v.stat,
+                v.metric,
+                v.window,
+                fmt_num(v.threshold)
             );
             cases += &format!("<failure message=\"{}\" type=\"rule\"/>", esc(&msg));
         }
@@ -246,37 +241,78 @@ pub fn junit(rows: &[Row], candidate: &Value) -> String {
     )
 }
 
+/// Whether the candidate fails on its own rules: a verdict that fails the run, or a
+/// critical rule that failed (a report of an early release has no `fails_run`).
+pub fn critical_failure(candidate: &Report) -> bool {
+    candidate
+        .verdicts
+        .iter()
+        .any(|v| v.fails_run || (v.verdict == Outcome::Fail && v.severity == Severity::Critical))
+}
+
 display_by_name!(Status);
 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use serde_json::json;
+    use crate::msg::Name;
+    use crate::rules::{Direction, Verdict};
+    use crate::stats::Stats;
+
+    fn st(mean: f64, sum: f64) -> Stats {
+        Stats { count: 600, mean, min: mean, max: mean, p50: mean, p95: mean, p99: mean, sum }
+    }
+
+    fn with_metrics(m: &[(&'static str, Stats)]) -> Report {
+        Report {
+            tool: Name::Borrowed("plumbline"),
+            metrics: m.iter().map(|(k, v)| (Name::Borrowed(*k), *v)).collect(),
+            ..Report::default()
+        }
+    }
+
+    fn with_definitions(d: serde_json::Value) -> Report {
+        let text = serde_json::json!({"tool": "plumbline", "definitions": d}).to_string();
+        Report::read(&text).unwrap()
+    }
 
     #[test]
     fn regressions_and_improvements_by_direction() {
         let base =
-            json!({"metrics": {"gospa": {"mean": 1.0}, "clearance_m": {"mean": 2.0}, "ospa": {"mean": 0.5}}});
-        let cand = json!({"metrics": {"gospa": {"mean": 1.2}, "clearance_m": {"mean": 2.5}, "ospa": {"mean": 0.51}}});
+            with_metrics(&[("gospa", st(1.0, 0.0)), ("clearance_m", st(2.0, 0.0)), ("ospa", st(0.5, 0.0))]);
+        let mut cand =
+            with_metrics(&[("gospa", st(1.2, 0.0)), ("clearance_m", st(2.5, 0.0)), ("ospa", st(0.51, 0.0))]);
         let rows = compare(&base, &cand, &default_tolerances(&base, &cand));
         let st: Vec<(&str, &str)> = rows.iter().map(|r| (r.metric.as_str(), r.status.name())).collect();
         assert_eq!(st, vec![("clearance_m", "improved"), ("gospa", "regressed"), ("ospa", "within")]);
-        let x = junit(
-            &rows,
-            &json!({"verdicts": [{"rule": "a<b", "verdict": "fail", "severity": "critical", "worst": 3, "threshold": 1}]}),
-        );
+        cand.verdicts.push(Verdict {
+            rule: "a<b".into(),
+            verdict: Outcome::Fail,
+            fails_run: true,
+            worst: Some(3.0),
+            threshold: 1.0,
+            direction: Direction::Above,
+            severity: Severity::Critical,
+            metric: Name::Borrowed("gospa"),
+            stat: Name::Borrowed("max"),
+            window: "5s".into(),
+            raised: 1,
+        });
+        let x = junit(&rows, &cand);
         assert!(x.contains("tests=\"4\" failures=\"2\""), "{x}");
         assert!(x.contains("name=\"a&lt;b\""));
+        assert!(x.contains("critical rule failed: worst 3 (max gospa over 5s) against threshold 1"), "{x}");
         // Numbers, not Rust's debug form of options.
         assert!(x.contains("baseline 1, candidate 1.2") && !x.contains("Some("), "{x}");
+        assert!(critical_failure(&cand) && !critical_failure(&base));
     }
 
     /// One extra track switch over a run is within the default gate; two are not.
     #[test]
     fn event_counts_are_gated_on_their_total_with_one_event_of_slack() {
-        let base = json!({"metrics": {"track_switches": {"mean": 1.0 / 600.0, "sum": 1.0}}});
+        let base = with_metrics(&[("track_switches", st(1.0 / 600.0, 1.0))]);
         for (sum, status) in [(2.0, "within"), (3.0, "regressed"), (0.0, "within")] {
-            let cand = json!({"metrics": {"track_switches": {"mean": sum / 600.0, "sum": sum}}});
+            let cand = with_metrics(&[("track_switches", st(sum / 600.0, sum))]);
             let rows = compare(&base, &cand, &default_tolerances(&base, &cand));
             assert_eq!((rows[0].stat.as_str(), rows[0].status.name()), ("sum", status), "{sum}");
         }
@@ -284,21 +320,33 @@ mod tests {
 
     #[test]
     fn definition_changes_name_their_keys() {
-        let base = json!({"definitions": {"tracking.cutoff_m": 2.0, "tracking.order": 1.0}});
-        let cand = json!({"definitions": {"tracking.cutoff_m": 0.5, "tracking.order": 1.0}});
+        let base = with_definitions(serde_json::json!({"tracking.cutoff_m": 2.0, "tracking.order": 1.0}));
+        let cand = with_definitions(serde_json::json!({"tracking.cutoff_m": 0.5, "tracking.order": 1.0}));
         assert_eq!(definition_changes(&base, &cand), vec!["tracking.cutoff_m: 2.0 vs 0.5".to_string()]);
         assert!(definition_changes(&base, &base).is_empty());
     }
 
     #[test]
     fn a_renamed_definition_key_is_the_same_setting() {
-        let base = json!({"definitions": {"tracking.region_m": 40.0}});
-        let same = json!({"definitions": {"tracking.region_radius_m": 40.0}});
-        let other = json!({"definitions": {"tracking.region_radius_m": 0.0}});
+        let base = with_definitions(serde_json::json!({"tracking.region_m": 40.0}));
+        let same = with_definitions(serde_json::json!({"tracking.region_radius_m": 40.0}));
+        let other = with_definitions(serde_json::json!({"tracking.region_radius_m": 0.0}));
         assert!(definition_changes(&base, &same).is_empty());
         assert_eq!(
             definition_changes(&base, &other),
             vec!["tracking.region_radius_m: 40.0 vs 0.0".to_string()]
         );
+    }
+
+    /// A report reads back to what was written, and a document that is not one is refused.
+    #[test]
+    fn reports_read_back_and_others_are_refused() {
+        let r = with_metrics(&[("gospa", st(1.25, 750.0))]);
+        let text = serde_json::to_string(&r).unwrap();
+        let back = Report::read(&text).unwrap();
+        assert_eq!(serde_json::to_string(&back).unwrap(), text);
+        assert_eq!(back.metrics["gospa"].get("sum"), Some(750.0));
+        assert!(Report::read(r#"{"tool": "other"}"#).unwrap_err().contains("not a plumbline report"));
+        assert!(Report::read("[1, 2]").unwrap_err().starts_with("not a report"));
     }
 }

@@ -183,7 +183,7 @@ fn polygon(pts: &[[f64; 2]]) -> Polygon<f64> {
 }
 
 /// Where an obstacle comes from.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
 #[serde(tag = "source", content = "id", rename_all = "lowercase")]
 pub enum ObstacleId {
     /// The static site map.

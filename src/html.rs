@@ -345,7 +345,7 @@ pub fn run_report_with(r: &Report, s: &Series, extra: &str) -> String {
     let mut spans: BTreeMap<String, Vec<(f64, f64)>> = BTreeMap::new();
     let mut open: BTreeMap<String, f64> = BTreeMap::new();
     for e in &r.alerts {
-        let key = format!("{}{}", e.rule, e.role.map(|x| format!(" [{x}]")).unwrap_or_default());
+        let key = format!("{}{}", e.rule, e.role.as_ref().map(|x| format!(" [{x}]")).unwrap_or_default());
         if e.kind == crate::rules::AlertKind::Raised {
             open.insert(key, e.t);
         } else if let Some(t0) = open.remove(&key) {

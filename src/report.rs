@@ -4,13 +4,13 @@
 
 use std::collections::BTreeMap;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::core::engine::{Collision, Counters, Sample, StepCounts};
 use crate::metrics::nees::Consistency;
 use crate::metrics::Metric;
 use crate::monitor::Monitor;
-use crate::msg::Role;
+use crate::msg::{Name, Role};
 use crate::msg::{Position, Tail};
 use crate::rules::{AlertEvent, Verdict};
 pub use crate::stats::RunStats;
@@ -38,14 +38,14 @@ pub fn current_key(key: &str) -> String {
 }
 
 /// One rejected record, for the report and the summary.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct BadRecord {
     /// `line N` or `byte N`.
     pub at: String,
     /// Role, when known.
-    pub role: Option<&'static str>,
+    pub role: Option<Name>,
     /// Reason code.
-    pub reason: &'static str,
+    pub reason: Name,
     /// Detail.
     pub detail: String,
 }
@@ -55,15 +55,16 @@ impl BadRecord {
     pub fn new(pos: Position, role: Option<Role>, reason: &crate::msg::Reject) -> BadRecord {
         BadRecord {
             at: pos.to_string(),
-            role: role.map(Role::name),
-            reason: reason.code(),
+            role: role.map(|r| Name::Borrowed(r.name())),
+            reason: Name::Borrowed(reason.code()),
             detail: reason.to_string(),
         }
     }
 }
 
 /// Transport section of one role.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(default)]
 pub struct RoleTransport {
     /// Messages accepted.
     pub messages: u64,
@@ -86,7 +87,8 @@ pub struct RoleTransport {
 }
 
 /// Steps section.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(default)]
 pub struct Steps {
     /// Tracking steps (one per `estimate/objects` message).
     pub tracking: StepCounts,
@@ -105,14 +107,15 @@ pub struct Steps {
 }
 
 /// Records section.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(default)]
 pub struct Records {
     /// Accepted.
     pub accepted: u64,
     /// Rejected.
     pub rejected: u64,
     /// Rejections by reason.
-    pub rejected_by_reason: BTreeMap<&'static str, u64>,
+    pub rejected_by_reason: BTreeMap<Name, u64>,
     /// The first rejected records, with where and why.
     pub first_rejected: Vec<BadRecord>,
     /// Object states accepted.
@@ -129,7 +132,8 @@ pub struct Records {
 }
 
 /// Damaged stretches of a binary log: totals, and the first [`DamageSummary::KEEP`].
-#[derive(Debug, Clone, Default, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(default)]
 pub struct DamageSummary {
     /// Stretches skipped.
     pub stretches: u64,
@@ -158,10 +162,11 @@ impl DamageSummary {
 }
 
 /// How percentiles were computed.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(default)]
 pub struct PercentileMethod {
     /// `exact-linear` or `hdr`.
-    pub method: &'static str,
+    pub method: Name,
     /// Exact values kept per metric before the histogram takes over.
     pub exact_values: usize,
     /// Histogram significant digits.
@@ -169,16 +174,17 @@ pub struct PercentileMethod {
 }
 
 /// The report of one run.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(default)]
 pub struct Report {
     /// `plumbline`.
-    pub tool: &'static str,
+    pub tool: Name,
     /// Crate version.
-    pub version: &'static str,
+    pub version: Name,
     /// Digest of the resolved config.
     pub config_digest: String,
     /// The settings that define the metrics (`Config::definitions`), by config key.
-    pub definitions: BTreeMap<&'static str, serde_json::Value>,
+    pub definitions: BTreeMap<Name, serde_json::Value>,
     /// Digest of the input bytes.
     pub input_digest: String,
     /// Input file.
@@ -190,13 +196,13 @@ pub struct Report {
     /// Records.
     pub records: Records,
     /// Per metric statistics.
-    pub metrics: BTreeMap<&'static str, Stats>,
+    pub metrics: BTreeMap<Name, Stats>,
     /// Run totals of count metrics.
-    pub totals: BTreeMap<&'static str, f64>,
+    pub totals: BTreeMap<Name, f64>,
     /// Pooled NEES consistency test.
     pub nees_consistency: Option<Consistency>,
     /// Per role transport.
-    pub transport: BTreeMap<&'static str, RoleTransport>,
+    pub transport: BTreeMap<Name, RoleTransport>,
     /// Percentile method.
     pub percentiles: PercentileMethod,
     /// Alert events (the first `monitor::KEEP_ALERTS`).
@@ -239,6 +245,24 @@ pub struct ReportSettings {
 }
 
 impl Report {
+    /// Reads a report back from its JSON. Sections a report of an earlier release did not
+    /// write yet read as empty (a baseline kept from the last release stays usable); a
+    /// document that is not a plumbline report is refused.
+    pub fn read(text: &str) -> Result<Report, String> {
+        let r: Report = serde_json::from_str(text).map_err(|e| format!("not a report: {e}"))?;
+        if r.tool != "plumbline" {
+            return Err(format!("not a plumbline report (its `tool` is {:?})", r.tool));
+        }
+        Ok(r)
+    }
+}
+
+/// A map keyed by fixed words, as the report keys it.
+fn names<V: Clone>(m: &BTreeMap<&'static str, V>) -> BTreeMap<Name, V> {
+    m.iter().map(|(k, v)| (Name::Borrowed(k), v.clone())).collect()
+}
+
+impl Report {
     /// Builds the report.
     pub fn build(cfg: &ReportSettings, monitor: &Monitor, inputs: RunInputs) -> Report {
         let (engine, stats) = (&monitor.engine, &monitor.stats);
@@ -252,9 +276,9 @@ impl Report {
                 continue;
             }
             if let Some(s) = stats.get(m, None) {
-                metrics.insert(m.name(), s);
+                metrics.insert(Name::Borrowed(m.name()), s);
                 if m.is_count() {
-                    totals.insert(m.name(), s.sum);
+                    totals.insert(Name::Borrowed(m.name()), s.sum);
                 }
             }
         }
@@ -265,7 +289,7 @@ impl Report {
                 continue;
             }
             transport.insert(
-                r.name(),
+                Name::Borrowed(r.name()),
                 RoleTransport {
                     messages: t.messages,
                     rejected: t.rejected,
@@ -283,10 +307,10 @@ impl Report {
             _ => 0.0,
         };
         Report {
-            tool: "plumbline",
-            version: env!("CARGO_PKG_VERSION"),
+            tool: Name::Borrowed("plumbline"),
+            version: Name::Borrowed(env!("CARGO_PKG_VERSION")),
             config_digest: cfg.config_digest.clone(),
-            definitions: cfg.definitions.clone(),
+            definitions: names(&cfg.definitions),
             input_digest: inputs.input_digest,
             input: inputs.input,
             duration_s,
@@ -302,7 +326,7 @@ impl Report {
             records: Records {
                 accepted: c.accepted,
                 rejected: c.rejected,
-                rejected_by_reason: c.rejected_by_reason.clone(),
+                rejected_by_reason: names(&c.rejected_by_reason),
                 first_rejected: inputs.first_rejected,
                 object_states: c.object_states,
                 tail: inputs.tail,
@@ -315,7 +339,7 @@ impl Report {
             nees_consistency: engine.nees_pool().consistency(),
             transport,
             percentiles: PercentileMethod {
-                method: if stats.all_exact() { "exact-linear" } else { "hdr" },
+                method: Name::Borrowed(if stats.all_exact() { "exact-linear" } else { "hdr" }),
                 exact_values: cfg.stats.exact_values,
                 histogram_digits: cfg.stats.histogram_digits,
             },
@@ -332,7 +356,8 @@ impl Report {
     /// no requirement). Such a run exits 2, whatever its rules say.
     pub fn not_evaluable(&self) -> Option<String> {
         let judged = self.metrics.iter().any(|(name, st)| {
-            st.count > 0 && !matches!(*name, "latency_s" | "interarrival_s" | "staleness_s" | "publishers")
+            st.count > 0
+                && !matches!(name.as_ref(), "latency_s" | "interarrival_s" | "staleness_s" | "publishers")
         });
         if judged {
             return None;

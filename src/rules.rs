@@ -20,7 +20,7 @@ use serde::Serialize;
 
 use crate::core::align::EXACT_S;
 use crate::metrics::Metric;
-use crate::msg::Role;
+use crate::msg::{Name, Role};
 use crate::stats::RunStats;
 use crate::windows::{Stat, WindowSet};
 
@@ -226,7 +226,7 @@ impl Rule {
 }
 
 /// An alert event.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
 pub struct AlertEvent {
     /// Rule name.
     pub rule: String,
@@ -241,24 +241,26 @@ pub struct AlertEvent {
     /// Severity.
     pub severity: Severity,
     /// Metric.
-    pub metric: &'static str,
+    pub metric: Name,
     /// Statistic.
-    pub stat: &'static str,
+    pub stat: Name,
     /// Window.
     pub window: String,
     /// Role, for per-role metrics.
-    pub role: Option<&'static str>,
+    pub role: Option<Name>,
 }
 
 /// A rule's verdict.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
 pub struct Verdict {
     /// Rule name.
     pub rule: String,
     /// Pass, fail or no data.
     pub verdict: Outcome,
     /// Whether this verdict fails the run: a critical rule that failed, or a critical rule
-    /// with no data unless it allows that (`allow_no_data`).
+    /// with no data unless it allows that (`allow_no_data`). (Absent from reports of early
+    /// releases: read as false there.)
+    #[serde(default)]
     pub fails_run: bool,
     /// Worst value seen.
     pub worst: Option<f64>,
@@ -269,9 +271,9 @@ pub struct Verdict {
     /// Severity.
     pub severity: Severity,
     /// Metric.
-    pub metric: &'static str,
+    pub metric: Name,
     /// Statistic.
-    pub stat: &'static str,
+    pub stat: Name,
     /// Window.
     pub window: String,
     /// Times raised.
@@ -356,10 +358,10 @@ impl RuleSet {
                 value: v,
                 threshold: r.threshold,
                 severity: r.severity,
-                metric: r.metric.name(),
-                stat: r.stat.name(),
+                metric: Name::Borrowed(r.metric.name()),
+                stat: Name::Borrowed(r.stat.name()),
                 window: r.window_label.clone(),
-                role: role.map(Role::name),
+                role: role.map(|r| Name::Borrowed(r.name())),
             };
             if r.breaches(v) {
                 st.clear_since = None;
@@ -423,8 +425,8 @@ impl RuleSet {
                     threshold: r.threshold,
                     direction: if r.above { Direction::Above } else { Direction::Below },
                     severity: r.severity,
-                    metric: r.metric.name(),
-                    stat: r.stat.name(),
+                    metric: Name::Borrowed(r.metric.name()),
+                    stat: Name::Borrowed(r.stat.name()),
                     window: r.window_label.clone(),
                     raised,
                 }

@@ -169,6 +169,26 @@ pub struct Stats {
     pub sum: f64,
 }
 
+impl Stats {
+    /// The statistics' names, as the report writes them.
+    pub const FIELDS: [&'static str; 8] = ["count", "mean", "min", "max", "p50", "p95", "p99", "sum"];
+
+    /// One statistic by its name in the report.
+    pub fn get(&self, name: &str) -> Option<f64> {
+        Some(match name {
+            "count" => self.count as f64,
+            "mean" => self.mean,
+            "min" => self.min,
+            "max" => self.max,
+            "p50" => self.p50,
+            "p95" => self.p95,
+            "p99" => self.p99,
+            "sum" => self.sum,
+            _ => return None,
+        })
+    }
+}
+
 /// Accumulates one metric's values.
 #[derive(Debug, Clone)]
 pub struct Summary {

@@ -15,9 +15,11 @@ use plumbline::monitor::Monitor;
 #[test]
 fn every_row_reaches_the_glossary_and_the_gate() {
     let glossary = catalog::glossary_markdown();
+    let one = serde_json::json!({"count": 1, "mean": 1.0, "min": 1.0, "max": 1.0, "p50": 1.0, "p95": 1.0, "p99": 1.0, "sum": 1.0});
     let metrics: serde_json::Map<String, serde_json::Value> =
-        ROWS.iter().map(|r| (r.name.to_string(), serde_json::json!({"mean": 1.0, "sum": 1.0}))).collect();
-    let report = serde_json::json!({ "metrics": metrics });
+        ROWS.iter().map(|r| (r.name.to_string(), one.clone())).collect();
+    let report = serde_json::json!({ "tool": "plumbline", "metrics": metrics }).to_string();
+    let report = plumbline::report::Report::read(&report).unwrap();
     let tolerances = gate::default_tolerances(&report, &report);
     for r in &ROWS {
         let line =

@@ -102,8 +102,8 @@ fn event(kind: AlertKind, t: f64) -> AlertEvent {
         value: 1.0,
         threshold: 0.5,
         severity: Severity::Critical,
-        metric: "collision",
-        stat: "max",
+        metric: "collision".into(),
+        stat: "max".into(),
         window: "1s".into(),
         role: None,
     }

@@ -128,7 +128,8 @@ fn a_role_3_s_late_gives_counted_skips_never_stale_values() {
         let all = [&st.tracking, &st.ego, &st.clearance, &st.path_following, &st.budget, &st.plans];
         let skipped: u64 = all.iter().map(|s| s.skipped).sum();
         assert!(skipped > 100, "{role} 3 s late: {skipped} skipped steps, {st:?}");
-        let reasons: Vec<&str> = all.iter().flat_map(|s| s.skipped_by_reason.keys().copied()).collect();
+        let reasons: Vec<&str> =
+            all.iter().flat_map(|s| s.skipped_by_reason.keys().map(|k| k.as_ref())).collect();
         assert!(reasons.iter().all(|r| !r.is_empty()), "{reasons:?}");
     }
 }

@@ -71,6 +71,24 @@ fn jsonl_and_binary_forms_give_the_same_report() {
     assert_eq!(records(&cfg, &repo("replay-logs/campus-loop.jsonl")), records(&cfg, &back));
 }
 
+/// The gate reads reports back typed: every shipped log's report, under both shipped
+/// profiles, reads back to the very bytes it was written as (nothing dropped or reshaped).
+#[test]
+fn reports_read_back_to_the_same_bytes() {
+    for cfg_path in ["config/plumbline.toml", "config/rig.toml"] {
+        let text = std::fs::read_to_string(repo(cfg_path)).unwrap();
+        let cfg = Config::load(Some((cfg_path, &text)), &[]).unwrap();
+        for log in ["replay-logs/campus-loop.jsonl", "replay-logs/campus-loop-seed2.plb"] {
+            let (r, _) = run(&cfg, &repo(log));
+            let text = r.report.to_json();
+            let back = plumbline::report::Report::read(&text).unwrap();
+            assert_eq!(back.to_json(), text, "{cfg_path} {log}");
+            assert!(back.metrics.len() > 20, "{cfg_path} {log}: {} metrics", back.metrics.len());
+            assert_eq!(back.verdicts.len(), cfg.rules.len(), "{cfg_path} {log}");
+        }
+    }
+}
+
 fn convert(cfg: &Config, from: &Path, to: &Path) {
     let mut w = LogWriter::create(&cfg.log(), to).unwrap();
     read_all(&cfg.log(), from, &mut |item, _| {

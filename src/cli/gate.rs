@@ -2,8 +2,6 @@
 
 use std::path::{Path, PathBuf};
 
-use serde_json::Value;
-
 use crate::config::Config;
 use crate::core::Sample;
 use crate::gate::{self, Row};
@@ -34,9 +32,9 @@ pub struct GateArgs {
     pub allow_definition_change: bool,
 }
 
-fn read_json(p: &Path) -> Result<Value, String> {
+fn read_report(p: &Path) -> Result<Report, String> {
     let t = std::fs::read_to_string(p).map_err(|e| format!("{}: {e}", p.display()))?;
-    serde_json::from_str(&t).map_err(|e| format!("{}: not a report: {e}", p.display()))
+    Report::read(&t).map_err(|e| format!("{}: {e}", p.display()))
 }
 
 pub(crate) fn replay_report(cfg: &Config, log: &Path) -> Result<Report, String> {
@@ -46,26 +44,21 @@ pub(crate) fn replay_report(cfg: &Config, log: &Path) -> Result<Report, String> 
 
 /// Runs `gate`.
 pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
-    let base = match read_json(&a.baseline) {
+    let base = match read_report(&a.baseline) {
         Ok(v) => v,
         Err(e) => return super::fail("gate", e),
     };
     let mut plots = crate::html::Series::default();
-    let mut cand_report = None;
     let cand = match (&a.log, &a.candidate) {
         (Some(log), _) => {
             let mut hook = |s: &[Sample], _: &[AlertEvent]| plots.add(s);
             let opts = ReplayOptions { series: None, progress: &|_| {}, on_samples: Some(&mut hook) };
             match replay(cfg, log, opts) {
-                Ok(r) => {
-                    let v = serde_json::to_value(&r.report).unwrap_or_default();
-                    cand_report = Some(r.report);
-                    v
-                }
+                Ok(r) => r.report,
                 Err(e) => return super::fail("gate", e),
             }
         }
-        (None, Some(p)) => match read_json(p) {
+        (None, Some(p)) => match read_report(p) {
             Ok(v) => v,
             Err(e) => return super::fail("gate", e),
         },
@@ -84,7 +77,10 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
         }
         errln!("plumbline gate: definitions differ (allowed): {}", changed.join(", "));
     }
-    if let Some(why) = cand_report.as_ref().and_then(Report::not_evaluable) {
+    // A replayed candidate that judged nothing is refused; a report given as the candidate
+    // is taken as it is.
+    let replayed = a.log.is_some();
+    if let Some(why) = cand.not_evaluable().filter(|_| replayed) {
         return super::fail("gate", format!("the candidate holds nothing to judge: {why}"));
     }
     let tol = if cfg.gate.is_empty() { gate::default_tolerances(&base, &cand) } else { cfg.gate.clone() };
@@ -95,19 +91,14 @@ pub fn gate_cmd(cfg: &Config, a: &GateArgs) -> u8 {
             return super::fail("gate", format!("{}: {e}", p.display()));
         }
     }
-    if let (Some(p), Some(r)) = (&a.html, &cand_report) {
-        let page = crate::html::run_report_with(r, &plots, &crate::html::gate_section(&rows));
+    if let Some(p) = a.html.as_ref().filter(|_| replayed) {
+        let page = crate::html::run_report_with(&cand, &plots, &crate::html::gate_section(&rows));
         if let Err(e) = std::fs::write(p, page) {
             return super::fail("gate", format!("{}: {e}", p.display()));
         }
     }
     let regressed = rows.iter().filter(|r| r.status == crate::gate::Status::Regressed).count();
-    let critical = cand.get("verdicts").and_then(Value::as_array).is_some_and(|v| {
-        v.iter().any(|v| {
-            v["fails_run"].as_bool().unwrap_or(false)
-                || (v["verdict"] == "fail" && v["severity"] == "critical")
-        })
-    });
+    let critical = gate::critical_failure(&cand);
     outln!("{regressed} regression(s){}", if critical { ", and a critical rule failed" } else { "" });
     if regressed > 0 || critical {
         super::EXIT_FAIL

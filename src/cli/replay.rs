@@ -128,7 +128,7 @@ fn num(v: f64) -> String {
     }
 }
 
-fn counts(m: &std::collections::BTreeMap<&'static str, u64>) -> String {
+fn counts<K: std::fmt::Display>(m: &std::collections::BTreeMap<K, u64>) -> String {
     m.iter().map(|(k, v)| format!("{k} {v}")).collect::<Vec<_>>().join(", ")
 }
 
@@ -143,8 +143,13 @@ pub fn summary(r: &Report) -> String {
     }
     s.push('\n');
     for b in rec.first_rejected.iter().take(5) {
-        let _ =
-            writeln!(s, "  {}: {}{}", b.at, b.detail, b.role.map(|r| format!(" [{r}]")).unwrap_or_default());
+        let _ = writeln!(
+            s,
+            "  {}: {}{}",
+            b.at,
+            b.detail,
+            b.role.as_ref().map(|r| format!(" [{r}]")).unwrap_or_default()
+        );
     }
     if rec.first_rejected.len() > 5 {
         let _ = writeln!(s, "  ... {} more in the report", rec.rejected as usize - 5);
@@ -295,7 +300,7 @@ pub fn summary(r: &Report) -> String {
     if !r.alerts.is_empty() {
         let _ = writeln!(s, "\nalerts ({} events):", r.alerts.len() as u64 + r.alerts_dropped);
         for e in r.alerts.iter().take(20) {
-            let role = e.role.map(|x| format!(" [{x}]")).unwrap_or_default();
+            let role = e.role.as_ref().map(|x| format!(" [{x}]")).unwrap_or_default();
             let _ = writeln!(
                 s,
                 "  t={:>9.3} {:<8} {:<9} {}{}: {} {} over {} = {} (threshold {})",

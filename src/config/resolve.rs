@@ -295,8 +295,12 @@ fn gate(raw: &[RawGate], source: &str) -> Result<Vec<crate::gate::Tolerance>, Co
             return Err(err(source, &key("metric"), format!("a metric name; found \"{}\"", g.metric)));
         }
         let stat = g.stat.clone().unwrap_or_else(|| "mean".into());
-        if !["count", "mean", "min", "max", "p50", "p95", "p99", "sum"].contains(&stat.as_str()) {
-            return Err(err(source, &key("stat"), "one of count, mean, min, max, p50, p95, p99, sum"));
+        if !crate::stats::Stats::FIELDS.contains(&stat.as_str()) {
+            return Err(err(
+                source,
+                &key("stat"),
+                format!("one of {}", crate::stats::Stats::FIELDS.join(", ")),
+            ));
         }
         let worse = match g.worse.as_str() {
             "higher" => crate::gate::Worse::Higher,

@@ -37,7 +37,7 @@ pub fn interval95(n: u64) -> Option<(f64, f64)> {
 }
 
 /// Pooled NEES over a window, with the consistency verdict.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, serde::Deserialize)]
 pub struct Consistency {
     /// Pairs pooled.
     pub n: u64,

@@ -12,6 +12,10 @@ pub mod record;
 
 pub use record::{Damage, LogRecord, Position, Tail};
 
+/// A fixed word of the vocabulary (a metric's, a statistic's, a role's or a reason's name)
+/// in an output that is also read back: borrowed when written, owned when read.
+pub type Name = std::borrow::Cow<'static, str>;
+
 use serde::{Deserialize, Serialize};
 use thiserror::Error;
 

@@ -34,7 +34,7 @@ impl std::fmt::Display for Position {
 }
 
 /// A torn or corrupt tail of a binary log.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Tail {
     /// Byte offset where the damage starts.
     pub offset: u64,
@@ -44,7 +44,7 @@ pub struct Tail {
 
 /// A damaged stretch of a binary log that the reader skipped to reach the next whole
 /// record.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Damage {
     /// Byte offset where the damage starts.
     pub offset: u64,

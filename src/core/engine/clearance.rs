@@ -26,7 +26,7 @@ use crate::msg::{ObstacleSet, Pose, Role};
 pub const KEEP_COLLISIONS: usize = 1000;
 
 /// A stretch of time with the footprint overlapping an obstacle.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, serde::Deserialize)]
 pub struct Collision {
     /// First clearance step in contact (s).
     pub start: f64,

@@ -89,7 +89,8 @@ pub struct Sample {
 }
 
 /// Evaluated and skipped steps of one kind.
-#[derive(Debug, Clone, Default, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, serde::Deserialize)]
+#[serde(default)]
 pub struct StepCounts {
     /// Steps evaluated.
     pub evaluated: u64,
@@ -105,13 +106,13 @@ pub struct StepCounts {
     /// Steps skipped.
     pub skipped: u64,
     /// Skipped steps by reason.
-    pub skipped_by_reason: BTreeMap<&'static str, u64>,
+    pub skipped_by_reason: BTreeMap<crate::msg::Name, u64>,
 }
 
 impl StepCounts {
     fn skip(&mut self, reason: &'static str) {
         self.skipped += 1;
-        *self.skipped_by_reason.entry(reason).or_insert(0) += 1;
+        *self.skipped_by_reason.entry(crate::msg::Name::Borrowed(reason)).or_insert(0) += 1;
     }
 
     fn hit(&mut self, how: How) {
