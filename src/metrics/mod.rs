@@ -5,9 +5,11 @@ pub mod assign;
 pub mod catalog;
 pub mod ego;
 pub mod gospa;
+pub mod lp;
 pub mod nees;
 pub mod ospa;
 pub mod path;
+pub mod tgospa;
 pub mod tracklife;
 pub mod transport;
 
