@@ -71,3 +71,50 @@ proptest! {
         }
     }
 }
+
+/// Trajectories for T-GOSPA: up to 4 a side over `steps` steps, present or not at each.
+fn trajectories(steps: usize) -> impl Strategy<Value = Vec<plumbline::metrics::tgospa::Trajectory>> {
+    let state = prop::option::weighted(0.8, (0.0f64..8.0, 0.0f64..8.0).prop_map(|(x, y)| [x, y]));
+    prop::collection::vec(prop::collection::vec(state, steps), 0..4)
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(150))]
+
+    /// With gamma = 0 switches are free, so each step takes its own best assignment:
+    /// T-GOSPA^p is the sum over the steps of GOSPA^p (alpha = 2). The relaxation is exact
+    /// here since each step's assignment problem has integral optima (a bipartite
+    /// matching polytope). Against the existing GOSPA, step by step.
+    #[test]
+    fn tgospa_with_free_switches_is_the_sum_of_step_gospa(
+        xs in trajectories(5), ys in trajectories(5),
+        c in prop::sample::select(vec![1.0, 2.0, 3.0]), p in prop::sample::select(vec![1.0, 2.0]),
+    ) {
+        use plumbline::metrics::tgospa::{tgospa, Costs};
+        let g = tgospa(&xs, &ys, &Costs::metric(c, p, 0.0), 1_000_000).unwrap();
+        let mut sum = 0.0;
+        for k in 0..5 {
+            let a: Vec<[f64; 2]> = xs.iter().filter_map(|t| t[k]).collect();
+            let b: Vec<[f64; 2]> = ys.iter().filter_map(|t| t[k]).collect();
+            sum += gospa_ospa(&a, &b, c, p, 2.0).0.total.powf(p);
+        }
+        let got = g.localization + g.missed + g.false_ + g.switch;
+        prop_assert!((got - sum).abs() <= 1e-9 * sum.max(1.0), "{} vs {}", got, sum);
+        prop_assert_eq!(g.switch, 0.0);
+    }
+
+    /// T-GOSPA is a metric (the relaxation too: the paper's Section IV): identity, symmetry
+    /// and the triangle inequality on random trajectory sets.
+    #[test]
+    fn tgospa_axioms(
+        x in trajectories(4), y in trajectories(4), z in trajectories(4),
+        gamma in prop::sample::select(vec![0.5, 1.0, 3.0]), p in prop::sample::select(vec![1.0, 2.0]),
+    ) {
+        use plumbline::metrics::tgospa::{tgospa, Costs};
+        let k = Costs::metric(2.0, p, gamma);
+        let d = |a: &[_], b: &[_]| tgospa(a, b, &k, 1_000_000).unwrap().total;
+        prop_assert!(d(&x, &x) < 1e-9);
+        prop_assert!((d(&x, &y) - d(&y, &x)).abs() < 1e-9);
+        prop_assert!(d(&x, &z) <= d(&x, &y) + d(&y, &z) + 1e-9);
+    }
+}

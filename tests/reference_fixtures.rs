@@ -121,3 +121,56 @@ fn ks_matches_scipy_ks_2samp() {
         assert!((r.p_value - want).abs() < 1e-9 + 1e-6 * want, "case {k}: p {} vs scipy {want}", r.p_value);
     }
 }
+
+/// Source: tests/reference/gen_tgospa.py: the T-GOSPA relaxation built in full (every pair
+/// and step, no pruning or components) and solved by scipy.optimize.linprog with HiGHS, on
+/// 240 random cases with births, deaths and gaps; and, on the cases with at most 3
+/// trajectories a side, T-GOSPA itself by exhaustive enumeration of integral assignments.
+#[test]
+fn tgospa_matches_scipy_highs_and_exhaustive_enumeration() {
+    use plumbline::metrics::tgospa::{tgospa, Costs, Trajectory};
+    let path = format!("{}/tests/fixtures/tgospa.json", env!("CARGO_MANIFEST_DIR"));
+    let doc: Value = serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    let side = |v: &Value| -> Vec<Trajectory> {
+        v.as_array()
+            .unwrap()
+            .iter()
+            .map(|t| {
+                t.as_array().unwrap().iter().map(|s| (!s.is_null()).then(|| [f(&s[0]), f(&s[1])])).collect()
+            })
+            .collect()
+    };
+    let (mut enumerated, mut integral, mut fractional) = (0, 0, 0);
+    let cases = doc["cases"].as_array().unwrap();
+    assert_eq!(cases.len(), 240);
+    for (n, case) in cases.iter().enumerate() {
+        let k = Costs {
+            order: f(&case["order"]),
+            missed: f(&case["missed"]),
+            false_: f(&case["false"]),
+            switch: f(&case["switch"]),
+        };
+        let g = tgospa(&side(&case["xs"]), &side(&case["ys"]), &k, 1_000_000).unwrap();
+        let got = g.localization + g.missed + g.false_ + g.switch;
+        let want = f(&case["lp"]);
+        assert!((got - want).abs() <= 1e-9 * want.abs().max(1.0), "case {n}: {got} vs HiGHS {want} ({g:?})");
+        assert!((g.total - got.powf(1.0 / k.order)).abs() < 1e-12);
+        if let Some(best) = case["integral"].as_f64() {
+            enumerated += 1;
+            // The relaxation never exceeds the integral optimum, and meets it when its
+            // optimum is an assignment.
+            assert!(got <= best + 1e-9 * best.max(1.0), "case {n}: {got} above the enumerated {best}");
+            if g.integral {
+                integral += 1;
+                assert!((got - best).abs() <= 1e-9 * best.max(1.0), "case {n}: {got} vs enumerated {best}");
+            } else {
+                fractional += 1;
+            }
+        }
+    }
+    eprintln!("T-GOSPA: 240 cases against HiGHS; {enumerated} enumerated, {integral} of them integral, {fractional} fractional");
+    assert!(
+        enumerated >= 80 && integral >= 60,
+        "{enumerated} enumerated, {integral} integral, {fractional} not"
+    );
+}
