@@ -26,6 +26,8 @@ pub struct MonitorParams {
     pub rules: Vec<Rule>,
     /// Run statistics' percentile settings.
     pub stats: StatsParams,
+    /// T-GOSPA over sliding windows, if enabled.
+    pub tgospa: Option<crate::core::TgospaParams>,
 }
 
 /// Engine, statistics, windows and rules.
@@ -47,8 +49,10 @@ pub struct Monitor {
 impl Monitor {
     /// A monitor built from its parameters.
     pub fn new(p: &MonitorParams) -> Monitor {
+        let mut engine = Engine::new(p.tracking, p.align, p.clearance);
+        engine.set_tgospa(p.tgospa);
         Monitor {
-            engine: Engine::new(p.tracking, p.align, p.clearance),
+            engine,
             stats: RunStats::new(&p.stats),
             windows: WindowSet::new(&p.windows, p.window_buckets),
             rules: RuleSet::new(p.rules.clone()),

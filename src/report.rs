@@ -104,6 +104,12 @@ pub struct Steps {
     pub plans: StepCounts,
     /// Steps resolved early because too many were waiting.
     pub pending_overflow: u64,
+    /// T-GOSPA windows solved and skipped (when enabled).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tgospa: Option<StepCounts>,
+    /// Tracking steps that left a T-GOSPA window early (`tgospa.max_steps`; when enabled).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tgospa_trimmed: Option<u64>,
 }
 
 /// Records section.
@@ -322,6 +328,8 @@ impl Report {
                 budget: c.budget.clone(),
                 plans: c.plans.clone(),
                 pending_overflow: c.pending_overflow,
+                tgospa: engine.has_tgospa().then(|| c.tgospa.clone()),
+                tgospa_trimmed: engine.has_tgospa().then_some(c.tgospa_trimmed),
             },
             records: Records {
                 accepted: c.accepted,

@@ -71,6 +71,50 @@ fn jsonl_and_binary_forms_give_the_same_report() {
     assert_eq!(records(&cfg, &repo("replay-logs/campus-loop.jsonl")), records(&cfg, &back));
 }
 
+/// The shipped log's identity switch (two pedestrians' estimates swap labels at 30.02 s,
+/// where the per-step `track_switches` counts 2) is two full switches for T-GOSPA in every
+/// window that holds it: the windows end at 1 s steps (31.02 s to 39.02 s are the nine
+/// whose 10 s span (t - 10, t] contains 30.02 s), and no other window has a switch.
+#[test]
+fn the_shipped_identity_switch_shows_in_tgospa_switches() {
+    let cfg = Config::load(None, &["tgospa.enabled=true".into()]).unwrap();
+    let (r, samples) = run(&cfg, &repo("replay-logs/campus-loop.jsonl"));
+    let switches: Vec<(f64, f64)> = samples
+        .iter()
+        .filter(|s| s.metric == plumbline::metrics::Metric::TgospaSwitches)
+        .map(|s| (s.t, s.value))
+        .collect();
+    // One value a second from 1 s after the first tracking step (0.02 s): 59 windows.
+    assert_eq!(switches.len(), 59);
+    let steps = r.report.steps.tgospa.as_ref().unwrap();
+    assert_eq!((steps.evaluated, steps.skipped), (59, 0));
+    for (t, v) in switches {
+        let holds_the_swap = t > 30.02 && t - 10.0 < 30.02;
+        assert_eq!(v, if holds_the_swap { 2.0 } else { 0.0 }, "window ending at {t}");
+    }
+    let per_step: f64 = samples
+        .iter()
+        .filter(|s| s.metric == plumbline::metrics::Metric::TrackSwitches && (s.t - 30.02).abs() < 1e-9)
+        .map(|s| s.value)
+        .sum();
+    assert_eq!(per_step, 2.0);
+}
+
+#[test]
+fn tgospa_settings_are_checked_with_their_keys() {
+    for (set, key) in [
+        ("tgospa.every=\"0s\"", "tgospa.every"),
+        ("tgospa.switch_cost_m=-1", "tgospa.switch_cost_m"),
+        ("tgospa.max_steps=1", "tgospa.max_steps"),
+        ("tgospa.max_variables=0", "tgospa.max_variables"),
+    ] {
+        let e = Config::load(None, &[set.into()]).unwrap_err().to_string();
+        assert!(e.contains(key), "{set}: {e}");
+    }
+    // Off unless enabled: no T-GOSPA in the config, the digest or the report.
+    assert!(Config::defaults().tgospa.is_none());
+}
+
 /// The gate reads reports back typed: every shipped log's report, under both shipped
 /// profiles, reads back to the very bytes it was written as (nothing dropped or reshaped).
 #[test]

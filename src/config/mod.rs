@@ -92,6 +92,9 @@ pub struct Config {
     pub dashboard: crate::dashboard::DashboardParams,
     /// gated statistics (empty: the defaults of `gate::default_tolerances`)
     pub gate: Vec<crate::gate::Tolerance>,
+    /// T-GOSPA over sliding windows, when enabled (absent from the digest otherwise)
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tgospa: Option<crate::core::TgospaParams>,
     /// warnings of the load (old key names used), for the command to print
     #[serde(skip)]
     pub warnings: Vec<String>,
@@ -203,6 +206,7 @@ impl Config {
             window_buckets: self.window_buckets,
             rules: self.rules.clone(),
             stats: self.report,
+            tgospa: self.tgospa,
         }
     }
 
@@ -269,6 +273,14 @@ impl Config {
             ("limits.exact_assignment_cells", json!(t.exact_cells)),
         ]
         .into_iter()
+        .chain(self.tgospa.iter().flat_map(|g| {
+            [
+                ("tgospa.every", json!(g.every)),
+                ("tgospa.window", json!(g.window)),
+                ("tgospa.switch_cost_m", json!(g.switch_cost)),
+                ("tgospa.max_variables", json!(g.max_variables)),
+            ]
+        }))
         .collect()
     }
 

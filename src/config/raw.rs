@@ -52,6 +52,9 @@ pub struct RawConfig {
     /// `[dashboard]`
     #[serde(default)]
     pub dashboard: RawDashboard,
+    /// `[tgospa]`
+    #[serde(default)]
+    pub tgospa: RawTgospa,
     /// `[[rule]]`
     #[serde(default)]
     pub rule: Vec<RawRule>,
@@ -140,6 +143,24 @@ pub struct RawLive {
     pub flush: Option<toml::Value>,
     /// how long the engine may make no progress while messages wait before /healthz fails
     pub stall_after: Option<toml::Value>,
+}
+
+/// `[tgospa]`
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTgospa {
+    /// compute T-GOSPA over sliding windows
+    pub enabled: Option<bool>,
+    /// emit a value at most this often
+    pub every: Option<toml::Value>,
+    /// over the tracking steps of this trailing window
+    pub window: Option<toml::Value>,
+    /// gamma, the switch cost (m)
+    pub switch_cost_m: Option<f64>,
+    /// the most variables of one linear program
+    pub max_variables: Option<i64>,
+    /// the most tracking steps a window holds
+    pub max_steps: Option<i64>,
 }
 
 /// `[dashboard]`

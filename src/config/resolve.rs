@@ -27,6 +27,7 @@ impl Config {
         let live = live(&raw.live, source)?;
         let dashboard = dashboard(&raw.dashboard, source)?;
         let gate = gate(&raw.gate, source)?;
+        let tgospa = tgospa(&raw.tgospa, source)?;
         // Rules last: a rule's window that is not configured is added to the windows.
         let rules = rules(&raw.rule, source, &mut windows, &mut window_labels)?;
         Ok(Config {
@@ -48,6 +49,7 @@ impl Config {
             live,
             dashboard,
             gate,
+            tgospa,
             warnings: Vec::new(),
         })
     }
@@ -284,6 +286,20 @@ fn dashboard(d: &RawDashboard, source: &str) -> Result<crate::dashboard::Dashboa
         return Err(err(source, "dashboard.history", "at most 10000 rows of dashboard.chart_interval"));
     }
     Ok(dashboard)
+}
+
+/// `[tgospa]`: none unless enabled.
+fn tgospa(t: &RawTgospa, source: &str) -> Result<Option<crate::core::TgospaParams>, ConfigError> {
+    let d = crate::core::TgospaParams::default();
+    let p = crate::core::TgospaParams::try_new(
+        duration(source, "tgospa.every", &t.every, d.every)?,
+        duration(source, "tgospa.window", &t.window, d.window)?,
+        t.switch_cost_m.unwrap_or(d.switch_cost),
+        count(source, "tgospa.max_variables", t.max_variables, d.max_variables)?,
+        count(source, "tgospa.max_steps", t.max_steps, d.max_steps)?,
+    )
+    .map_err(|e| err(source, &format!("tgospa.{}", e.key), e.expected))?;
+    Ok(t.enabled.unwrap_or(false).then_some(p))
 }
 
 /// `[[gate]]`: gated statistics and their tolerances.

@@ -10,7 +10,7 @@ pub mod engine;
 use serde::Serialize;
 use thiserror::Error;
 
-pub use engine::{splice_plan_jobs, Collision, Engine, Input, PlanJob, Sample};
+pub use engine::{splice_plan_jobs, Collision, Engine, Input, JobOutcome, PlanJob, Sample, TgospaJob};
 
 /// A bad parameter, with the config key it came from.
 #[derive(Debug, Clone, Error, PartialEq)]
@@ -104,6 +104,56 @@ impl Default for TrackingParams {
             forget_after: 300.0,
             exact_cells: EXACT_CELLS,
         }
+    }
+}
+
+/// T-GOSPA over sliding windows (`[tgospa]`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct TgospaParams {
+    /// A value is emitted at most this often (s of event time).
+    pub every: f64,
+    /// Over the tracking steps of this trailing window (s).
+    pub window: f64,
+    /// gamma, the switch cost (m).
+    pub switch_cost: f64,
+    /// The most variables of one linear program; a window that needs more is skipped and
+    /// counted.
+    pub max_variables: usize,
+    /// The most tracking steps a window holds; beyond, the oldest leave early (counted).
+    pub max_steps: usize,
+}
+
+impl Default for TgospaParams {
+    fn default() -> Self {
+        TgospaParams { every: 1.0, window: 10.0, switch_cost: 2.0, max_variables: 20_000, max_steps: 1_000 }
+    }
+}
+
+impl TgospaParams {
+    /// Validating constructor (keys relative to `[tgospa]`).
+    pub fn try_new(
+        every: f64,
+        window: f64,
+        switch_cost: f64,
+        max_variables: usize,
+        max_steps: usize,
+    ) -> Result<TgospaParams, ParamError> {
+        if !(every.is_finite() && every > 0.0) {
+            return Err(perr("every", "a positive duration"));
+        }
+        if !(window.is_finite() && window > 0.0) {
+            return Err(perr("window", "a positive duration"));
+        }
+        if !(switch_cost.is_finite() && switch_cost >= 0.0) {
+            return Err(perr("switch_cost_m", "a number of metres >= 0"));
+        }
+        if max_variables == 0 {
+            return Err(perr("max_variables", "at least 1"));
+        }
+        if max_steps < 2 {
+            return Err(perr("max_steps", "at least 2"));
+        }
+        Ok(TgospaParams { every, window, switch_cost, max_variables, max_steps })
     }
 }
 

@@ -18,7 +18,7 @@ use zenoh::Wait;
 use super::exposition::Exposition;
 use super::zenoh_io::{self, wall_now};
 use crate::config::Config;
-use crate::core::{Input, Sample};
+use crate::core::{Input, JobOutcome, Sample, TgospaJob};
 use crate::dashboard::Dashboard;
 use crate::logio::journal::Journal;
 use crate::logio::{plb, LogRecord};
@@ -268,6 +268,24 @@ pub fn run(
         let map = crate::logio::read_map(path, &cfg.limits()).map_err(|e| e.to_string())?;
         monitor.push(map, &mut samples, &mut events);
     }
+    // T-GOSPA windows are solved on a thread of their own, off the loop that drives the
+    // gauges; their samples join the monitor when they are ready. A window that finds the
+    // solver still busy with two others is skipped and counted (`busy`).
+    let tgospa = monitor.engine.has_tgospa().then(|| {
+        monitor.engine.defer_tgospa(true);
+        let (jobs, job_rx) = sync_channel::<TgospaJob>(2);
+        let (res_tx, results) = sync_channel::<(Vec<Sample>, JobOutcome)>(4);
+        let worker = std::thread::Builder::new().name("plumbline-tgospa".into()).spawn(move || {
+            for job in job_rx.iter() {
+                let mut out = Vec::new();
+                let outcome = job.run(&mut out);
+                if res_tx.send((out, outcome)).is_err() {
+                    break;
+                }
+            }
+        });
+        (jobs, results, worker)
+    });
     let mut first_bad = Vec::new();
     let mut dropped_seen = vec![0u64; Role::ALL.len()];
     let mut record_failed = false;
@@ -340,8 +358,8 @@ pub fn run(
                             if first_bad.len() < crate::logio::KEEP_BAD {
                                 first_bad.push(BadRecord {
                                     at: format!("message {n_bad}"),
-                                    role: Some(role.name()),
-                                    reason: reason.code(),
+                                    role: Some(role.name().into()),
+                                    reason: reason.code().into(),
                                     detail: reason.to_string(),
                                 });
                             }
@@ -374,6 +392,17 @@ pub fn run(
             dropped_seen[r.index()] = d;
         }
         monitor.advance(now, &mut samples, &mut events);
+        if let Some((jobs, results, _)) = &tgospa {
+            for job in monitor.engine.take_tgospa_jobs() {
+                if jobs.try_send(job).is_err() {
+                    monitor.engine.count_tgospa(JobOutcome::Skipped("busy"));
+                }
+            }
+            while let Ok((solved, outcome)) = results.try_recv() {
+                monitor.engine.count_tgospa(outcome);
+                monitor.inject(&mut samples, &solved, &mut events);
+            }
+        }
         let refresh_due = last_refresh.elapsed().as_secs_f64() >= cfg.live.refresh;
         if refresh_due {
             // Staleness of every role heard from, and how many publishers each has, as
@@ -474,6 +503,23 @@ pub fn run(
         );
     }
     monitor.finish(&mut samples, &mut events);
+    if let Some((jobs, results, worker)) = tgospa {
+        // The windows still queued are solved before the report; the last ones here.
+        drop(jobs);
+        for (solved, outcome) in results.iter() {
+            monitor.engine.count_tgospa(outcome);
+            monitor.inject(&mut samples, &solved, &mut events);
+        }
+        if let Ok(w) = worker {
+            let _ = w.join();
+        }
+        let mut solved = Vec::new();
+        for job in monitor.engine.take_tgospa_jobs() {
+            let outcome = job.run(&mut solved);
+            monitor.engine.count_tgospa(outcome);
+        }
+        monitor.inject(&mut samples, &solved, &mut events);
+    }
     handle(&samples, &events, shared, &alert_pub, journal.as_mut());
     dashboard.observe(wall_now(), &samples, &events);
     publish_snapshot(shared, &dashboard, &monitor);

@@ -42,6 +42,18 @@ pub enum Metric {
     DeletionDelay,
     /// Mean NEES of the step's assigned pairs with covariance.
     Nees,
+    /// T-GOSPA over the trailing window (m).
+    Tgospa,
+    /// Localization part of tgospa^p.
+    TgospaLocalization,
+    /// Missed part of tgospa^p.
+    TgospaMissed,
+    /// False part of tgospa^p.
+    TgospaFalse,
+    /// Switch part of tgospa^p.
+    TgospaSwitch,
+    /// Track switches in the window (a half switch counts 1/2).
+    TgospaSwitches,
     /// Ego position error (m).
     EgoPositionError,
     /// Ego heading error (rad).
@@ -102,7 +114,7 @@ pub enum Metric {
 
 impl Metric {
     /// Every metric, in report order.
-    pub const ALL: [Metric; 41] = [
+    pub const ALL: [Metric; 47] = [
         Metric::Gospa,
         Metric::GospaLocalization,
         Metric::GospaMissed,
@@ -116,6 +128,12 @@ impl Metric {
         Metric::EstablishmentDelay,
         Metric::DeletionDelay,
         Metric::Nees,
+        Metric::Tgospa,
+        Metric::TgospaLocalization,
+        Metric::TgospaMissed,
+        Metric::TgospaFalse,
+        Metric::TgospaSwitch,
+        Metric::TgospaSwitches,
         Metric::EgoPositionError,
         Metric::EgoHeadingError,
         Metric::EgoLongitudinalError,

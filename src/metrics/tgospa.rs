@@ -238,7 +238,30 @@ fn solve_component(
         k0 = k0.min(a);
         k1 = k1.max(b);
     }
-    let t = k1 + 1 - k0;
+    // Steps at which no pair is within the cap cost the same whatever the assignment (each
+    // present state its missed or false cost), so the assignment may as well stay as it
+    // is across them: they are left out and their cost added as it is. Exact, for the
+    // relaxation too: the switch cost obeys the triangle inequality (|a - c| <= |a - b| +
+    // |b - c|), so a change across a left-out step costs no more at the next kept one.
+    let close = |st: usize| {
+        pairs
+            .iter()
+            .any(|&(i, j)| matches!(pair_cost(at(&xs[i], st), at(&ys[j], st), k).1, Part::Localization))
+    };
+    let mut steps: Vec<usize> = Vec::with_capacity(k1 + 1 - k0);
+    for st in k0..=k1 {
+        if close(st) {
+            steps.push(st);
+        } else {
+            out.missed += k.missed * refs.iter().filter(|&&i| at(&xs[i], st).is_some()).count() as f64;
+            out.false_ += k.false_ * ests.iter().filter(|&&j| at(&ys[j], st).is_some()).count() as f64;
+        }
+    }
+    let t = steps.len();
+    if let [(i, j)] = pairs {
+        single_pair(&xs[*i], &ys[*j], &steps, k, out);
+        return Ok(());
+    }
     let needed = t * (pairs.len() + refs.len() + ests.len()) + (t - 1) * pairs.len();
     if needed > max_vars {
         return Err(Skip::TooLarge { needed, limit: max_vars });
@@ -249,8 +272,7 @@ fn solve_component(
     let mut u = Vec::with_capacity(t * refs.len());
     let mut v = Vec::with_capacity(t * ests.len());
     let mut parts = Vec::with_capacity(t * pairs.len());
-    for s in 0..t {
-        let step = k0 + s;
+    for &step in &steps {
         for &(i, j) in pairs {
             let (cost, part) = pair_cost(at(&xs[i], step), at(&ys[j], step), k);
             w.push(lp.var(cost));
@@ -312,14 +334,14 @@ fn solve_component(
         for (r, &i) in refs.iter().enumerate() {
             let val = x[u[s * refs.len() + r]];
             integral &= val == 0.0 || val == 1.0;
-            if at(&xs[i], k0 + s).is_some() {
+            if at(&xs[i], steps[s]).is_some() {
                 out.missed += k.missed * val;
             }
         }
         for (c, &j) in ests.iter().enumerate() {
             let val = x[v[s * ests.len() + c]];
             integral &= val == 0.0 || val == 1.0;
-            if at(&ys[j], k0 + s).is_some() {
+            if at(&ys[j], steps[s]).is_some() {
                 out.false_ += k.false_ * val;
             }
         }
@@ -336,6 +358,74 @@ fn solve_component(
     out.switches += moved / 2.0;
     out.integral &= integral;
     Ok(())
+}
+
+/// A component of one reference and one estimate, by dynamic programming over the two
+/// states of each step (paired or not). Exact for the relaxation too: with one pair the
+/// program is `min sum_k a_k w_k + b + gamma^p/2 sum |w_k - w_(k+1)|` over `w` in
+/// `[0, 1]^T`, and both terms are additive over level sets (for any `w`, `F(w)` is the
+/// integral over `s` in `(0, 1)` of `F(1[w > s])`, the layer-cake identity of linear terms
+/// and of total variation), so a 0/1 point is never worse: the optimum is an assignment.
+/// (This is the common component, and the solver's set-up alone costs far more.)
+fn single_pair(x: &Trajectory, y: &Trajectory, steps: &[usize], k: &Costs, out: &mut TGospa) {
+    let t = steps.len();
+    let at = |tr: &Trajectory, s: usize| tr.get(s).copied().flatten();
+    let alone = |s: usize| {
+        let (a, b) = (at(x, s), at(y, s));
+        (if a.is_some() { k.missed } else { 0.0 }, if b.is_some() { k.false_ } else { 0.0 })
+    };
+    // best[state] = (cost so far, back-pointers kept as a path of states)
+    let mut cost = [0.0f64; 2];
+    let mut back: Vec<[u8; 2]> = Vec::with_capacity(t);
+    for (s, &step) in steps.iter().enumerate() {
+        let (m, f) = alone(step);
+        let here = [m + f, pair_cost(at(x, step), at(y, step), k).0];
+        if s == 0 {
+            cost = here;
+            back.push([0, 1]);
+            continue;
+        }
+        let mut next = [0.0; 2];
+        let mut from = [0u8; 2];
+        for st in 0..2 {
+            let stay = cost[st];
+            let change = cost[1 - st] + k.switch / 2.0;
+            // Ties keep the state (fewer switches among equal costs).
+            (next[st], from[st]) = if stay <= change { (stay, st as u8) } else { (change, 1 - st as u8) };
+            next[st] += here[st];
+        }
+        cost = next;
+        back.push(from);
+    }
+    let mut st = if cost[0] <= cost[1] { 0 } else { 1 };
+    let mut states = vec![0u8; t];
+    for s in (0..t).rev() {
+        states[s] = st as u8;
+        st = back[s][st] as usize;
+    }
+    for s in 0..t {
+        let (m, f) = alone(steps[s]);
+        if states[s] == 1 {
+            match pair_cost(at(x, steps[s]), at(y, steps[s]), k) {
+                (d, Part::Localization) => out.localization += d,
+                (_, Part::MissedAndFalse) => {
+                    out.missed += k.missed;
+                    out.false_ += k.false_;
+                }
+                (_, Part::Missed) => out.missed += k.missed,
+                (_, Part::False) => out.false_ += k.false_,
+                (_, Part::None) => {}
+            }
+        } else {
+            out.missed += m;
+            out.false_ += f;
+        }
+        if s + 1 < t && states[s] != states[s + 1] {
+            out.switch += k.switch / 2.0;
+            out.switches += 0.5;
+        }
+    }
+    out.components += 1;
 }
 
 #[cfg(test)]
@@ -365,7 +455,8 @@ mod tests {
         let x = vec![Some([0.0, 0.0]); 4];
         let a = vec![Some([0.0, 0.5]), Some([0.0, 0.5]), None, None];
         let b = vec![None, None, Some([0.0, 0.5]), Some([0.0, 0.5])];
-        let g = tgospa(&[x.clone()], &[a.clone(), b.clone()], &Costs::metric(3.0, 2.0, 2.0), BIG).unwrap();
+        let g = tgospa(std::slice::from_ref(&x), &[a.clone(), b.clone()], &Costs::metric(3.0, 2.0, 2.0), BIG)
+            .unwrap();
         assert!(close(g.total * g.total, 5.0), "{g:?}");
         assert!(close(g.localization, 1.0) && close(g.switch, 4.0) && close(g.switches, 1.0), "{g:?}");
         assert_eq!((g.missed, g.false_, g.integral), (0.0, 0.0, true));
@@ -437,11 +528,13 @@ mod tests {
 
     #[test]
     fn a_component_beyond_the_limit_is_skipped() {
+        // One reference, two estimates near it: 10 steps x (2 pairs + 1 + 2 dummies) +
+        // 9 x 2 switch variables = 68. (A single pair needs no program at all.)
         let x = vec![Some([0.0, 0.0]); 10];
-        let y = vec![Some([0.1, 0.0]); 10];
-        // 10 steps x (1 pair + 2 dummies) + 9 switch variables = 39.
-        let e = tgospa(&[x.clone()], &[y.clone()], &Costs::metric(2.0, 1.0, 1.0), 38).unwrap_err();
-        assert_eq!(e, Skip::TooLarge { needed: 39, limit: 38 });
-        assert!(tgospa(&[x], &[y], &Costs::metric(2.0, 1.0, 1.0), 39).is_ok());
+        let ys = [vec![Some([0.1, 0.0]); 10], vec![Some([0.0, 0.2]); 10]];
+        let e = tgospa(std::slice::from_ref(&x), &ys, &Costs::metric(2.0, 1.0, 1.0), 67).unwrap_err();
+        assert_eq!(e, Skip::TooLarge { needed: 68, limit: 67 });
+        assert!(tgospa(std::slice::from_ref(&x), &ys, &Costs::metric(2.0, 1.0, 1.0), 68).is_ok());
+        assert!(tgospa(&[x], &ys[..1], &Costs::metric(2.0, 1.0, 1.0), 1).is_ok());
     }
 }

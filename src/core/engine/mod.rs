@@ -21,10 +21,11 @@ mod path_following;
 mod pending;
 mod plans;
 mod readiness;
+mod tgospa;
 mod tracking;
 
 use super::align::{self, How, Miss, Point, Resolved, Timeline};
-use super::{AlignParams, ClearanceParams, EgoSource, TrackingParams};
+use super::{AlignParams, ClearanceParams, EgoSource, TgospaParams, TrackingParams};
 use crate::metrics::assign::{MatchScratch, ShortestPath};
 use crate::metrics::nees::NeesPool;
 use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
@@ -33,6 +34,7 @@ use crate::metrics::Metric;
 use crate::msg::{Msg, ObjectSet, ObstacleSet, Path, Pose, Role};
 pub use clearance::Collision;
 pub use plans::{splice_plan_jobs, PlanJob};
+pub use tgospa::{JobOutcome, TgospaJob};
 
 /// One input to the engine.
 #[derive(Debug, Clone)]
@@ -110,7 +112,7 @@ pub struct StepCounts {
 }
 
 impl StepCounts {
-    fn skip(&mut self, reason: &'static str) {
+    pub(crate) fn skip(&mut self, reason: &'static str) {
         self.skipped += 1;
         *self.skipped_by_reason.entry(crate::msg::Name::Borrowed(reason)).or_insert(0) += 1;
     }
@@ -141,6 +143,10 @@ pub struct Counters {
     pub budget: StepCounts,
     /// Plans' path quality (at `plan/path` stamps).
     pub plans: StepCounts,
+    /// T-GOSPA windows (one per `tgospa.every` of tracking stamps).
+    pub tgospa: StepCounts,
+    /// Tracking steps that left the T-GOSPA window early (`tgospa.max_steps`).
+    pub tgospa_trimmed: u64,
     /// Records accepted.
     pub accepted: u64,
     /// Records rejected.
@@ -292,6 +298,10 @@ pub struct Engine {
     yp: Vec<[f64; 2]>,
     ids: (Vec<u64>, Vec<u64>),
     clear: clearance::ClearState,
+    tgospa: Option<tgospa::TgState>,
+    /// T-GOSPA jobs kept for the caller (live runs them off the loop thread), or `None`
+    /// to run each at once.
+    tgospa_jobs: Option<Vec<TgospaJob>>,
 }
 
 impl Engine {
@@ -326,7 +336,36 @@ impl Engine {
             yp: Vec::new(),
             ids: Default::default(),
             clear: clearance::ClearState::new(cp),
+            tgospa: None,
+            tgospa_jobs: None,
         }
+    }
+
+    /// With `true`, each T-GOSPA window is kept as a [`TgospaJob`] for
+    /// [`Engine::take_tgospa_jobs`] instead of being solved at once; the caller runs it
+    /// and hands back its samples and outcome ([`Engine::count_tgospa`]).
+    pub fn defer_tgospa(&mut self, on: bool) {
+        self.tgospa_jobs = on.then(Vec::new);
+    }
+
+    /// The T-GOSPA jobs kept since the last call, oldest first.
+    pub fn take_tgospa_jobs(&mut self) -> Vec<TgospaJob> {
+        self.tgospa_jobs.as_mut().map(std::mem::take).unwrap_or_default()
+    }
+
+    /// Counts the outcome of a T-GOSPA job the caller ran.
+    pub fn count_tgospa(&mut self, outcome: JobOutcome) {
+        TgospaJob::count(outcome, &mut self.counters.tgospa);
+    }
+
+    /// T-GOSPA over sliding windows, or none (the default).
+    pub fn set_tgospa(&mut self, p: Option<TgospaParams>) {
+        self.tgospa = p.map(|p| tgospa::TgState::new(p, &self.tp));
+    }
+
+    /// Whether T-GOSPA is computed.
+    pub fn has_tgospa(&self) -> bool {
+        self.tgospa.is_some()
     }
 
     /// What has been counted so far.
