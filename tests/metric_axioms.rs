@@ -118,3 +118,68 @@ proptest! {
         prop_assert!(d(&x, &z) <= d(&x, &y) + d(&y, &z) + 1e-9);
     }
 }
+
+/// GOSPA with missed and false objects costed apart (`missed`, `false_` in m^p).
+fn gospa_costs(x: &[[f64; 2]], y: &[[f64; 2]], missed: f64, false_: f64, p: f64) -> f64 {
+    use plumbline::metrics::assign::{match_with_cutoff, MatchScratch, ShortestPath};
+    use plumbline::metrics::gospa::{cost_cutoff, from_matching_costs};
+    let c = cost_cutoff(missed, false_, p);
+    let m = match_with_cutoff(x, y, c, p, true, &mut ShortestPath::default(), &mut MatchScratch::default());
+    from_matching_costs(x.len(), y.len(), &m, missed, false_, p).total
+}
+
+fn unequal_costs() -> impl Strategy<Value = (f64, f64, f64)> {
+    (
+        prop::sample::select(vec![0.5, 2.0, 4.0]),
+        prop::sample::select(vec![0.25, 1.0, 3.0]),
+        prop::sample::select(vec![1.0, 2.0]),
+    )
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(300))]
+
+    /// Equal costs of c^p/2 are GOSPA exactly, bit for bit.
+    #[test]
+    fn equal_costs_are_gospa_bit_for_bit(x in set(), y in set(), c in prop::sample::select(vec![0.5f64, 2.0, 5.0]), p in prop::sample::select(vec![1.0f64, 2.0, 3.0])) {
+        let half = plumbline::metrics::pow_p(c, p) / 2.0;
+        let g = gospa_costs(&x, &y, half, half, p);
+        prop_assert_eq!(g.to_bits(), gospa_ospa(&x, &y, c, p, 2.0).0.total.to_bits());
+    }
+
+    /// With missed and false costed apart, GOSPA is a quasi-metric (GOSPA and T-GOSPA
+    /// quasi-metrics, García-Fernández et al., arXiv 2507.13706): identity and the
+    /// triangle inequality hold; symmetry is lost.
+    #[test]
+    fn unequal_costs_give_a_quasi_metric(x in set(), y in set(), z in set(), (missed, false_, p) in unequal_costs()) {
+        let d = |a: &[[f64; 2]], b: &[[f64; 2]]| gospa_costs(a, b, missed, false_, p);
+        prop_assert!(d(&x, &x).abs() < 1e-12);
+        prop_assert!(d(&x, &z) <= d(&x, &y) + d(&y, &z) + 1e-9, "{} > {} + {}", d(&x, &z), d(&x, &y), d(&y, &z));
+    }
+
+    /// The same for T-GOSPA over trajectories.
+    #[test]
+    fn tgospa_with_unequal_costs_is_a_quasi_metric(
+        x in trajectories(4), y in trajectories(4), z in trajectories(4), (missed, false_, p) in unequal_costs(),
+    ) {
+        use plumbline::metrics::tgospa::{tgospa, Costs};
+        let k = Costs { order: p, missed, false_, switch: 1.0 };
+        let d = |a: &[_], b: &[_]| tgospa(a, b, &k, 1_000_000).unwrap().total;
+        prop_assert!(d(&x, &x) < 1e-9);
+        prop_assert!(d(&x, &z) <= d(&x, &y) + d(&y, &z) + 1e-9);
+    }
+}
+
+/// Symmetry is lost with unequal costs: one reference and nothing estimated is one missed
+/// object (missed cost 2 m^1), the other way round one false object (0.5): p = 1.
+#[test]
+fn unequal_costs_are_not_symmetric() {
+    use plumbline::metrics::tgospa::{tgospa, Costs};
+    let (a, none): (Vec<[f64; 2]>, Vec<[f64; 2]>) = (vec![[1.0, 1.0]], vec![]);
+    assert_eq!((gospa_costs(&a, &none, 2.0, 0.5, 1.0), gospa_costs(&none, &a, 2.0, 0.5, 1.0)), (2.0, 0.5));
+    let k = Costs { order: 1.0, missed: 2.0, false_: 0.5, switch: 1.0 };
+    let tr = vec![vec![Some([1.0, 1.0]), Some([1.0, 1.0])]];
+    // Two states: 2 x 2 missed one way, 2 x 0.5 false the other.
+    assert_eq!(tgospa(&tr, &[], &k, 100).unwrap().total, 4.0);
+    assert_eq!(tgospa(&[], &tr, &k, 100).unwrap().total, 1.0);
+}

@@ -115,6 +115,35 @@ fn tgospa_settings_are_checked_with_their_keys() {
     assert!(Config::defaults().tgospa.is_none());
 }
 
+/// Missed and false objects costed apart: equal to the cutoff is GOSPA itself (the same
+/// report bytes); a missed object at 4 m (cost 4^1/2 = 2 with p = 1) against the cutoff's
+/// 2 m (cost 1) makes each missed reference cost 2, and pairs now form up to
+/// (2 + 1)^(1/1) = 3 m (missed plus false cost), so at most as many are missed; only with
+/// alpha = 2.
+#[test]
+fn missed_and_false_objects_can_cost_apart() {
+    let log = repo("replay-logs/campus-loop.jsonl");
+    let base = Config::defaults();
+    let same = Config::load(None, &["tracking.missed_cost_m=2.0".into(), "tracking.false_cost_m=2.0".into()])
+        .unwrap();
+    let (a, sa) = run(&base, &log);
+    let (b, sb) = run(&same, &log);
+    assert_eq!(sa, sb);
+    assert_eq!(a.report.to_json(), b.report.to_json());
+    let own = Config::load(None, &["tracking.missed_cost_m=4.0".into()]).unwrap();
+    let (c, _) = run(&own, &log);
+    let (ma, mc) = (&a.report.metrics["gospa_missed"], &c.report.metrics["gospa_missed"]);
+    let (na, nc) = (&a.report.totals["missed_count"], &c.report.totals["missed_count"]);
+    // Each missed reference costs 2 instead of 1; pairs may now form up to 3 m, so at most
+    // as many are missed.
+    assert!(nc <= na && *nc > 0.0, "{na} {nc}");
+    assert!((mc.sum - 2.0 * nc).abs() < 1e-9 && (ma.sum - na).abs() < 1e-9, "{} {}", ma.sum, mc.sum);
+    assert_eq!(c.report.definitions["tracking.missed_cost"], serde_json::json!(2.0));
+    let e =
+        Config::load(None, &["tracking.missed_cost_m=4.0".into(), "tracking.alpha=1.0".into()]).unwrap_err();
+    assert!(e.to_string().contains("tracking.missed_cost_m"), "{e}");
+}
+
 /// The gate reads reports back typed: every shipped log's report, under both shipped
 /// profiles, reads back to the very bytes it was written as (nothing dropped or reshaped).
 #[test]

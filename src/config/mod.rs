@@ -273,6 +273,15 @@ impl Config {
             ("limits.exact_assignment_cells", json!(t.exact_cells)),
         ]
         .into_iter()
+        .chain(
+            t.has_own_costs()
+                .then(|| {
+                    let (m, f) = t.state_costs();
+                    [("tracking.missed_cost", json!(m)), ("tracking.false_cost", json!(f))]
+                })
+                .into_iter()
+                .flatten(),
+        )
         .chain(self.tgospa.iter().flat_map(|g| {
             [
                 ("tgospa.every", json!(g.every)),

@@ -235,6 +235,10 @@ pub struct RawTracking {
     pub ego_frame_source: Option<String>,
     /// forget a reference or estimate id unseen this long
     pub forget_after: Option<toml::Value>,
+    /// a missed reference object costs this distance^p / 2 (default: the cutoff)
+    pub missed_cost_m: Option<f64>,
+    /// a false estimate costs this distance^p / 2 (default: the cutoff)
+    pub false_cost_m: Option<f64>,
 }
 
 /// `[time]`

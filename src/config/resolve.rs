@@ -99,6 +99,7 @@ fn tracking(t: &RawTracking, source: &str) -> Result<TrackingParams, ConfigError
         ego_source,
         forget_after,
     )
+    .and_then(|tp| tp.with_costs(t.missed_cost_m, t.false_cost_m))
     .map_err(|e| err(source, &format!("tracking.{}", e.key), e.expected))
 }
 

@@ -54,9 +54,54 @@ pub struct TrackingParams {
     /// step with more candidate pairs than [`crate::metrics::assign::MAX_EDGES_PER_CELL`]
     /// times this, is assigned greedily (a valid upper bound, counted as `approximate`).
     pub exact_cells: usize,
+    /// The distance whose p-th power halved is the cost of a missed reference object
+    /// (`tracking.missed_cost_m`); `None`: the cutoff, as GOSPA has it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub missed_cost: Option<f64>,
+    /// The same for a false estimate (`tracking.false_cost_m`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub false_cost: Option<f64>,
 }
 
 impl TrackingParams {
+    /// The costs (m^p) of a missed reference and of a false estimate left alone:
+    /// `missed_cost_m^p / 2` and `false_cost_m^p / 2`, both `c^p / 2` by default.
+    pub fn state_costs(&self) -> (f64, f64) {
+        let half = |d: Option<f64>| crate::metrics::pow_p(d.unwrap_or(self.cutoff), self.order) / 2.0;
+        (half(self.missed_cost), half(self.false_cost))
+    }
+
+    /// Whether missed and false objects are costed otherwise than GOSPA's `c^p / 2`.
+    pub fn has_own_costs(&self) -> bool {
+        self.missed_cost.is_some_and(|d| d != self.cutoff)
+            || self.false_cost.is_some_and(|d| d != self.cutoff)
+    }
+
+    /// Sets the missed and false costs (metres), checked: positive, and only with alpha = 2
+    /// (the split into missed and false exists only there).
+    pub fn with_costs(
+        mut self,
+        missed: Option<f64>,
+        false_: Option<f64>,
+    ) -> Result<TrackingParams, ParamError> {
+        for (v, key) in [(missed, "missed_cost_m"), (false_, "false_cost_m")] {
+            if v.is_some_and(|d| !(d.is_finite() && d > 0.0)) {
+                return Err(perr(key, "a positive number of metres"));
+            }
+        }
+        // A cost equal to the cutoff is GOSPA's own: kept as unset, so the config (and its
+        // digest) is the same as without it.
+        let own = |d: Option<f64>| d.filter(|&d| d != self.cutoff);
+        self.missed_cost = own(missed);
+        self.false_cost = own(false_);
+        if self.has_own_costs() && self.alpha != 2.0 {
+            return Err(perr(
+                "missed_cost_m",
+                "the cutoff, or alpha = 2 (missed and false costs exist only there)",
+            ));
+        }
+        Ok(self)
+    }
     /// Validating constructor.
     pub fn try_new(
         cutoff: f64,
@@ -89,6 +134,8 @@ impl TrackingParams {
             ego_source,
             forget_after,
             exact_cells: EXACT_CELLS,
+            missed_cost: None,
+            false_cost: None,
         })
     }
 }
@@ -103,6 +150,8 @@ impl Default for TrackingParams {
             ego_source: EgoSource::Reference,
             forget_after: 300.0,
             exact_cells: EXACT_CELLS,
+            missed_cost: None,
+            false_cost: None,
         }
     }
 }

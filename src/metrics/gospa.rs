@@ -61,6 +61,39 @@ pub fn from_matching(m: usize, n: usize, matching: &Matching, c: f64, p: f64, al
     }
 }
 
+/// GOSPA (alpha = 2) with a missed reference costing `missed` and a false estimate costing
+/// `false_` (m^p) instead of `c^p / 2` each: `(min_g [sum_{(i,j) in g} d^p + missed (|X| -
+/// |g|) + false (|Y| - |g|)])^(1/p)`. A pair is worth assigning only below `d^p = missed +
+/// false`, so `matching` must be the cutoff matching at [`cost_cutoff`]. With unequal costs
+/// the result is a quasi-metric: swapping the sets swaps the costs, so it is not symmetric
+/// (identity and the triangle inequality remain; tests/metric_axioms.rs checks all three).
+/// With `missed = false = c^p / 2` it is [`from_matching`] exactly.
+pub fn from_matching_costs(
+    m: usize,
+    n: usize,
+    matching: &Matching,
+    missed: f64,
+    false_: f64,
+    p: f64,
+) -> Gospa {
+    let g = matching.pairs.len();
+    let (missed, false_) = (missed * (m - g) as f64, false_ * (n - g) as f64);
+    Gospa {
+        total: root_p(matching.localization + missed + false_, p),
+        localization: matching.localization,
+        missed,
+        false_,
+        assigned: g,
+        missed_count: m - g,
+        false_count: n - g,
+    }
+}
+
+/// The cutoff a matching for [`from_matching_costs`] uses: `(missed + false)^(1/p)`.
+pub fn cost_cutoff(missed: f64, false_: f64, p: f64) -> f64 {
+    root_p(missed + false_, p)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

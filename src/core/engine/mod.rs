@@ -286,6 +286,8 @@ pub struct Engine {
     nees_pool: NeesPool,
     solver: ShortestPath,
     scratch: MatchScratch,
+    /// The second matching's scratch, for GOSPA with missed and false costed apart.
+    scratch2: MatchScratch,
     xs: Vec<Point>,
     ys: Vec<Point>,
     wa: Vec<Point>,
@@ -326,6 +328,7 @@ impl Engine {
             nees_pool: NeesPool::default(),
             solver: ShortestPath::default(),
             scratch: MatchScratch::default(),
+            scratch2: MatchScratch::default(),
             xs: Vec::new(),
             ys: Vec::new(),
             wa: Vec::new(),

@@ -34,7 +34,15 @@ impl TgState {
     pub(super) fn new(p: TgospaParams, tp: &TrackingParams) -> TgState {
         TgState {
             p,
-            costs: Costs::metric(tp.cutoff, tp.order, p.switch_cost),
+            costs: {
+                let (missed, false_) = tp.state_costs();
+                Costs {
+                    order: tp.order,
+                    missed,
+                    false_,
+                    switch: crate::metrics::pow_p(p.switch_cost, tp.order),
+                }
+            },
             steps: VecDeque::new(),
             due: None,
         }

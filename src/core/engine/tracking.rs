@@ -58,7 +58,18 @@ impl Engine {
             self.counters.tracking.approximate += 1;
         }
         let (nx, ny) = (self.xp.len(), self.yp.len());
-        let g = gospa::from_matching(nx, ny, &m, c, p, alpha);
+        let g = if self.tp.has_own_costs() {
+            // Missed and false objects costed apart: GOSPA's own matching at its cutoff;
+            // OSPA, NEES and track life keep the cutoff matching.
+            let (missed, false_) = self.tp.state_costs();
+            let cg = gospa::cost_cutoff(missed, false_, p);
+            let (xp, yp) = (&self.xp, &self.yp);
+            let mg =
+                match_bounded(xp, yp, cg, p, true, self.tp.exact_cells, &mut self.solver, &mut self.scratch2);
+            gospa::from_matching_costs(nx, ny, &mg, missed, false_, p)
+        } else {
+            gospa::from_matching(nx, ny, &m, c, p, alpha)
+        };
         let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
         push(Metric::Gospa, g.total);
         if alpha == 2.0 {
