@@ -269,6 +269,14 @@ impl Dashboard {
         }
     }
 
+    /// Leaves out the tiles of metrics the monitor will never emit (T-GOSPA when it is
+    /// not enabled), so the page shows no tile that can only say "no data".
+    pub fn keep_tiles(&mut self, keep: impl Fn(Metric) -> bool) {
+        let kept: Vec<(Metric, Option<Latest>)> =
+            self.tiles.iter().copied().zip(self.latest.iter().cloned()).filter(|(m, _)| keep(*m)).collect();
+        (self.tiles, self.latest) = kept.into_iter().unzip();
+    }
+
     /// What the page shows now.
     pub fn snapshot(&self, monitor: &Monitor) -> Snapshot {
         let now = self.now;

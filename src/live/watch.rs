@@ -261,6 +261,9 @@ pub fn run(
     };
     let mut monitor = Monitor::new(&cfg.monitor());
     let mut dashboard = Dashboard::new(cfg.dashboard, &cfg.windows, &cfg.window_labels, cfg.tracking.order);
+    if cfg.tgospa.is_none() {
+        dashboard.keep_tiles(|m| !crate::metrics::catalog::row(m).name.starts_with("tgospa"));
+    }
     let snapshot_every = 1.0 / cfg.dashboard.rate_hz;
     let mut last_snapshot: Option<Instant> = None;
     let (mut samples, mut events) = (Vec::new(), Vec::new());
