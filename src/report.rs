@@ -207,6 +207,9 @@ pub struct Report {
     pub totals: BTreeMap<Name, f64>,
     /// Pooled NEES consistency test.
     pub nees_consistency: Option<Consistency>,
+    /// The run total of T-GOSPA over consecutive blocks of one window (when enabled).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub tgospa_run: Option<crate::core::engine::TgospaRun>,
     /// Per role transport.
     pub transport: BTreeMap<Name, RoleTransport>,
     /// Percentile method.
@@ -345,6 +348,7 @@ impl Report {
             metrics,
             totals,
             nees_consistency: engine.nees_pool().consistency(),
+            tgospa_run: engine.has_tgospa().then_some(c.tgospa_run),
             transport,
             percentiles: PercentileMethod {
                 method: Name::Borrowed(if stats.all_exact() { "exact-linear" } else { "hdr" }),

@@ -183,3 +183,30 @@ fn unequal_costs_are_not_symmetric() {
     assert_eq!(tgospa(&tr, &[], &k, 100).unwrap().total, 4.0);
     assert_eq!(tgospa(&[], &tr, &k, 100).unwrap().total, 1.0);
 }
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(100))]
+
+    /// The run total by blocks (README: Run total): blocks of 4 steps over 12, against the
+    /// batch value over all 12: sum of blocks <= batch <= sum + gamma^p * R, R the
+    /// reference trajectories found in the two blocks around each boundary.
+    #[test]
+    fn block_totals_bound_the_batch_value(
+        xs in trajectories(12), ys in trajectories(12),
+        gamma in prop::sample::select(vec![0.5, 1.0, 3.0]), p in prop::sample::select(vec![1.0, 2.0]),
+    ) {
+        use plumbline::metrics::tgospa::{tgospa, Costs, Trajectory};
+        let k = Costs::metric(2.0, p, gamma);
+        let parts = |g: plumbline::metrics::tgospa::TGospa| g.localization + g.missed + g.false_ + g.switch;
+        let cut = |side: &[Trajectory], b: usize| -> Vec<Trajectory> {
+            side.iter().map(|t| t[4 * b..4 * b + 4].to_vec()).filter(|t: &Trajectory| t.iter().any(Option::is_some)).collect()
+        };
+        let batch = parts(tgospa(&xs, &ys, &k, 1_000_000).unwrap());
+        let blocks: f64 = (0..3).map(|b| parts(tgospa(&cut(&xs, b), &cut(&ys, b), &k, 1_000_000).unwrap())).sum();
+        let r: usize = (0..2)
+            .map(|b| xs.iter().filter(|t| t[4 * b..4 * b + 8].iter().any(Option::is_some)).count())
+            .sum();
+        prop_assert!(blocks <= batch + 1e-9, "{} > {}", blocks, batch);
+        prop_assert!(batch <= blocks + k.switch * r as f64 + 1e-9, "{} > {} + {}", batch, blocks, k.switch * r as f64);
+    }
+}

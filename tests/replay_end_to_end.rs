@@ -92,6 +92,13 @@ fn the_shipped_identity_switch_shows_in_tgospa_switches() {
         let holds_the_swap = t > 30.02 && t - 10.0 < 30.02;
         assert_eq!(v, if holds_the_swap { 2.0 } else { 0.0 }, "window ending at {t}");
     }
+    // The run total: blocks closing at 10.02, 20.02, ..., 50.02 s and the last at the end:
+    // six; its parts add up to it.
+    let run = r.report.tgospa_run.unwrap();
+    assert_eq!((run.blocks, run.skipped), (6, 0));
+    let sum = run.localization + run.missed + run.false_ + run.switch;
+    assert!((sum - run.total_p).abs() < 1e-9 * run.total_p, "{run:?}");
+    assert_eq!(run.switch, 2.0 * run.switches);
     let per_step: f64 = samples
         .iter()
         .filter(|s| s.metric == plumbline::metrics::Metric::TrackSwitches && (s.t - 30.02).abs() < 1e-9)

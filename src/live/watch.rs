@@ -397,8 +397,10 @@ pub fn run(
         monitor.advance(now, &mut samples, &mut events);
         if let Some((jobs, results, _)) = &tgospa {
             for job in monitor.engine.take_tgospa_jobs() {
+                let block = job.is_block();
                 if jobs.try_send(job).is_err() {
-                    monitor.engine.count_tgospa(JobOutcome::Skipped("busy"));
+                    let skipped = if block { JobOutcome::BlockSkipped } else { JobOutcome::Skipped("busy") };
+                    monitor.engine.count_tgospa(skipped);
                 }
             }
             while let Ok((solved, outcome)) = results.try_recv() {

@@ -34,7 +34,7 @@ use crate::metrics::Metric;
 use crate::msg::{Msg, ObjectSet, ObstacleSet, Path, Pose, Role};
 pub use clearance::Collision;
 pub use plans::{splice_plan_jobs, PlanJob};
-pub use tgospa::{JobOutcome, TgospaJob};
+pub use tgospa::{JobOutcome, TgospaJob, TgospaRun};
 
 /// One input to the engine.
 #[derive(Debug, Clone)]
@@ -147,6 +147,8 @@ pub struct Counters {
     pub tgospa: StepCounts,
     /// Tracking steps that left the T-GOSPA window early (`tgospa.max_steps`).
     pub tgospa_trimmed: u64,
+    /// The run total of T-GOSPA over consecutive blocks.
+    pub tgospa_run: TgospaRun,
     /// Records accepted.
     pub accepted: u64,
     /// Records rejected.
@@ -358,7 +360,7 @@ impl Engine {
 
     /// Counts the outcome of a T-GOSPA job the caller ran.
     pub fn count_tgospa(&mut self, outcome: JobOutcome) {
-        TgospaJob::count(outcome, &mut self.counters.tgospa);
+        TgospaJob::count(outcome, &mut self.counters.tgospa, &mut self.counters.tgospa_run);
     }
 
     /// T-GOSPA over sliding windows, or none (the default).
@@ -585,6 +587,7 @@ impl Engine {
     pub fn finish(&mut self, out: &mut Vec<Sample>) {
         self.drain(true, out);
         self.finish_clearance();
+        self.tgospa_finish();
         let t = self.tracklife.last_t();
         for d in self.tracklife.finish() {
             out.push(Sample { t, metric: Metric::DeletionDelay, role: None, value: d });

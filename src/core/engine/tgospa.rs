@@ -6,6 +6,8 @@
 
 use std::collections::VecDeque;
 
+use serde::{Deserialize, Serialize};
+
 use super::{Engine, Sample, StepCounts};
 use crate::core::align::Point;
 use crate::core::{TgospaParams, TrackingParams};
@@ -28,6 +30,31 @@ pub(super) struct TgState {
     steps: VecDeque<Step>,
     /// The stamp at or after which the next value is due.
     due: Option<f64>,
+    /// The run total's current block: the steps since `block_start`, up to one window.
+    block: Vec<Step>,
+    block_start: Option<f64>,
+}
+
+/// The run total of T-GOSPA over consecutive blocks of one window each (README: sliced
+/// run totals, with the bound between their sum and the whole run's value).
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
+pub struct TgospaRun {
+    /// Blocks solved.
+    pub blocks: u64,
+    /// Blocks skipped (too large, or the solver failed).
+    pub skipped: u64,
+    /// The sum of the blocks' T-GOSPA^p (m^p).
+    pub total_p: f64,
+    /// Its localization part (m^p).
+    pub localization: f64,
+    /// Its missed part (m^p).
+    pub missed: f64,
+    /// Its false part (m^p).
+    pub false_: f64,
+    /// Its switch part (m^p).
+    pub switch: f64,
+    /// Switches (a half switch counts 1/2).
+    pub switches: f64,
 }
 
 impl TgState {
@@ -45,6 +72,8 @@ impl TgState {
             },
             steps: VecDeque::new(),
             due: None,
+            block: Vec::new(),
+            block_start: None,
         }
     }
 }
@@ -57,18 +86,29 @@ pub struct TgospaJob {
     max_variables: usize,
     xs: Vec<Trajectory>,
     ys: Vec<Trajectory>,
+    /// A block of the run total (adds into it, emits no samples).
+    block: bool,
 }
 
 /// What a job's solve came to, for the step counts.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub enum JobOutcome {
     /// Solved: the samples were appended.
     Solved,
     /// Skipped, with the reason code.
     Skipped(&'static str),
+    /// A block of the run total, solved.
+    Block(tgospa::TGospa),
+    /// A block of the run total, skipped.
+    BlockSkipped,
 }
 
 impl TgospaJob {
+    /// Whether the job is a block of the run total.
+    pub fn is_block(&self) -> bool {
+        self.block
+    }
+
     /// States the job holds.
     pub fn states(&self) -> usize {
         self.xs.iter().chain(&self.ys).map(|t| t.iter().flatten().count()).sum()
@@ -76,7 +116,11 @@ impl TgospaJob {
 
     /// Appends the window's samples to `out` (none when skipped).
     pub fn run(&self, out: &mut Vec<Sample>) -> JobOutcome {
-        match tgospa::tgospa(&self.xs, &self.ys, &self.costs, self.max_variables) {
+        let solved = tgospa::tgospa(&self.xs, &self.ys, &self.costs, self.max_variables);
+        if self.block {
+            return solved.map_or(JobOutcome::BlockSkipped, JobOutcome::Block);
+        }
+        match solved {
             Ok(g) => {
                 let t = self.t;
                 let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });
@@ -92,11 +136,21 @@ impl TgospaJob {
         }
     }
 
-    /// Counts an outcome into the step counts.
-    pub fn count(outcome: JobOutcome, counts: &mut StepCounts) {
+    /// Counts an outcome into the step counts or the run total.
+    pub fn count(outcome: JobOutcome, counts: &mut StepCounts, run: &mut TgospaRun) {
         match outcome {
             JobOutcome::Solved => counts.evaluated += 1,
             JobOutcome::Skipped(reason) => counts.skip(reason),
+            JobOutcome::Block(g) => {
+                run.blocks += 1;
+                run.total_p += g.localization + g.missed + g.false_ + g.switch;
+                run.localization += g.localization;
+                run.missed += g.missed;
+                run.false_ += g.false_;
+                run.switch += g.switch;
+                run.switches += g.switches;
+            }
+            JobOutcome::BlockSkipped => run.skipped += 1,
         }
     }
 }
@@ -117,13 +171,64 @@ fn trajectories<'a>(steps: impl Iterator<Item = &'a [(u64, [f64; 2])]> + Clone, 
     out
 }
 
+fn job_of<'a>(
+    steps: impl Iterator<Item = &'a Step> + Clone,
+    n: usize,
+    t: f64,
+    tg: &TgState,
+    block: bool,
+) -> TgospaJob {
+    TgospaJob {
+        t,
+        costs: tg.costs,
+        max_variables: tg.p.max_variables,
+        xs: trajectories(steps.clone().map(|s| &s.refs[..]), n),
+        ys: trajectories(steps.map(|s| &s.ests[..]), n),
+        block,
+    }
+}
+
 impl Engine {
+    /// The run total's last block, at the end of the run.
+    pub(super) fn tgospa_finish(&mut self) {
+        let Some(tg) = self.tgospa.as_mut() else { return };
+        if tg.block.is_empty() {
+            return;
+        }
+        let t = tg.block.last().map_or(0.0, |s| s.t);
+        let job = job_of(tg.block.iter(), tg.block.len(), t, tg, true);
+        tg.block.clear();
+        self.run_or_keep(job, &mut Vec::new());
+    }
+
+    /// Runs a job at once, or keeps it for the caller.
+    pub(super) fn run_or_keep(&mut self, job: TgospaJob, out: &mut Vec<Sample>) {
+        match self.tgospa_jobs.as_mut() {
+            Some(kept) => kept.push(job),
+            None => {
+                let outcome = job.run(out);
+                self.count_tgospa(outcome);
+            }
+        }
+    }
+
     /// Keeps the tracking step just scored (its objects as scored, after the region
     /// filter) and, when a value is due, makes the window's job.
-    pub(super) fn tgospa_step(&mut self, t: f64) -> Option<TgospaJob> {
-        let tg = self.tgospa.as_mut()?;
+    pub(super) fn tgospa_step(&mut self, t: f64) -> Vec<TgospaJob> {
+        let Some(tg) = self.tgospa.as_mut() else { return Vec::new() };
         let keep = |ps: &[Point]| ps.iter().map(|o| (o.id, [o.x, o.y])).collect::<Vec<_>>();
-        tg.steps.push_back(Step { t, refs: keep(&self.xs), ests: keep(&self.ys) });
+        let step = Step { t, refs: keep(&self.xs), ests: keep(&self.ys) };
+        // The run total: a block closes at the first step one window after it opened.
+        let start = *tg.block_start.get_or_insert(t);
+        let mut block_job = None;
+        if t >= start + tg.p.window || tg.block.len() >= tg.p.max_steps {
+            let last = tg.block.last().map_or(t, |s| s.t);
+            block_job = Some(job_of(tg.block.iter(), tg.block.len(), last, tg, true));
+            tg.block.clear();
+            tg.block_start = Some(t);
+        }
+        tg.block.push(step.clone());
+        tg.steps.push_back(step);
         while tg.steps.front().is_some_and(|s| s.t <= t - tg.p.window) {
             tg.steps.pop_front();
         }
@@ -133,22 +238,14 @@ impl Engine {
         }
         let due = *tg.due.get_or_insert(t + tg.p.every);
         if t < due {
-            return None;
+            return block_job.into_iter().collect();
         }
         // The next value is due one period on, past this step.
         let periods = ((t - due) / tg.p.every).floor() + 1.0;
         let next = due + periods * tg.p.every;
         // (At stamps so large that a period is below their resolution, the next step.)
         tg.due = Some(if next > t { next } else { t + tg.p.every });
-        let n = tg.steps.len();
-        let refs = tg.steps.iter().map(|s| &s.refs[..]);
-        let ests = tg.steps.iter().map(|s| &s.ests[..]);
-        Some(TgospaJob {
-            t,
-            costs: tg.costs,
-            max_variables: tg.p.max_variables,
-            xs: trajectories(refs, n),
-            ys: trajectories(ests, n),
-        })
+        let window = job_of(tg.steps.iter(), tg.steps.len(), t, tg, false);
+        block_job.into_iter().chain(Some(window)).collect()
     }
 }

@@ -111,14 +111,8 @@ impl Engine {
         for &d in &self.tl_step.deletion {
             push(Metric::DeletionDelay, d);
         }
-        if let Some(job) = self.tgospa_step(t) {
-            match self.tgospa_jobs.as_mut() {
-                Some(kept) => kept.push(job),
-                None => {
-                    let outcome = job.run(out);
-                    self.count_tgospa(outcome);
-                }
-            }
+        for job in self.tgospa_step(t) {
+            self.run_or_keep(job, out);
         }
     }
 }
