@@ -14,6 +14,15 @@ use crate::core::{TgospaParams, TrackingParams};
 use crate::metrics::tgospa::{self, Costs, Trajectory};
 use crate::metrics::Metric;
 
+/// Object states a window (and the run total's block) holds at most; beyond, the oldest
+/// steps leave first (counted as trimmed). About 5 MB: 200 000 states are 10 s of 400
+/// objects at 50 Hz, far past any stack's object list, and bound a hostile one.
+const MAX_STATES: usize = 200_000;
+
+/// Trajectory cells (trajectories times steps) a job lays out at most; a window with more
+/// (ids that change at every step, say) is skipped as too large before anything is built.
+const MAX_CELLS: usize = 2_000_000;
+
 /// One tracking step as the window keeps it.
 #[derive(Debug, Clone)]
 struct Step {
@@ -28,6 +37,10 @@ pub(super) struct TgState {
     p: TgospaParams,
     costs: Costs,
     steps: VecDeque<Step>,
+    /// States held in `steps`.
+    held: usize,
+    /// States held in `block`.
+    block_held: usize,
     /// The stamp at or after which the next value is due.
     due: Option<f64>,
     /// The run total's current block: the steps since `block_start`, up to one window.
@@ -71,6 +84,8 @@ impl TgState {
                 }
             },
             steps: VecDeque::new(),
+            held: 0,
+            block_held: 0,
             due: None,
             block: Vec::new(),
             block_start: None,
@@ -88,6 +103,8 @@ pub struct TgospaJob {
     ys: Vec<Trajectory>,
     /// A block of the run total (adds into it, emits no samples).
     block: bool,
+    /// Cells the trajectories would need, when more than [`MAX_CELLS`] (nothing built).
+    oversized: Option<usize>,
 }
 
 /// What a job's solve came to, for the step counts.
@@ -116,7 +133,10 @@ impl TgospaJob {
 
     /// Appends the window's samples to `out` (none when skipped).
     pub fn run(&self, out: &mut Vec<Sample>) -> JobOutcome {
-        let solved = tgospa::tgospa(&self.xs, &self.ys, &self.costs, self.max_variables);
+        let solved = match self.oversized {
+            Some(needed) => Err(tgospa::Skip::TooLarge { needed, limit: MAX_CELLS }),
+            None => tgospa::tgospa(&self.xs, &self.ys, &self.costs, self.max_variables),
+        };
         if self.block {
             return solved.map_or(JobOutcome::BlockSkipped, JobOutcome::Block);
         }
@@ -171,6 +191,13 @@ fn trajectories<'a>(steps: impl Iterator<Item = &'a [(u64, [f64; 2])]> + Clone, 
     out
 }
 
+fn distinct<'a>(steps: impl Iterator<Item = &'a [(u64, [f64; 2])]>) -> usize {
+    let mut ids: Vec<u64> = steps.flat_map(|s| s.iter().map(|o| o.0)).collect();
+    ids.sort_unstable();
+    ids.dedup();
+    ids.len()
+}
+
 fn job_of<'a>(
     steps: impl Iterator<Item = &'a Step> + Clone,
     n: usize,
@@ -178,14 +205,15 @@ fn job_of<'a>(
     tg: &TgState,
     block: bool,
 ) -> TgospaJob {
-    TgospaJob {
-        t,
-        costs: tg.costs,
-        max_variables: tg.p.max_variables,
-        xs: trajectories(steps.clone().map(|s| &s.refs[..]), n),
-        ys: trajectories(steps.map(|s| &s.ests[..]), n),
-        block,
-    }
+    let cells = (distinct(steps.clone().map(|s| &s.refs[..])) + distinct(steps.clone().map(|s| &s.ests[..])))
+        .saturating_mul(n);
+    let oversized = (cells > MAX_CELLS).then_some(cells);
+    let (xs, ys) = if oversized.is_some() {
+        (Vec::new(), Vec::new())
+    } else {
+        (trajectories(steps.clone().map(|s| &s.refs[..]), n), trajectories(steps.map(|s| &s.ests[..]), n))
+    };
+    TgospaJob { t, costs: tg.costs, max_variables: tg.p.max_variables, xs, ys, block, oversized }
 }
 
 impl Engine {
@@ -198,6 +226,7 @@ impl Engine {
         let t = tg.block.last().map_or(0.0, |s| s.t);
         let job = job_of(tg.block.iter(), tg.block.len(), t, tg, true);
         tg.block.clear();
+        tg.block_held = 0;
         self.run_or_keep(job, &mut Vec::new());
     }
 
@@ -221,20 +250,28 @@ impl Engine {
         // The run total: a block closes at the first step one window after it opened.
         let start = *tg.block_start.get_or_insert(t);
         let mut block_job = None;
-        if t >= start + tg.p.window || tg.block.len() >= tg.p.max_steps {
+        let size = step.refs.len() + step.ests.len();
+        let full = tg.block.len() >= tg.p.max_steps || tg.block_held + size > MAX_STATES;
+        if !tg.block.is_empty() && (t >= start + tg.p.window || full) {
             let last = tg.block.last().map_or(t, |s| s.t);
             block_job = Some(job_of(tg.block.iter(), tg.block.len(), last, tg, true));
             tg.block.clear();
+            tg.block_held = 0;
             tg.block_start = Some(t);
         }
+        tg.block_held += size;
         tg.block.push(step.clone());
+        tg.held += size;
         tg.steps.push_back(step);
-        while tg.steps.front().is_some_and(|s| s.t <= t - tg.p.window) {
-            tg.steps.pop_front();
-        }
-        while tg.steps.len() > tg.p.max_steps {
-            tg.steps.pop_front();
-            self.counters.tgospa_trimmed += 1;
+        while let Some(old) = tg.steps.pop_front() {
+            if old.t > t - tg.p.window && tg.steps.len() < tg.p.max_steps && tg.held <= MAX_STATES {
+                tg.steps.push_front(old);
+                break;
+            }
+            tg.held -= old.refs.len() + old.ests.len();
+            if old.t > t - tg.p.window {
+                self.counters.tgospa_trimmed += 1;
+            }
         }
         let due = *tg.due.get_or_insert(t + tg.p.every);
         if t < due {
