@@ -61,6 +61,12 @@ impl Lp {
         self.problem.add_constraint(&row[..], ComparisonOp::Ge, rhs);
     }
 
+    /// A variable `0 <= x <= upper` with cost `cost`; its index.
+    pub fn bounded(&mut self, cost: f64, upper: f64) -> usize {
+        self.vars.push(self.problem.add_var(cost, (0.0, upper)));
+        self.vars.len() - 1
+    }
+
     /// The minimiser's values, by variable index.
     pub fn solve(&self) -> Result<Vec<f64>, LpError> {
         let outcome = self.problem.solve().map_err(|e| LpError(e.to_string()))?;

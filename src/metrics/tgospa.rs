@@ -307,20 +307,20 @@ fn solve_component(
     for &step in &steps {
         for &(i, j) in pairs {
             let (cost, part) = pair_cost(at(&xs[i], step), at(&ys[j], step), k);
-            w.push(lp.var(cost));
+            w.push(lp.bounded(cost, 1.0));
             parts.push((cost, part));
         }
         for &i in refs {
-            u.push(lp.var(if at(&xs[i], step).is_some() { k.missed } else { 0.0 }));
+            u.push(lp.bounded(if at(&xs[i], step).is_some() { k.missed } else { 0.0 }, 1.0));
         }
         for &j in ests {
-            v.push(lp.var(if at(&ys[j], step).is_some() { k.false_ } else { 0.0 }));
+            v.push(lp.bounded(if at(&ys[j], step).is_some() { k.false_ } else { 0.0 }, 1.0));
         }
     }
     let np = pairs.len();
     let mut e = Vec::with_capacity((t - 1) * np);
     for _ in 0..(t - 1) * np {
-        e.push(lp.var(k.switch / 2.0));
+        e.push(lp.bounded(k.switch / 2.0, 1.0));
     }
     let mut row: Vec<(usize, f64)> = Vec::new();
     for s in 0..t {
