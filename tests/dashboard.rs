@@ -2,6 +2,8 @@
 //! ring is bounded, tiles and roles go stale, alerts are active from raise to clear, and the
 //! message rate is counted over the monitor's clock. Values are worked by hand.
 
+mod support;
+
 use plumbline::config::Config;
 use plumbline::core::{Input, Sample};
 use plumbline::dashboard::{Dashboard, DashboardParams};
@@ -194,4 +196,24 @@ fn the_header_and_the_alerts_say_when_the_input_is_stale() {
     assert_eq!(snap.input, "stale");
     assert_eq!(snap.alerts_active.len(), 1, "still raised: nothing cleared it");
     assert!(snap.alerts_active[0].stale, "but marked stale");
+}
+
+/// The shipped log's identity switch reaches the dashboard: replayed with T-GOSPA on, the
+/// "T-GOSPA switches" tile reads 2 once the window ending at 31.02 s is in (the swap at
+/// 30.02 s); a dashboard for a monitor without T-GOSPA shows no T-GOSPA tile.
+#[test]
+fn the_identity_switch_shows_on_the_tgospa_switches_tile() {
+    let cfg = Config::load(None, &["tgospa.enabled=true".into()]).unwrap();
+    let (_, samples) = support::run(&cfg, &support::repo("replay-logs/campus-loop.jsonl"));
+    let mut m = Monitor::new(&cfg.monitor());
+    let mut d = Dashboard::new(params(), &cfg.windows, &cfg.window_labels, cfg.tracking.order);
+    let upto: Vec<_> = samples.iter().copied().filter(|s| s.t <= 31.5).collect();
+    let (mut s, mut e) = (Vec::new(), Vec::new());
+    m.inject(&mut s, &upto, &mut e);
+    d.observe(31.5, &s, &e);
+    let snap = d.snapshot(&m);
+    let tile = snap.tiles.iter().find(|t| t.metric == "tgospa_switches").expect("a T-GOSPA switches tile");
+    assert_eq!((tile.label, tile.value, tile.t), ("T-GOSPA switches", Some(2.0), Some(31.02)));
+    d.keep_tiles(|m| !plumbline::metrics::catalog::row(m).name.starts_with("tgospa"));
+    assert!(d.snapshot(&m).tiles.iter().all(|t| !t.metric.starts_with("tgospa")));
 }
