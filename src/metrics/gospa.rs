@@ -39,26 +39,14 @@ pub struct Gospa {
 
 /// GOSPA from a cutoff matching of `m` references and `n` estimates.
 pub fn from_matching(m: usize, n: usize, matching: &Matching, c: f64, p: f64, alpha: f64) -> Gospa {
-    let g = matching.pairs.len();
     let cp = pow_p(c, p);
-    let missed = cp / 2.0 * (m - g) as f64;
-    let false_ = cp / 2.0 * (n - g) as f64;
-    let total_p = if alpha == 2.0 {
-        matching.localization + missed + false_
-    } else {
+    let mut out = from_matching_costs(m, n, matching, cp / 2.0, cp / 2.0, p);
+    if alpha != 2.0 {
         // Full permutation cost: unassigned pairs of the shorter side cost c^p each.
-        let full = matching.localization + cp * (m.min(n) - g) as f64;
-        full + cp / alpha * m.abs_diff(n) as f64
-    };
-    Gospa {
-        total: root_p(total_p, p),
-        localization: matching.localization,
-        missed,
-        false_,
-        assigned: g,
-        missed_count: m - g,
-        false_count: n - g,
+        let full = matching.localization + cp * (m.min(n) - out.assigned) as f64;
+        out.total = root_p(full + cp / alpha * m.abs_diff(n) as f64, p);
     }
+    out
 }
 
 /// GOSPA (alpha = 2) with a missed reference costing `missed` and a false estimate costing
