@@ -158,6 +158,20 @@ enum Part {
     None,
 }
 
+/// Adds a pair's step cost, taken with weight `val`, into its part.
+fn add_pair(out: &mut TGospa, (cost, part): (f64, Part), val: f64, k: &Costs) {
+    match part {
+        Part::Localization => out.localization += cost * val,
+        Part::MissedAndFalse => {
+            out.missed += k.missed * val;
+            out.false_ += k.false_ * val;
+        }
+        Part::Missed => out.missed += k.missed * val,
+        Part::False => out.false_ += k.false_ * val,
+        Part::None => {}
+    }
+}
+
 /// T-GOSPA of the references `xs` and the estimates `ys` (all of the same length, the
 /// window's steps), with at most `max_vars` variables in any one program.
 pub fn tgospa(xs: &[Trajectory], ys: &[Trajectory], k: &Costs, max_vars: usize) -> Result<TGospa, Skip> {
@@ -348,19 +362,10 @@ fn solve_component(
     out.components += 1;
     out.largest = out.largest.max(lp.len());
     let mut integral = true;
-    for (q, &(cost, part)) in parts.iter().enumerate() {
+    for (q, &part) in parts.iter().enumerate() {
         let val = x[w[q]];
         integral &= val == 0.0 || val == 1.0;
-        match part {
-            Part::Localization => out.localization += cost * val,
-            Part::MissedAndFalse => {
-                out.missed += k.missed * val;
-                out.false_ += k.false_ * val;
-            }
-            Part::Missed => out.missed += k.missed * val,
-            Part::False => out.false_ += k.false_ * val,
-            Part::None => {}
-        }
+        add_pair(out, part, val, k);
     }
     for s in 0..t {
         for (r, &i) in refs.iter().enumerate() {
@@ -438,16 +443,7 @@ fn single_pair(x: &Trajectory, y: &Trajectory, steps: &[usize], k: &Costs, out: 
     for s in 0..t {
         let (m, f) = alone(steps[s]);
         if states[s] == 1 {
-            match pair_cost(at(x, steps[s]), at(y, steps[s]), k) {
-                (d, Part::Localization) => out.localization += d,
-                (_, Part::MissedAndFalse) => {
-                    out.missed += k.missed;
-                    out.false_ += k.false_;
-                }
-                (_, Part::Missed) => out.missed += k.missed,
-                (_, Part::False) => out.false_ += k.false_,
-                (_, Part::None) => {}
-            }
+            add_pair(out, pair_cost(at(x, steps[s]), at(y, steps[s]), k), 1.0, k);
         } else {
             out.missed += m;
             out.false_ += f;

@@ -5,6 +5,7 @@
 //! beside the engine, like a plan's path quality. Pure.
 
 use std::collections::VecDeque;
+use std::sync::Arc;
 
 use serde::{Deserialize, Serialize};
 
@@ -24,7 +25,7 @@ const MAX_STATES: usize = 200_000;
 const MAX_CELLS: usize = 2_000_000;
 
 /// One tracking step as the window keeps it.
-#[derive(Debug, Clone)]
+#[derive(Debug)]
 struct Step {
     t: f64,
     refs: Vec<(u64, [f64; 2])>,
@@ -36,7 +37,7 @@ struct Step {
 pub(super) struct TgState {
     p: TgospaParams,
     costs: Costs,
-    steps: VecDeque<Step>,
+    steps: VecDeque<Arc<Step>>,
     /// States held in `steps`.
     held: usize,
     /// States held in `block`.
@@ -44,7 +45,7 @@ pub(super) struct TgState {
     /// The stamp at or after which the next value is due.
     due: Option<f64>,
     /// The run total's current block: the steps since `block_start`, up to one window.
-    block: Vec<Step>,
+    block: Vec<Arc<Step>>,
     block_start: Option<f64>,
 }
 
@@ -126,11 +127,6 @@ impl TgospaJob {
         self.block
     }
 
-    /// States the job holds.
-    pub fn states(&self) -> usize {
-        self.xs.iter().chain(&self.ys).map(|t| t.iter().flatten().count()).sum()
-    }
-
     /// Appends the window's samples to `out` (none when skipped).
     pub fn run(&self, out: &mut Vec<Sample>) -> JobOutcome {
         let solved = match self.oversized {
@@ -157,7 +153,7 @@ impl TgospaJob {
     }
 
     /// Counts an outcome into the step counts or the run total.
-    pub fn count(outcome: JobOutcome, counts: &mut StepCounts, run: &mut TgospaRun) {
+    pub(super) fn count(outcome: JobOutcome, counts: &mut StepCounts, run: &mut TgospaRun) {
         match outcome {
             JobOutcome::Solved => counts.evaluated += 1,
             JobOutcome::Skipped(reason) => counts.skip(reason),
@@ -175,11 +171,20 @@ impl TgospaJob {
     }
 }
 
-/// The trajectories of one side: each id seen in the window, in id order.
-fn trajectories<'a>(steps: impl Iterator<Item = &'a [(u64, [f64; 2])]> + Clone, n: usize) -> Vec<Trajectory> {
-    let mut ids: Vec<u64> = steps.clone().flat_map(|s| s.iter().map(|o| o.0)).collect();
+/// The ids seen on one side of the window, in order: one trajectory each.
+fn ids_of<'a>(steps: impl Iterator<Item = &'a [(u64, [f64; 2])]>) -> Vec<u64> {
+    let mut ids: Vec<u64> = steps.flat_map(|s| s.iter().map(|o| o.0)).collect();
     ids.sort_unstable();
     ids.dedup();
+    ids
+}
+
+/// The trajectories of one side, one per id of `ids`, over the window's `n` steps.
+fn trajectories<'a>(
+    steps: impl Iterator<Item = &'a [(u64, [f64; 2])]>,
+    ids: &[u64],
+    n: usize,
+) -> Vec<Trajectory> {
     let mut out = vec![vec![None; n]; ids.len()];
     for (k, s) in steps.enumerate() {
         for &(id, xy) in s {
@@ -191,27 +196,22 @@ fn trajectories<'a>(steps: impl Iterator<Item = &'a [(u64, [f64; 2])]> + Clone, 
     out
 }
 
-fn distinct<'a>(steps: impl Iterator<Item = &'a [(u64, [f64; 2])]>) -> usize {
-    let mut ids: Vec<u64> = steps.flat_map(|s| s.iter().map(|o| o.0)).collect();
-    ids.sort_unstable();
-    ids.dedup();
-    ids.len()
-}
-
 fn job_of<'a>(
-    steps: impl Iterator<Item = &'a Step> + Clone,
+    steps: impl Iterator<Item = &'a Arc<Step>> + Clone,
     n: usize,
     t: f64,
     tg: &TgState,
     block: bool,
 ) -> TgospaJob {
-    let cells = (distinct(steps.clone().map(|s| &s.refs[..])) + distinct(steps.clone().map(|s| &s.ests[..])))
-        .saturating_mul(n);
+    let refs = steps.clone().map(|s| &s.refs[..]);
+    let ests = steps.map(|s| &s.ests[..]);
+    let (ref_ids, est_ids) = (ids_of(refs.clone()), ids_of(ests.clone()));
+    let cells = (ref_ids.len() + est_ids.len()).saturating_mul(n);
     let oversized = (cells > MAX_CELLS).then_some(cells);
     let (xs, ys) = if oversized.is_some() {
         (Vec::new(), Vec::new())
     } else {
-        (trajectories(steps.clone().map(|s| &s.refs[..]), n), trajectories(steps.map(|s| &s.ests[..]), n))
+        (trajectories(refs, &ref_ids, n), trajectories(ests, &est_ids, n))
     };
     TgospaJob { t, costs: tg.costs, max_variables: tg.p.max_variables, xs, ys, block, oversized }
 }
@@ -246,7 +246,7 @@ impl Engine {
     pub(super) fn tgospa_step(&mut self, t: f64) -> Vec<TgospaJob> {
         let Some(tg) = self.tgospa.as_mut() else { return Vec::new() };
         let keep = |ps: &[Point]| ps.iter().map(|o| (o.id, [o.x, o.y])).collect::<Vec<_>>();
-        let step = Step { t, refs: keep(&self.xs), ests: keep(&self.ys) };
+        let step = Arc::new(Step { t, refs: keep(&self.xs), ests: keep(&self.ys) });
         // The run total: a block closes at the first step one window after it opened.
         let start = *tg.block_start.get_or_insert(t);
         let mut block_job = None;
@@ -260,7 +260,7 @@ impl Engine {
             tg.block_start = Some(t);
         }
         tg.block_held += size;
-        tg.block.push(step.clone());
+        tg.block.push(Arc::clone(&step));
         tg.held += size;
         tg.steps.push_back(step);
         while let Some(old) = tg.steps.pop_front() {
