@@ -189,6 +189,49 @@ impl Stats {
     }
 }
 
+/// Values per block of [`Exact`] (32 KiB).
+const EXACT_BLOCK: usize = 4096;
+
+/// The values kept for exact percentiles, in arrival order, in fixed blocks: a block is
+/// allocated at its full size and never grows, so no value is ever copied and the memory
+/// held is the values' own plus at most one block (a `Vec` that doubles holds up to twice
+/// its values, and both copies while it moves).
+#[derive(Debug, Clone, Default)]
+struct Exact {
+    blocks: Vec<Vec<f64>>,
+    len: usize,
+}
+
+impl Exact {
+    fn len(&self) -> usize {
+        self.len
+    }
+
+    fn push(&mut self, v: f64) {
+        match self.blocks.last_mut() {
+            Some(b) if b.len() < EXACT_BLOCK => b.push(v),
+            _ => {
+                let mut b = Vec::with_capacity(EXACT_BLOCK);
+                b.push(v);
+                self.blocks.push(b);
+            }
+        }
+        self.len += 1;
+    }
+
+    fn iter(&self) -> impl Iterator<Item = f64> + '_ {
+        self.blocks.iter().flatten().copied()
+    }
+
+    fn to_vec(&self) -> Vec<f64> {
+        let mut v = Vec::with_capacity(self.len);
+        for b in &self.blocks {
+            v.extend_from_slice(b);
+        }
+        v
+    }
+}
+
 /// Accumulates one metric's values.
 #[derive(Debug, Clone)]
 pub struct Summary {
@@ -198,7 +241,7 @@ pub struct Summary {
     last: Option<f64>,
     min: f64,
     max: f64,
-    exact: Vec<f64>,
+    exact: Exact,
     cap: usize,
     digits: u8,
     hist: Option<(Histogram<u64>, Histogram<u64>)>,
@@ -214,7 +257,7 @@ impl Summary {
             last: None,
             min: f64::INFINITY,
             max: f64::NEG_INFINITY,
-            exact: Vec::new(),
+            exact: Exact::default(),
             cap,
             digits,
             hist: None,
@@ -241,10 +284,10 @@ impl Summary {
             None => {
                 let mk = || Histogram::<u64>::new(self.digits).expect("1..=5 digits are valid");
                 let (mut neg, mut pos) = (mk(), mk());
-                for &x in self.exact.iter().chain(std::iter::once(&v)) {
+                for x in self.exact.iter().chain(std::iter::once(v)) {
                     record(&mut neg, &mut pos, x);
                 }
-                self.exact = Vec::new();
+                self.exact = Exact::default();
                 self.hist = Some((neg, pos));
             }
         }
@@ -278,7 +321,7 @@ impl Summary {
         let sum = self.sum + self.comp;
         let (p50, p95, p99) = match &self.hist {
             None => {
-                let [p50, p95, p99] = quantiles_selected(&mut self.exact.clone(), [0.5, 0.95, 0.99]);
+                let [p50, p95, p99] = quantiles_selected(&mut self.exact.to_vec(), [0.5, 0.95, 0.99]);
                 (p50, p95, p99)
             }
             Some((neg, pos)) => {
@@ -396,6 +439,33 @@ mod tests {
         assert!((st.p95 - 4.8).abs() < 1e-12);
         assert!((st.p99 - 4.96).abs() < 1e-12);
         assert!(Summary::new(4, 3).stats().is_none());
+    }
+
+    /// Values across several blocks of the exact store (and a histogram switch at a cap that
+    /// is not a block multiple): the percentiles are numpy's linear ones of all the values,
+    /// and the histogram receives every value once.
+    #[test]
+    fn exact_store_spans_blocks() {
+        let n = 3 * EXACT_BLOCK + 17;
+        let vals: Vec<f64> = (0..n).map(|i| ((i * 7919) % n) as f64 * 0.01 - 40.0).collect();
+        let mut s = Summary::new(n, 3);
+        for &v in &vals {
+            s.add(v);
+        }
+        assert!(s.is_exact());
+        assert_eq!(s.exact.len(), n);
+        assert!(s.exact.blocks.iter().all(|b| b.capacity() == EXACT_BLOCK));
+        let mut sorted = vals.clone();
+        sorted.sort_by(f64::total_cmp);
+        let st = s.stats().unwrap();
+        for (q, got) in [(0.5, st.p50), (0.95, st.p95), (0.99, st.p99)] {
+            assert_eq!(got.to_bits(), quantile_sorted(&sorted, q).to_bits(), "q={q}");
+        }
+        // One more value passes the cap: the histogram counts all n + 1.
+        s.add(1.5);
+        assert!(!s.is_exact());
+        let (neg, pos) = s.hist.as_ref().unwrap();
+        assert_eq!(neg.len() + pos.len(), n as u64 + 1);
     }
 
     #[test]
