@@ -136,13 +136,32 @@ pub struct Projection {
     pub lateral: f64,
 }
 
+/// Slack of the bounding-box test in [`project`] (m), plus 1e-12 of the point's
+/// coordinates: rounding of coordinates up to `limits.max_coordinate_m` (1e7 m by default)
+/// is about 2e-9 m.
+const PRUNE_SLACK_M: f64 = 1e-6;
+
 /// Projects (x, y) onto the polyline (at least two points).
 pub fn project(pts: &[[f64; 2]], x: f64, y: f64) -> Option<Projection> {
     // Squared distances compare the same; the root, the side and the heading are taken
     // for the nearest segment only.
     let mut best: Option<(f64, usize, [f64; 2])> = None;
+    let slack = PRUNE_SLACK_M + (x.abs() + y.abs()) * 1e-12;
     for (i, w) in pts.windows(2).enumerate() {
         let (a, b) = (w[0], w[1]);
+        // A segment whose bounding box is farther than the nearest point so far cannot
+        // hold a nearer one: skipped without the division. The gap is shrunk by `slack`
+        // and the bound raised by a relative 1e-9, far more than the rounding
+        // of the foot point and of d2 below, so a skipped segment is one whose d2 would
+        // not have passed `d2 < bd2`: the result is the full scan's, bit for bit.
+        if let Some((bd2, _, _)) = best {
+            let gx = (a[0].min(b[0]) - x).max(x - a[0].max(b[0])) - slack;
+            let gy = (a[1].min(b[1]) - y).max(y - a[1].max(b[1])) - slack;
+            let (gx, gy) = (gx.max(0.0), gy.max(0.0));
+            if gx * gx + gy * gy > bd2 * (1.0 + 1e-9) {
+                continue;
+            }
+        }
         let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
         let l2 = dx * dx + dy * dy;
         if l2 <= 0.0 {
@@ -325,6 +344,62 @@ mod tests {
 
     /// Reference: the standard library's `f64::round`. Halves, their neighbours one ulp
     /// either side, the 2^52 edge, infinities and NaN, then random values of every scale.
+    /// The full scan `project` prunes: every segment's foot point, the first strictly
+    /// nearest kept.
+    fn project_full_scan(pts: &[[f64; 2]], x: f64, y: f64) -> Option<Projection> {
+        let mut best: Option<(f64, usize, [f64; 2])> = None;
+        for (i, w) in pts.windows(2).enumerate() {
+            let (a, b) = (w[0], w[1]);
+            let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
+            let l2 = dx * dx + dy * dy;
+            if l2 <= 0.0 {
+                continue;
+            }
+            let t = (((x - a[0]) * dx + (y - a[1]) * dy) / l2).clamp(0.0, 1.0);
+            let q = [a[0] + t * dx, a[1] + t * dy];
+            let d2 = (x - q[0]) * (x - q[0]) + (y - q[1]) * (y - q[1]);
+            if best.is_none_or(|(bd2, _, _)| d2 < bd2) {
+                best = Some((d2, i, q));
+            }
+        }
+        best.map(|(d2, i, q)| {
+            let (a, b) = (pts[i], pts[i + 1]);
+            let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
+            let side = dx * (y - a[1]) - dy * (x - a[0]);
+            let d = d2.sqrt();
+            Projection { point: q, yaw: dy.atan2(dx), lateral: if side >= 0.0 { d } else { -d } }
+        })
+    }
+
+    proptest::proptest! {
+        /// The pruned projection equals the full scan bit for bit: random polylines (with
+        /// repeated vertices and far offsets), points on vertices, on segments and off them.
+        #[test]
+        fn pruned_projection_is_the_full_scan(
+            origin in (-1e6f64..1e6, -1e6f64..1e6),
+            steps in proptest::collection::vec((-3.0f64..3.0, -3.0f64..3.0, 0u8..4), 1..60),
+            probe in (0usize..60, -1.0f64..2.0, -2.0f64..2.0),
+        ) {
+            let mut pts = vec![[origin.0, origin.1]];
+            for &(dx, dy, kind) in &steps {
+                let l = *pts.last().unwrap();
+                // kind 0: the same vertex again (a zero-length segment).
+                pts.push(if kind == 0 { l } else { [l[0] + dx, l[1] + dy] });
+            }
+            let k = probe.0 % pts.len();
+            let v = pts[k];
+            let n = pts[(k + 1) % pts.len()];
+            let on_segment = [v[0] + (n[0] - v[0]) * probe.1, v[1] + (n[1] - v[1]) * probe.1];
+            for (x, y) in [(v[0], v[1]), (on_segment[0], on_segment[1]), (v[0] + probe.2, v[1] - probe.2)] {
+                let (got, want) = (project(&pts, x, y), project_full_scan(&pts, x, y));
+                let bits = |p: Option<Projection>| {
+                    p.map(|p| [p.point[0].to_bits(), p.point[1].to_bits(), p.yaw.to_bits(), p.lateral.to_bits()])
+                };
+                proptest::prop_assert_eq!(bits(got), bits(want));
+            }
+        }
+    }
+
     #[test]
     fn inline_round_equals_the_library_round() {
         let same = |x: f64| {
