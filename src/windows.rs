@@ -294,8 +294,26 @@ impl Window {
         if idx == self.head {
             self.last = Some(v);
         }
-        // Searched from the newest bucket, where values mostly land.
-        let pos = match self.buckets.iter().rposition(|b| b.index <= idx) {
+        // Searched from the newest bucket, where values mostly land (tried first on its own).
+        let newest = self.buckets.len().wrapping_sub(1);
+        let pos = match self.buckets.back() {
+            Some(b) if b.index == idx => newest,
+            _ => self.find_or_insert(idx),
+        };
+        let b = &mut self.buckets[pos];
+        b.count += 1;
+        b.sum += v;
+        b.min = b.min.min(v);
+        b.max = b.max.max(v);
+        if let Some(total) = self.total.as_mut() {
+            b.bins.push(bin);
+            total.insert(bin);
+        }
+    }
+
+    /// The position of the bucket of index `idx`, inserted in index order if new.
+    fn find_or_insert(&mut self, idx: i64) -> usize {
+        match self.buckets.iter().rposition(|b| b.index <= idx) {
             Some(p) if self.buckets[p].index == idx => p,
             found => {
                 let at = found.map_or(0, |p| p + 1);
@@ -311,15 +329,6 @@ impl Window {
                 self.buckets.insert(at, b);
                 at
             }
-        };
-        let b = &mut self.buckets[pos];
-        b.count += 1;
-        b.sum += v;
-        b.min = b.min.min(v);
-        b.max = b.max.max(v);
-        if let Some(total) = self.total.as_mut() {
-            b.bins.push(bin);
-            total.insert(bin);
         }
     }
 
