@@ -16,6 +16,7 @@
 //! Positive means clearance lost. The estimated objects are the latest estimate set at or
 //! before t.
 
+use super::clearance::Reaches;
 use super::Engine;
 use crate::core::align::Point;
 use crate::core::engine::Sample;
@@ -46,13 +47,17 @@ impl Engine {
             return self.counters.budget.skip("plan_late");
         }
         let est_bodies = self.estimate_points_at(t);
-        let c = |s: &Self, p: (f64, f64, f64), b: &[Point]| {
-            s.clearance_of(t, p.0, p.1, p.2, b).map(|n| n.distance)
+        let radius = self.clear.cp.object_radius;
+        let (ref_reach, est_reach) = (Reaches::of(&ref_bodies, radius), Reaches::of(&est_bodies, radius));
+        let c = |s: &Self, p: (f64, f64, f64), b: &[Point], reach: &Reaches| {
+            s.clearance_of(t, p.0, p.1, p.2, b, reach).map(|n| n.distance)
         };
         let (e, r) = ((est.x, est.y, est.yaw), (reference.x, reference.y, reference.yaw));
-        let (Some(truth), Some(believed), Some(est_ref)) =
-            (c(self, r, &ref_bodies), c(self, e, &est_bodies), c(self, e, &ref_bodies))
-        else {
+        let (Some(truth), Some(believed), Some(est_ref)) = (
+            c(self, r, &ref_bodies, &ref_reach),
+            c(self, e, &est_bodies, &est_reach),
+            c(self, e, &ref_bodies, &ref_reach),
+        ) else {
             return;
         };
         let planned = self
@@ -60,7 +65,7 @@ impl Engine {
             .plans
             .latest_at_or_before(t)
             .and_then(|(_, plan)| path::project(&plan.dense, est.x, est.y))
-            .and_then(|p| c(self, (p.point[0], p.point[1], p.yaw), &est_bodies))
+            .and_then(|p| c(self, (p.point[0], p.point[1], p.yaw), &est_bodies, &est_reach))
             .unwrap_or(believed);
         self.counters.budget.hit(how);
         let mut push = |metric, value| out.push(Sample { t, metric, role: None, value });

@@ -4,7 +4,7 @@
 
 use std::sync::Arc;
 
-use super::clearance::clearance_with;
+use super::clearance::{clearance_with, Reaches};
 use super::Engine;
 use crate::core::align::{self, Point};
 use crate::core::engine::Sample;
@@ -107,6 +107,7 @@ impl PlanJob {
         // has moved more than |p - p_k| + r |yaw - yaw_k| (r its circumradius), so the
         // clearance here is at least d_k minus that. Exact, not an approximation.
         let r = cp.footprint.circumradius();
+        let reaches = Reaches::of(bodies, cp.object_radius);
         let mut min_clear: Option<f64> = None;
         let mut anchor: Option<([f64; 2], f64, f64)> = None;
         for (i, p) in dense.iter().enumerate() {
@@ -117,7 +118,7 @@ impl PlanJob {
                     continue;
                 }
             }
-            if let Some(n) = clearance_with(cp, map, p[0], p[1], yaw, bodies) {
+            if let Some(n) = clearance_with(cp, map, p[0], p[1], yaw, bodies, &reaches) {
                 min_clear = Some(min_clear.map_or(n.distance, |m: f64| m.min(n.distance)));
                 anchor = Some((*p, yaw, n.distance));
             }
