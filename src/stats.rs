@@ -189,17 +189,81 @@ impl Stats {
     }
 }
 
-/// Values per block of [`Exact`] (32 KiB).
+/// Values per block of [`Exact`] (32 KiB of `f64`, 4 KiB of small whole numbers).
 const EXACT_BLOCK: usize = 4096;
 
 /// The values kept for exact percentiles, in arrival order, in fixed blocks: a block is
 /// allocated at its full size and never grows, so no value is ever copied and the memory
 /// held is the values' own plus at most one block (a `Vec` that doubles holds up to twice
-/// its values, and both copies while it moves).
+/// its values, and both copies while it moves). A block whose values are all whole numbers
+/// 0..=255 (counts, flags) keeps them as bytes, an eighth of the room; the first value that
+/// is not turns the block into `f64` once. Every value reads back with its own bits.
 #[derive(Debug, Clone, Default)]
 struct Exact {
-    blocks: Vec<Vec<f64>>,
+    blocks: Vec<Block>,
     len: usize,
+}
+
+/// One block of [`Exact`].
+#[derive(Debug, Clone)]
+enum Block {
+    /// Whole numbers 0..=255, each exactly its `f64` (no -0.0, no NaN).
+    Small(Vec<u8>),
+    /// Any values.
+    Full(Vec<f64>),
+}
+
+/// `v` as a byte when the byte converts back to the very same bits.
+fn small(v: f64) -> Option<u8> {
+    let b = v as u8;
+    (f64::from(b).to_bits() == v.to_bits()).then_some(b)
+}
+
+impl Block {
+    fn new(v: f64) -> Block {
+        match small(v) {
+            Some(b) => {
+                let mut s = Vec::with_capacity(EXACT_BLOCK);
+                s.push(b);
+                Block::Small(s)
+            }
+            None => {
+                let mut f = Vec::with_capacity(EXACT_BLOCK);
+                f.push(v);
+                Block::Full(f)
+            }
+        }
+    }
+
+    fn len(&self) -> usize {
+        match self {
+            Block::Small(s) => s.len(),
+            Block::Full(f) => f.len(),
+        }
+    }
+
+    /// Appends `v` (the block has room).
+    fn push(&mut self, v: f64) {
+        match self {
+            Block::Full(f) => f.push(v),
+            Block::Small(s) => match small(v) {
+                Some(b) => s.push(b),
+                None => {
+                    let mut f = Vec::with_capacity(EXACT_BLOCK);
+                    f.extend(s.iter().map(|&b| f64::from(b)));
+                    f.push(v);
+                    *self = Block::Full(f);
+                }
+            },
+        }
+    }
+
+    fn parts(&self) -> (&[u8], &[f64]) {
+        match self {
+            Block::Small(s) => (s, &[]),
+            Block::Full(f) => (&[], f),
+        }
+    }
 }
 
 impl Exact {
@@ -210,23 +274,24 @@ impl Exact {
     fn push(&mut self, v: f64) {
         match self.blocks.last_mut() {
             Some(b) if b.len() < EXACT_BLOCK => b.push(v),
-            _ => {
-                let mut b = Vec::with_capacity(EXACT_BLOCK);
-                b.push(v);
-                self.blocks.push(b);
-            }
+            _ => self.blocks.push(Block::new(v)),
         }
         self.len += 1;
     }
 
     fn iter(&self) -> impl Iterator<Item = f64> + '_ {
-        self.blocks.iter().flatten().copied()
+        self.blocks.iter().flat_map(|b| {
+            let (s, f) = b.parts();
+            s.iter().map(|&x| f64::from(x)).chain(f.iter().copied())
+        })
     }
 
     fn to_vec(&self) -> Vec<f64> {
         let mut v = Vec::with_capacity(self.len);
         for b in &self.blocks {
-            v.extend_from_slice(b);
+            let (s, f) = b.parts();
+            v.extend(s.iter().map(|&x| f64::from(x)));
+            v.extend_from_slice(f);
         }
         v
     }
@@ -454,7 +519,7 @@ mod tests {
         }
         assert!(s.is_exact());
         assert_eq!(s.exact.len(), n);
-        assert!(s.exact.blocks.iter().all(|b| b.capacity() == EXACT_BLOCK));
+        assert!(s.exact.blocks.iter().all(|b| matches!(b, Block::Full(f) if f.capacity() == EXACT_BLOCK)));
         let mut sorted = vals.clone();
         sorted.sort_by(f64::total_cmp);
         let st = s.stats().unwrap();
@@ -466,6 +531,36 @@ mod tests {
         assert!(!s.is_exact());
         let (neg, pos) = s.hist.as_ref().unwrap();
         assert_eq!(neg.len() + pos.len(), n as u64 + 1);
+    }
+
+    /// Counts and flags are kept as bytes, a block turns to `f64` at its first other value
+    /// (a fraction, 256, -0.0, a negative), and every value reads back with its own bits: the
+    /// percentiles equal numpy's linear ones of all the values, sorted here by total order.
+    #[test]
+    fn small_whole_numbers_are_kept_as_bytes() {
+        let n = 2 * EXACT_BLOCK + 5;
+        let mut vals: Vec<f64> = (0..n).map(|i| ((i * 7919) % 49) as f64).collect();
+        // The third block is mixed: its values read back the same once it turns to f64.
+        vals.extend([3.0, 0.5, 255.0, 256.0, -0.0, -1.0, 0.0, 7.0]);
+        let mut s = Summary::new(vals.len(), 3);
+        for &v in &vals {
+            s.add(v);
+        }
+        let kinds: Vec<bool> = s.exact.blocks.iter().map(|b| matches!(b, Block::Small(_))).collect();
+        assert_eq!(kinds, [true, true, false]);
+        let back: Vec<u64> = s.exact.iter().map(f64::to_bits).collect();
+        assert_eq!(back, vals.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
+        assert_eq!(s.exact.to_vec().iter().map(|v| v.to_bits()).collect::<Vec<_>>(), back);
+        let mut sorted = vals.clone();
+        sorted.sort_by(f64::total_cmp);
+        let st = s.stats().unwrap();
+        for (q, got) in [(0.5, st.p50), (0.95, st.p95), (0.99, st.p99)] {
+            assert_eq!(got.to_bits(), quantile_sorted(&sorted, q).to_bits(), "q={q}");
+        }
+        assert_eq!(small(-0.0), None);
+        assert_eq!(small(f64::NAN), None);
+        assert_eq!(small(255.0), Some(255));
+        assert_eq!(small(256.0), None);
     }
 
     #[test]
