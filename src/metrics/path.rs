@@ -342,8 +342,6 @@ mod tests {
     use super::*;
     use crate::geometry::{Body, ObstacleId};
 
-    /// Reference: the standard library's `f64::round`. Halves, their neighbours one ulp
-    /// either side, the 2^52 edge, infinities and NaN, then random values of every scale.
     /// The full scan `project` prunes: every segment's foot point, the first strictly
     /// nearest kept.
     fn project_full_scan(pts: &[[f64; 2]], x: f64, y: f64) -> Option<Projection> {
@@ -400,6 +398,8 @@ mod tests {
         }
     }
 
+    /// Reference: the standard library's `f64::round`. Halves, their neighbours one ulp
+    /// either side, the 2^52 edge, infinities and NaN, then random values of every scale.
     #[test]
     fn inline_round_equals_the_library_round() {
         let same = |x: f64| {
