@@ -1,6 +1,6 @@
 //! Linear programs, behind an interface of ours so a faster solver can replace the one
 //! used (`microlp`, a pure-Rust revised simplex). Only what the T-GOSPA relaxation needs:
-//! non-negative variables, a cost each, and equality or at-least rows. Pure: the solver
+//! non-negative variables, a cost each, and equality, at-most or at-least rows. Pure: the solver
 //! is deterministic for the same problem (no time limit is set).
 
 use microlp::{ComparisonOp, OptimizationDirection, Problem, Variable};
@@ -53,6 +53,12 @@ impl Lp {
     pub fn eq(&mut self, terms: &[(usize, f64)], rhs: f64) {
         let row = self.row(terms);
         self.problem.add_constraint(&row[..], ComparisonOp::Eq, rhs);
+    }
+
+    /// `sum a_i x_i <= rhs`.
+    pub fn le(&mut self, terms: &[(usize, f64)], rhs: f64) {
+        let row = self.row(terms);
+        self.problem.add_constraint(&row[..], ComparisonOp::Le, rhs);
     }
 
     /// `sum a_i x_i >= rhs`.
