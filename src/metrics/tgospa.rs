@@ -308,7 +308,7 @@ fn solve_component(
         single_pair(&xs[*i], &ys[*j], &steps, k, out);
         return Ok(());
     }
-    let needed = t * pairs.len() + (t - 1) * pairs.len();
+    let needed = (2 * t - 1) * pairs.len();
     if needed > max_vars {
         return Err(Skip::TooLarge { needed, limit: max_vars });
     }
@@ -321,7 +321,8 @@ fn solve_component(
     // fewer variables, and the solver starts from every close pair taken.
     let (np, cap) = (pairs.len(), k.missed + k.false_);
     let mut lp = Lp::new();
-    // Variable indices: w[s][q], then e[s][q] for s < t - 1. Switches with one row each: over a pair's chain of weights the total change is
+    // Variable indices: w[s][q], then e[s][q] for s < t - 1.
+    // Switches with one row each: over a pair's chain of weights the total change is
     // `sum |dW| = 2 sum max(0, W^k - W^(k+1)) + W^T - W^1` (the rises less the falls is
     // the net change), so only the falls get a variable (`e >= W^k - W^(k+1)`, cost
     // gamma^p), and the first and last weights carry `-gamma^p/2` and `+gamma^p/2`.
