@@ -75,7 +75,12 @@ impl Lp {
 
     /// The minimiser's values, by variable index.
     pub fn solve(&self) -> Result<Vec<f64>, LpError> {
-        let outcome = self.problem.solve().map_err(|e| LpError(e.to_string()))?;
+        // No presolve: the programs built here have no redundant rows for it to find (the
+        // builder leaves them out), and on the T-GOSPA bench window it cost a third of the
+        // solve time (48 ms with it, 30 ms without).
+        let mut opts = microlp::SolveOptions::default();
+        opts.presolve = false;
+        let outcome = self.problem.solve_with(opts).map_err(|e| LpError(e.to_string()))?;
         let sol = outcome.into_solution().map_err(|e| LpError(format!("{e:?}")))?;
         Ok(self.vars.iter().map(|&v| sol.var_value(v)).collect())
     }

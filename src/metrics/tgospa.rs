@@ -308,73 +308,133 @@ fn solve_component(
         single_pair(&xs[*i], &ys[*j], &steps, k, out);
         return Ok(());
     }
-    let needed = (2 * t - 1) * pairs.len();
-    if needed > max_vars {
-        return Err(Skip::TooLarge { needed, limit: max_vars });
-    }
     // The dummies are eliminated: reference i is left alone with weight
     // `u_i = 1 - sum_j W_ij`, estimate j with `v_j = 1 - sum_i W_ij`, so a pair's weight
     // costs what pairing saves over leaving both alone: `d^p - (m + f)` (< 0) for a pair
     // within the cap and 0 otherwise (beyond the cap, or one of the two absent), and each
     // reference's and estimate's weights sum to at most 1. The objective is the original
     // one less the constant `sum m + sum f` of the present states. Same optimum, a third
-    // fewer variables, and the solver starts from every close pair taken.
+    // fewer variables.
     let (np, cap) = (pairs.len(), k.missed + k.false_);
-    let mut lp = Lp::new();
-    // Variable indices: w[s][q], then e[s][q] for s < t - 1.
-    // Switches with one row each: over a pair's chain of weights the total change is
-    // `sum |dW| = 2 sum max(0, W^k - W^(k+1)) + W^T - W^1` (the rises less the falls is
-    // the net change), so only the falls get a variable (`e >= W^k - W^(k+1)`, cost
-    // gamma^p), and the first and last weights carry `-gamma^p/2` and `+gamma^p/2`.
-    let mut w = Vec::with_capacity(t * np);
+    // Per pair and step (index `q * t + s`): the step's cost and part, and whether the
+    // pair is within the cap there.
     let mut parts = Vec::with_capacity(t * np);
-    for (s, &step) in steps.iter().enumerate() {
-        for &(i, j) in pairs {
-            let (cost, part) = pair_cost(at(&xs[i], step), at(&ys[j], step), k);
-            let mut saving = if part == Part::Localization { cost - cap } else { 0.0 };
-            if t > 1 && s == 0 {
-                saving -= k.switch / 2.0;
-            } else if t > 1 && s == t - 1 {
-                saving += k.switch / 2.0;
-            }
-            w.push(lp.bounded(saving, 1.0));
-            parts.push((cost, part));
+    for &(i, j) in pairs {
+        for &step in &steps {
+            parts.push(pair_cost(at(&xs[i], step), at(&ys[j], step), k));
         }
     }
-    let mut e = Vec::with_capacity((t - 1) * np);
-    for _ in 0..(t - 1) * np {
-        e.push(lp.var(k.switch));
-    }
+    let near = |q: usize, s: usize| parts[q * t + s].1 == Part::Localization;
     // Each member's pairs (a member with one pair needs no row: its weight's bound is 1).
     let of_ref: Vec<Vec<usize>> =
         refs.iter().map(|&i| (0..np).filter(|&q| pairs[q].0 == i).collect()).collect();
     let of_est: Vec<Vec<usize>> =
         ests.iter().map(|&j| (0..np).filter(|&q| pairs[q].1 == j).collect()).collect();
-    let mut row: Vec<(usize, f64)> = Vec::new();
-    for s in 0..t {
-        for qs in of_ref.iter().chain(&of_est).filter(|qs| qs.len() > 1) {
-            row.clear();
-            row.extend(qs.iter().map(|&q| (w[s * np + q], 1.0)));
-            lp.le(&row, 1.0);
+    // A pair is contested at a step where another pair of one of its two members is within
+    // the cap too.
+    let mut near_count = vec![0u32; (refs.len() + ests.len()) * t];
+    let mut member_of = vec![(0usize, 0usize); np];
+    for (r, qs) in of_ref.iter().chain(&of_est).enumerate() {
+        for &q in qs {
+            if r < refs.len() {
+                member_of[q].0 = r;
+            } else {
+                member_of[q].1 = r;
+            }
+            for s in 0..t {
+                near_count[r * t + s] += u32::from(near(q, s));
+            }
         }
     }
-    for s in 0..t - 1 {
-        for q in 0..np {
-            let (a, b, d) = (w[s * np + q], w[(s + 1) * np + q], e[s * np + q]);
-            lp.ge(&[(d, 1.0), (a, -1.0), (b, 1.0)], 0.0);
+    let contested = |q: usize, s: usize| {
+        let (r, c) = member_of[q];
+        near_count[r * t + s] > 1 || near_count[c * t + s] > 1
+    };
+    // Runs of steps that share one weight, exact: some optimum is constant on them.
+    // - A run of steps where the pair is beyond the cap or a member absent (no saving):
+    //   given any feasible point, lowering the run's weights to `min(before, after, the
+    //   run's least)` keeps every row (their coefficients are >= 0), saves nothing less,
+    //   and its change `(before - c) + (after - c)` is no more than the path's.
+    // - A run of steps within the cap and uncontested (at each, every other pair of both
+    //   members is beyond the cap, so, after the first kind, those pairs hold one weight
+    //   each over the run and the rows bound this pair by the same value at every step):
+    //   by the layer-cake identity (the objective is the integral over levels of the 0/1
+    //   paths `1[w > level]`), and at each level a constant 0/1 path is never worse than a
+    //   block of ones (a block costs at least the changes a constant costs, and savings
+    //   are >= 0), some constant path is optimal.
+    // The two kinds never touch (a contested step is a run of its own), so both hold at
+    // once. Each run is one variable; its cost is the sum of its steps' savings.
+    let mut run_of = vec![0usize; t * np];
+    let mut runs: Vec<(usize, f64)> = Vec::new(); // (pair, cost)
+    for q in 0..np {
+        for s in 0..t {
+            let joined = s > 0
+                && ((!near(q, s) && !near(q, s - 1))
+                    || (near(q, s) && near(q, s - 1) && !contested(q, s) && !contested(q, s - 1)));
+            if !joined {
+                runs.push((q, 0.0));
+            }
+            let r = runs.len() - 1;
+            run_of[q * t + s] = r;
+            let (cost, part) = parts[q * t + s];
+            if part == Part::Localization {
+                runs[r].1 += cost - cap;
+            }
+        }
+    }
+    let falls = runs.len() - np;
+    let needed = runs.len() + falls;
+    if needed > max_vars {
+        return Err(Skip::TooLarge { needed, limit: max_vars });
+    }
+    // Switches with one row each: over a pair's chain of weights the total change is
+    // `sum |dW| = 2 sum max(0, W^k - W^(k+1)) + W^T - W^1` (the rises less the falls is
+    // the net change), so only the falls get a variable (`e >= W^k - W^(k+1)`, cost
+    // gamma^p), and the first and last weights carry `-gamma^p/2` and `+gamma^p/2`.
+    let mut lp = Lp::new();
+    for (r, &(q, cost)) in runs.iter().enumerate() {
+        let first = r == run_of[q * t];
+        let last = r == run_of[q * t + t - 1];
+        let edge = match (first, last) {
+            (true, false) => -k.switch / 2.0,
+            (false, true) => k.switch / 2.0,
+            _ => 0.0,
+        };
+        lp.bounded(cost + edge, 1.0);
+    }
+    for r in 0..runs.len() - 1 {
+        if runs[r].0 == runs[r + 1].0 {
+            let e = lp.var(k.switch);
+            lp.ge(&[(e, 1.0), (r, -1.0), (r + 1, 1.0)], 0.0);
+        }
+    }
+    // A member's row at a step, unless it is the row of the step before (its pairs in the
+    // same runs).
+    let mut row: Vec<(usize, f64)> = Vec::new();
+    for qs in of_ref.iter().chain(&of_est).filter(|qs| qs.len() > 1) {
+        for s in 0..t {
+            if s > 0 && qs.iter().all(|&q| run_of[q * t + s] == run_of[q * t + s - 1]) {
+                continue;
+            }
+            row.clear();
+            row.extend(qs.iter().map(|&q| (run_of[q * t + s], 1.0)));
+            lp.le(&row, 1.0);
         }
     }
     let x: Vec<f64> = lp.solve().map_err(|e| Skip::Solver(e.to_string()))?.into_iter().map(snap).collect();
     out.components += 1;
     out.largest = out.largest.max(lp.len());
+    let weight = |q: usize, s: usize| x[run_of[q * t + s]];
     let mut integral = true;
-    for (q, &part) in parts.iter().enumerate() {
-        let val = x[w[q]];
-        integral &= val == 0.0 || val == 1.0;
-        add_pair(out, part, val, k);
+    for s in 0..t {
+        for q in 0..np {
+            let val = weight(q, s);
+            integral &= val == 0.0 || val == 1.0;
+            add_pair(out, parts[q * t + s], val, k);
+        }
     }
     for (s, &step) in steps.iter().enumerate() {
-        let alone = |qs: &[usize]| snap(1.0 - qs.iter().map(|&q| x[w[s * np + q]]).sum::<f64>());
+        let alone = |qs: &[usize]| snap(1.0 - qs.iter().map(|&q| weight(q, s)).sum::<f64>());
         for (r, &i) in refs.iter().enumerate() {
             if at(&xs[i], step).is_some() {
                 out.missed += k.missed * alone(&of_ref[r]);
@@ -391,7 +451,7 @@ fn solve_component(
     let mut moved = 0.0;
     for s in 0..t - 1 {
         for q in 0..np {
-            moved += (x[w[s * np + q]] - x[w[(s + 1) * np + q]]).abs();
+            moved += (weight(q, s) - weight(q, s + 1)).abs();
         }
     }
     out.switch += k.switch / 2.0 * moved;
@@ -573,10 +633,31 @@ mod tests {
         assert!(matches!(e, Skip::TooLarge { limit: 20_000, .. }), "{e:?}");
     }
 
+    /// A reference at (0,0) for 10 steps, track A on it at d = 0.1 throughout and track B
+    /// at d = 0.2 at steps 5-6 only. p = 1, c = 2, gamma = 1: staying with A costs
+    /// 10 x 0.1 = 1 localisation and B's two states are false, 2 x 1 = 2: total 3 (taking
+    /// B at steps 5-6 instead costs two full switches, 2, and 0.2 more localisation).
+    /// Runs: A is uncontested at steps 1-4 and 7-10 and contested at 5 and 6 (4 runs); B is
+    /// absent at 1-4 and 7-10 and within the cap at 5 and 6 (4 runs): 8 weights and 6
+    /// falls, 14 variables, where a weight per step would need 2 x 10 + 2 x 9 = 38.
+    #[test]
+    fn steps_without_a_rival_share_one_weight() {
+        let x = vec![Some([0.0, 0.0]); 10];
+        let a = vec![Some([0.1, 0.0]); 10];
+        let b: Trajectory = (0..10).map(|s| (4..6).contains(&s).then_some([0.0, 0.2])).collect();
+        let k = Costs::metric(2.0, 1.0, 1.0);
+        let g = tgospa(std::slice::from_ref(&x), &[a.clone(), b.clone()], &k, BIG).unwrap();
+        assert!(close(g.total, 3.0) && close(g.localization, 1.0) && close(g.false_, 2.0), "{g:?}");
+        assert_eq!((g.switches, g.largest, g.integral), (0.0, 14, true));
+        let e = tgospa(&[x], &[a, b], &k, 13).unwrap_err();
+        assert_eq!(e, Skip::TooLarge { needed: 14, limit: 13 });
+    }
+
     #[test]
     fn a_component_beyond_the_limit_is_skipped() {
         // One reference, two estimates near it: 10 steps x 2 pairs + 9 x 2 switch
-        // variables = 38 (the dummies are eliminated). (A single pair needs no program.)
+        // variables = 38 (the dummies are eliminated; both pairs are contested at every step,
+        // so no run is shared). (A single pair needs no program.)
         let x = vec![Some([0.0, 0.0]); 10];
         let ys = [vec![Some([0.1, 0.0]); 10], vec![Some([0.0, 0.2]); 10]];
         let e = tgospa(std::slice::from_ref(&x), &ys, &Costs::metric(2.0, 1.0, 1.0), 37).unwrap_err();
