@@ -425,12 +425,11 @@ fn solve_component(
     out.components += 1;
     out.largest = out.largest.max(lp.len());
     let weight = |q: usize, s: usize| x[run_of[q * t + s]];
-    let mut integral = true;
+    // Every run covers a step, so the runs' weights are the assignment's.
+    let integral = x[..runs.len()].iter().all(|&v| v == 0.0 || v == 1.0);
     for s in 0..t {
         for q in 0..np {
-            let val = weight(q, s);
-            integral &= val == 0.0 || val == 1.0;
-            add_pair(out, parts[q * t + s], val, k);
+            add_pair(out, parts[q * t + s], weight(q, s), k);
         }
     }
     for (s, &step) in steps.iter().enumerate() {
