@@ -5,7 +5,8 @@
 //! p = 1, gamma = 2 m.
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use plumbline::metrics::tgospa::{tgospa, Costs, Trajectory};
+use plumbline::metrics::tgospa::{tgospa, tgospa_on, Costs, Trajectory};
+use plumbline::threads::Pooled;
 use rand::{Rng, SeedableRng};
 
 fn scene(seed: u64) -> (Vec<Trajectory>, Vec<Trajectory>) {
@@ -66,8 +67,13 @@ fn bench(c: &mut Criterion) {
         "tgospa window: {} components, largest {} variables, switches {}, integral {}",
         g.components, g.largest, g.switches, g.integral
     );
+    // One thread (the pure layers' runner), then the components on rayon's pool (both
+    // cores here), as replay and the watcher run them.
     c.bench_function("tgospa_window/100x20", |b| {
         b.iter(|| std::hint::black_box(tgospa(&xs, &ys, &k, 1_000_000).unwrap().total))
+    });
+    c.bench_function("tgospa_window/100x20_pooled", |b| {
+        b.iter(|| std::hint::black_box(tgospa_on(&Pooled, &xs, &ys, &k, 1_000_000).unwrap().total))
     });
 }
 

@@ -2,6 +2,9 @@
 # Load and soak of the live watcher, loopback only; every process stops by itself.
 #   bash scripts/load-soak.sh load [RATE] [SECONDS]   # default 2 x 40000 msg/s for 60 s
 #   bash scripts/load-soak.sh soak [RATE] [SECONDS]   # default 1000 msg/s for 600 s
+# Environment: OBJECTS (10) objects per set, GROUP (1) objects per group of rivals 0.5 m apart,
+# BINARY=1 for postcard, WATCH_SET for the watcher's --set options, WATCH_ARGS for its `watch`
+# options (--report FILE), GENERATOR_NICE (19).
 # The watcher (release build) listens on loopback; `plumbline load` publishes OBJECTS-object (10)
 # sets at RATE for SECONDS. Meanwhile /metrics is fetched every 0.5 s, timing each answer,
 # and the watcher's RSS is read from /proc. Prints: messages taken and dropped per role,
@@ -22,7 +25,7 @@ PLUMBLINE_BIN=${PLUMBLINE_BIN:-target/release/plumbline}
 dir=$(mktemp -d)
 zport=$(port)
 hport=$(port)
-"$bin" --set "http.listen=127.0.0.1:$hport" --set http.requests_per_s=1000 ${WATCH_SET:-} watch \
+"$bin" --set "http.listen=127.0.0.1:$hport" --set http.requests_per_s=1000 ${WATCH_SET:-} watch ${WATCH_ARGS:-} \
   --listen "tcp/127.0.0.1:$zport" --no-multicast --duration $((secs + 20)) >"$dir/watch.log" 2>&1 &
 wpid=$!
 trap 'kill $wpid 2>/dev/null || true; rm -rf "$dir"' EXIT
@@ -30,7 +33,7 @@ wait_ready "$hport" "$dir/watch.log"
 # The generator runs at the lowest priority: on 2 cores, a generator that competed with the
 # watcher for a core put scheduler waits of 3-7 ms into the watcher's receipt-to-gauge p99
 # (measured: p99 0.4-6.7 ms over five 2000 msg/s runs at equal priority, 0.10-0.17 ms niced).
-nice -n "${GENERATOR_NICE:-19}" "$bin" stress --messages-per-s "$rate" --seconds "$secs" --objects "${OBJECTS:-10}" ${BINARY:+--postcard} --connect "tcp/127.0.0.1:$zport" \
+nice -n "${GENERATOR_NICE:-19}" "$bin" stress --messages-per-s "$rate" --seconds "$secs" --objects "${OBJECTS:-10}" --group "${GROUP:-1}" ${BINARY:+--postcard} --connect "tcp/127.0.0.1:$zport" \
   --no-multicast >"$dir/load.log" 2>&1 &
 lpid=$!
 python3 - "$mode" "$wpid" "$lpid" "$hport" "$secs" <<'PY'

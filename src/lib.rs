@@ -19,6 +19,7 @@
 //! - `live` (feature `live`): zenoh, HTTP and signals (I/O edge);
 //! - [`logio`]: log readers and writers (file I/O edge);
 //! - [`replay`]: drives the engine from a log (file I/O edge, two threads);
+//! - [`threads`]: the drivers' pool for independent pure work (T-GOSPA components; edge);
 //! - [`campaign`]: campaign aggregation (pure);
 //! - [`html`]: self-contained HTML reports with SVG plots (pure);
 //! - [`cli`]: the command line (edge).
@@ -66,5 +67,6 @@ pub mod rules;
 pub mod scenario;
 pub mod schema;
 pub mod stats;
+pub mod threads;
 pub mod windows;
 pub mod wire;

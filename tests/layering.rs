@@ -26,6 +26,7 @@ const LAYERS: &[&[&str]] = &[
     &["html"],
     &["logio"],          // log files
     &["config"],         // the one place that reads the config
+    &["threads"],        // the drivers' pool for independent pure work
     &["replay", "live"], // the two drivers
     &["cli"],
     &["main"],

@@ -113,6 +113,10 @@ pub struct LoadArgs {
     /// Postcard payloads instead of JSON (`--binary` is the old name).
     #[arg(long = "postcard", alias = "binary")]
     pub postcard: bool,
+    /// Objects per group: 1 spreads them 3 m apart; more puts a group's objects 0.5 m
+    /// apart, within the default cutoff of each other (rivals for the assignment).
+    #[arg(long, default_value_t = 1)]
+    pub group: usize,
     /// Session settings (endpoints must be on loopback).
     #[command(flatten)]
     pub session: SessionArgs,
@@ -139,6 +143,7 @@ pub fn load_cmd(cfg: &Config, a: &LoadArgs) -> u8 {
         seconds: a.seconds,
         objects: a.objects,
         binary: a.postcard,
+        group: a.group,
     };
     let t0 = std::time::Instant::now();
     let r = crate::live::load::run(&cfg, opts, &session);

@@ -22,6 +22,10 @@ pub struct LoadOptions {
     pub objects: usize,
     /// Postcard payloads instead of JSON.
     pub binary: bool,
+    /// Objects per group: 1 spreads them 3 m apart; more puts each group's objects 0.5 m
+    /// apart, within the default 2 m cutoff of each other, so the T-GOSPA programs have
+    /// rivals at every step.
+    pub group: usize,
 }
 
 /// Whether every configured endpoint is on the loopback interface.
@@ -60,11 +64,16 @@ pub fn run(cfg: &Config, o: LoadOptions, session: &zenoh::Session) -> Result<u64
         let k = (sent / 2) as f64;
         let objects = (0..o.objects as u64)
             .map(|i| {
-                Object::at(
-                    i + 1,
-                    i as f64 * 3.0 + (k * 0.01) % 5.0,
-                    (i % 7) as f64 * 2.0 + if sent % 2 == 1 { 0.1 } else { 0.0 },
-                )
+                let drift = (k * 0.01) % 5.0;
+                let offset = if sent % 2 == 1 { 0.1 } else { 0.0 };
+                let (x, y) = match o.group as u64 {
+                    0 | 1 => (i as f64 * 3.0 + drift, (i % 7) as f64 * 2.0 + offset),
+                    n => {
+                        let (g, m) = (i / n, i % n);
+                        (g as f64 * 8.0 + m as f64 * 0.5 + drift, (g % 7) as f64 * 2.0 + offset)
+                    }
+                };
+                Object::at(i + 1, x, y)
             })
             .collect();
         let msg = Msg::Objects(ObjectSet { stamp: t, frame: None, objects });

@@ -272,16 +272,28 @@ pub fn run(
         monitor.push(map, &mut samples, &mut events);
     }
     // T-GOSPA windows are solved on a thread of their own, off the loop that drives the
-    // gauges; their samples join the monitor when they are ready. A window that finds the
-    // solver still busy with two others is skipped and counted (`busy`).
+    // gauges, its components on a pool of its own; all of them at the lowest CPU priority,
+    // so a solve takes only the time the loop leaves idle (measured at 2,000 msg/s with
+    // rivals in every group: receipt-to-gauge p99 846 us with the solver at normal
+    // priority, against 91 us with T-GOSPA off). Their samples join the monitor when they
+    // are ready. A window that finds the solver still busy with two others is skipped and
+    // counted (`busy`).
     let tgospa = monitor.engine.has_tgospa().then(|| {
         monitor.engine.defer_tgospa(true);
         let (jobs, job_rx) = sync_channel::<TgospaJob>(2);
         let (res_tx, results) = sync_channel::<(Vec<Sample>, JobOutcome)>(4);
         let worker = std::thread::Builder::new().name("plumbline-tgospa".into()).spawn(move || {
+            lowest_priority();
+            let pool = rayon::ThreadPoolBuilder::new()
+                .thread_name(|i| format!("plumbline-tgospa-{i}"))
+                .start_handler(|_| lowest_priority())
+                .build();
             for job in job_rx.iter() {
                 let mut out = Vec::new();
-                let outcome = job.run(&mut out);
+                let outcome = match &pool {
+                    Ok(pool) => pool.install(|| job.run_on(&crate::threads::Pooled, &mut out)),
+                    Err(_) => job.run(&mut out),
+                };
                 if res_tx.send((out, outcome)).is_err() {
                     break;
                 }
@@ -601,6 +613,22 @@ fn handle(
         }
         if let Some(j) = journal.as_mut() {
             j.append(e);
+        }
+    }
+}
+
+/// Puts the calling thread at the lowest CPU priority: on Linux the idle scheduling class
+/// (it runs only when no other thread wants the core), elsewhere nothing. Failure leaves
+/// the thread as it was.
+fn lowest_priority() {
+    #[cfg(target_os = "linux")]
+    {
+        let param = libc::sched_param { sched_priority: 0 };
+        // SAFETY: `sched_setscheduler` reads `param` (a valid, initialised struct that
+        // outlives the call); pid 0 is the calling thread. No memory is shared.
+        let rc = unsafe { libc::sched_setscheduler(0, libc::SCHED_IDLE, &param) };
+        if rc != 0 {
+            tracing::debug!("the T-GOSPA solver keeps its priority: sched_setscheduler failed");
         }
     }
 }

@@ -28,6 +28,7 @@ use super::align::{self, How, Miss, Point, Resolved, Timeline};
 use super::{AlignParams, ClearanceParams, EgoSource, TgospaParams, TrackingParams};
 use crate::metrics::assign::{MatchScratch, ShortestPath};
 use crate::metrics::nees::NeesPool;
+use crate::metrics::tgospa::{Components, InOrder};
 use crate::metrics::tracklife::{TrackLife, TrackLifeStep};
 use crate::metrics::transport::Transport;
 use crate::metrics::Metric;
@@ -306,6 +307,8 @@ pub struct Engine {
     /// T-GOSPA jobs kept for the caller (live runs them off the loop thread), or `None`
     /// to run each at once.
     tgospa_jobs: Option<Vec<TgospaJob>>,
+    /// What runs a window's components when the engine solves it itself.
+    tgospa_runner: Arc<dyn Components + Send>,
 }
 
 impl Engine {
@@ -343,6 +346,7 @@ impl Engine {
             clear: clearance::ClearState::new(cp),
             tgospa: None,
             tgospa_jobs: None,
+            tgospa_runner: Arc::new(InOrder),
         }
     }
 
@@ -351,6 +355,13 @@ impl Engine {
     /// and hands back its samples and outcome ([`Engine::count_tgospa`]).
     pub fn defer_tgospa(&mut self, on: bool) {
         self.tgospa_jobs = on.then(Vec::new);
+    }
+
+    /// What runs a T-GOSPA window's components when the engine solves the window itself
+    /// (one after another by default; a driver that owns threads may hand in a pool). The
+    /// values do not depend on it.
+    pub fn set_tgospa_runner(&mut self, runner: Arc<dyn Components + Send>) {
+        self.tgospa_runner = runner;
     }
 
     /// The T-GOSPA jobs kept since the last call, oldest first.

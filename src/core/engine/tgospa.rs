@@ -129,9 +129,14 @@ impl TgospaJob {
 
     /// Appends the window's samples to `out` (none when skipped).
     pub fn run(&self, out: &mut Vec<Sample>) -> JobOutcome {
+        self.run_on(&tgospa::InOrder, out)
+    }
+
+    /// [`TgospaJob::run`] with the window's components run by `runner`.
+    pub fn run_on(&self, runner: &dyn tgospa::Components, out: &mut Vec<Sample>) -> JobOutcome {
         let solved = match self.oversized {
             Some(needed) => Err(tgospa::Skip::TooLarge { needed, limit: MAX_CELLS }),
-            None => tgospa::tgospa(&self.xs, &self.ys, &self.costs, self.max_variables),
+            None => tgospa::tgospa_on(runner, &self.xs, &self.ys, &self.costs, self.max_variables),
         };
         if self.block {
             return solved.map_or(JobOutcome::BlockSkipped, JobOutcome::Block);
@@ -235,7 +240,7 @@ impl Engine {
         match self.tgospa_jobs.as_mut() {
             Some(kept) => kept.push(job),
             None => {
-                let outcome = job.run(out);
+                let outcome = job.run_on(&*self.tgospa_runner, out);
                 self.count_tgospa(outcome);
             }
         }
