@@ -1,6 +1,6 @@
 //! Direct readers of the two log forms for the two messages that make up nearly every
 //! record of a log: object sets and poses. This file reads the binary (postcard) form;
-//! [`json`] reads JSON Lines.
+//! [`json`] reads JSON Lines; [`cdr`] reads the built-in ROS 2 pose types.
 //!
 //! postcard's serde path decodes them correctly but slowly: every field goes through the
 //! derived visitor and the generic sequence access with its error plumbing, about 440
@@ -13,6 +13,7 @@
 //! the two agree by construction on every input the fast one accepts; the property tests
 //! in `tests/wire.rs` check that on random messages and on damaged bytes.
 
+pub mod cdr;
 pub mod json;
 
 use compact_str::CompactString;
