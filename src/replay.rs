@@ -165,7 +165,7 @@ pub fn replay(cfg: &Config, path: &Path, opts: ReplayOptions<'_>) -> Result<Repl
     engine.defer_plan_jobs(Some(PLAN_JOB_POINTS));
     // A T-GOSPA window's components, solved on rayon's pool (the values are the same on
     // any number of threads); the windows themselves stay in stamp order.
-    engine.set_tgospa_runner(std::sync::Arc::new(crate::threads::Pooled));
+    engine.set_tgospa_runner(Box::new(crate::threads::Pooled));
     let mut first_bad = Vec::new();
     let mut samples: Vec<Sample> = Vec::with_capacity(4096);
     let mut tail = None;

@@ -4,18 +4,14 @@
 
 use rayon::prelude::*;
 
-use crate::metrics::tgospa::{Components, Skip, TGospa};
+use crate::metrics::tgospa::{Components, Skip, Solve, TGospa};
 
 /// Runs each component as a task of its own on the current rayon pool.
 #[derive(Debug, Clone, Copy, Default)]
 pub struct Pooled;
 
 impl Components for Pooled {
-    fn each(
-        &self,
-        n: usize,
-        solve: &(dyn Fn(usize) -> Result<TGospa, Skip> + Sync),
-    ) -> Vec<Result<TGospa, Skip>> {
+    fn each(&self, n: usize, solve: &Solve) -> Vec<Result<TGospa, Skip>> {
         (0..n).into_par_iter().with_max_len(1).map(solve).collect()
     }
 }

@@ -287,7 +287,10 @@ pub fn run(
             let pool = rayon::ThreadPoolBuilder::new()
                 .thread_name(|i| format!("plumbline-tgospa-{i}"))
                 .start_handler(|_| lowest_priority())
-                .build();
+                .build()
+                .inspect_err(|e| {
+                    tracing::warn!("T-GOSPA components solved one after another: no pool ({e})")
+                });
             for job in job_rx.iter() {
                 let mut out = Vec::new();
                 let outcome = match &pool {
@@ -532,7 +535,7 @@ pub fn run(
         }
         let mut solved = Vec::new();
         for job in monitor.engine.take_tgospa_jobs() {
-            let outcome = job.run(&mut solved);
+            let outcome = job.run_on(&crate::threads::Pooled, &mut solved);
             monitor.engine.count_tgospa(outcome);
         }
         monitor.inject(&mut samples, &solved, &mut events);

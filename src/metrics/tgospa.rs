@@ -183,25 +183,20 @@ pub fn tgospa(xs: &[Trajectory], ys: &[Trajectory], k: &Costs, max_vars: usize) 
 /// layers run them one after another ([`InOrder`]); a driver that owns threads may run
 /// them at once. The value does not depend on the runner: each component sums into its own
 /// parts, and the parts are added in component order.
-pub trait Components: Sync + std::fmt::Debug {
+pub trait Components: Send + Sync + std::fmt::Debug {
     /// `solve(i)` for `i` in `0..n`, by index.
-    fn each(
-        &self,
-        n: usize,
-        solve: &(dyn Fn(usize) -> Result<TGospa, Skip> + Sync),
-    ) -> Vec<Result<TGospa, Skip>>;
+    fn each(&self, n: usize, solve: &Solve) -> Vec<Result<TGospa, Skip>>;
 }
+
+/// One component's solve, by its index, as a runner is handed it.
+pub type Solve<'a> = dyn Fn(usize) -> Result<TGospa, Skip> + Sync + 'a;
 
 /// One component after another, on the calling thread.
 #[derive(Debug, Clone, Copy, Default)]
 pub struct InOrder;
 
 impl Components for InOrder {
-    fn each(
-        &self,
-        n: usize,
-        solve: &(dyn Fn(usize) -> Result<TGospa, Skip> + Sync),
-    ) -> Vec<Result<TGospa, Skip>> {
+    fn each(&self, n: usize, solve: &Solve) -> Vec<Result<TGospa, Skip>> {
         (0..n).map(solve).collect()
     }
 }
@@ -764,11 +759,7 @@ mod tests {
     struct LastFirst;
 
     impl Components for LastFirst {
-        fn each(
-            &self,
-            n: usize,
-            solve: &(dyn Fn(usize) -> Result<TGospa, Skip> + Sync),
-        ) -> Vec<Result<TGospa, Skip>> {
+        fn each(&self, n: usize, solve: &Solve) -> Vec<Result<TGospa, Skip>> {
             let mut out: Vec<_> = (0..n).rev().map(solve).collect();
             out.reverse();
             out

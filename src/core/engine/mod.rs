@@ -308,7 +308,7 @@ pub struct Engine {
     /// to run each at once.
     tgospa_jobs: Option<Vec<TgospaJob>>,
     /// What runs a window's components when the engine solves it itself.
-    tgospa_runner: Arc<dyn Components + Send>,
+    tgospa_runner: Box<dyn Components>,
 }
 
 impl Engine {
@@ -346,7 +346,7 @@ impl Engine {
             clear: clearance::ClearState::new(cp),
             tgospa: None,
             tgospa_jobs: None,
-            tgospa_runner: Arc::new(InOrder),
+            tgospa_runner: Box::new(InOrder),
         }
     }
 
@@ -360,7 +360,7 @@ impl Engine {
     /// What runs a T-GOSPA window's components when the engine solves the window itself
     /// (one after another by default; a driver that owns threads may hand in a pool). The
     /// values do not depend on it.
-    pub fn set_tgospa_runner(&mut self, runner: Arc<dyn Components + Send>) {
+    pub fn set_tgospa_runner(&mut self, runner: Box<dyn Components>) {
         self.tgospa_runner = runner;
     }
 
